@@ -1,0 +1,1 @@
+"""The ``matcher`` command line: a thin Typer layer over the library API."""

@@ -1,0 +1,35 @@
+"""Options and helpers shared by the command modules."""
+
+from __future__ import annotations
+
+import sys
+from typing import Annotated, Optional
+
+import typer
+
+DbOption = Annotated[
+    Optional[str],
+    typer.Option(
+        "--db",
+        envvar="MATCHER_DB",
+        help="House library: a file path (SQLite) or an SQLAlchemy URL. "
+        "Default: $MATCHER_DB, else a file in your user data directory.",
+        show_default=False,
+    ),
+]
+
+JsonFlag = Annotated[bool, typer.Option("--json", help="Print JSON for programs instead of a table.")]
+
+
+def say(text: str = "") -> None:
+    """Print to standard output."""
+    typer.echo(text)
+
+
+def note(text: str) -> None:
+    """Print a notice to standard error (keeps stdout clean for data)."""
+    typer.echo(text, err=True)
+
+
+def is_terminal() -> bool:
+    return sys.stdin.isatty() and sys.stdout.isatty()

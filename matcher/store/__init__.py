@@ -1,0 +1,1 @@
+"""The house-library store: the only layer of matcher that speaks SQL."""

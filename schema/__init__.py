@@ -1,0 +1,1 @@
+"""Shipped data files (this marker makes the folder reachable with importlib.resources)."""
