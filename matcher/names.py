@@ -1,0 +1,125 @@
+"""Compound names: the normalised matching key, and fuzzy ranking.
+
+Chemists write one compound many ways: ``α-pinene``, ``alpha-Pinene``,
+``alpha pinene``; ``(E)-β-ocimene``, ``trans-beta-ocimene``; ``1,8-cineole``,
+``1,8 cineole``. The **matching key** folds these spellings together so that
+the library keeps one compound per key, while keeping apart what chemistry
+keeps apart (``cis-`` and ``trans-`` isomers, ``(+)`` and ``(−)``,
+different locants).
+
+Rules, in order (common practice of the trade, no single source):
+
+1. Unicode NFKC, then Greek letters become their names (α → alpha, β → beta,
+   γ → gamma, δ → delta, ...); a German ``ß`` typed for β counts as beta.
+2. Case is folded; every kind of dash becomes ``-``; whitespace collapses.
+3. Stereo descriptors are written one way: ``(E)-``, ``E-``, ``trans-`` → ``e-``
+   and ``(Z)-``, ``Z-``, ``cis-`` → ``z-`` (``(2E,6E)-`` → ``2e,6e-``);
+   optical signs ``(+)``, ``(-)``, ``(±)`` become ``plus``, ``minus``, ``rac``;
+   ``ortho-``, ``meta-``, ``para-`` become ``o-``, ``m-``, ``p-``.
+4. The key drops spaces, hyphens, underscores, dots between words and
+   brackets; commas and primes stay, so locants such as ``1,8-`` and
+   ``1,4-`` remain distinct.
+
+>>> matching_key("α-Pinene") == matching_key("alpha pinene") == matching_key("ALPHA-PINENE")
+True
+>>> matching_key("(E)-β-Ocimene") == matching_key("trans-beta-ocimene") == matching_key("E-β-ocimene")
+True
+>>> matching_key("cis-β-ocimene") == matching_key("trans-β-ocimene")
+False
+>>> matching_key("1,8-Cineole") == matching_key("1,8 cineole")
+True
+>>> matching_key("1,8-cineole") == matching_key("1,4-cineole")
+False
+>>> matching_key("para-Cymene") == matching_key("p-cymene")
+True
+>>> search_text("(Z)-3-Hexenol")
+'z 3 hexenol'
+"""
+
+from __future__ import annotations
+
+import re
+import unicodedata
+from typing import Sequence
+
+GREEK: dict[str, str] = {
+    "α": "alpha", "β": "beta", "γ": "gamma", "δ": "delta", "ε": "epsilon",
+    "ζ": "zeta", "η": "eta", "θ": "theta", "κ": "kappa", "λ": "lambda",
+    "μ": "mu", "ω": "omega", "ψ": "psi", "χ": "chi", "φ": "phi", "τ": "tau",
+    "ß": "beta",  # a German sharp s is often typed for a beta
+}
+
+_DASHES = re.compile(r"[\u2010\u2011\u2012\u2013\u2014\u2015\u2212\u00ad]")
+_OPTICAL = [
+    (re.compile(r"\(\s*(?:±|\+\s*/\s*-|\+-|-\s*/\s*\+|rs|dl)\s*\)"), " rac "),
+    (re.compile(r"\(\s*\+\s*\)"), " plus "),
+    (re.compile(r"\(\s*-\s*\)"), " minus "),
+]
+# (E)-, (Z)-, (2E,6Z)-, (E,E)- ... : stereo descriptors in brackets
+_BRACKET_EZ = re.compile(r"\(\s*((?:\d*[ez]\s*,\s*)*\d*[ez])\s*\)")
+_TRANS = re.compile(r"(?<![a-z])trans(?=[\s-])")
+_CIS = re.compile(r"(?<![a-z])cis(?=[\s-])")
+_OMP = re.compile(r"(?<![a-z])(ortho|meta|para)(?=-)")
+_KEY_DROP = re.compile(r"[\s\-_()\[\]{}.]+")
+_WORDS = re.compile(r"[\s\-_()\[\]{}.]+")
+
+
+def _fold(text: str) -> str:
+    s = unicodedata.normalize("NFKC", str(text))
+    s = "".join(GREEK.get(ch, ch) for ch in s)
+    s = _DASHES.sub("-", s).casefold()
+    s = unicodedata.normalize("NFKD", s)
+    s = "".join(ch for ch in s if not unicodedata.combining(ch))
+    for rx, rep in _OPTICAL:
+        s = rx.sub(rep, s)
+    s = _BRACKET_EZ.sub(lambda m: re.sub(r"\s+", "", m.group(1)), s)
+    s = _TRANS.sub("e", s)
+    s = _CIS.sub("z", s)
+    s = _OMP.sub(lambda m: m.group(1)[0], s)
+    return " ".join(s.split())
+
+
+def search_text(text: str) -> str:
+    """The name folded as for the key, but with words separated by single spaces (for fuzzy search)."""
+    return " ".join(w for w in _WORDS.split(_fold(text)) if w)
+
+
+def matching_key(text: str) -> str:
+    """The normalised matching key of a compound name (see module doc); empty for an empty name."""
+    return _KEY_DROP.sub("", _fold(text))
+
+
+def display_name(text: str) -> str:
+    """The name as it will be shown: NFC, stripped, whitespace collapsed (spelling kept)."""
+    return " ".join(unicodedata.normalize("NFC", str(text)).split())
+
+
+def rank(query: str, choices: Sequence[str], limit: int = 10, cutoff: float = 50.0) -> list[tuple[int, float]]:
+    """Indices of ``choices`` ranked by similarity to ``query`` (score 0-100, best first).
+
+    Both sides are folded with :func:`search_text`; the score is the better of
+    rapidfuzz's weighted ratio on the folded texts and the plain ratio on the
+    matching keys, so ``alpha pinene`` finds ``α-Pinene`` at 100 and a typo
+    such as ``limonen`` still scores high.
+
+    >>> rank("linalol", ["limonene", "linalool", "linalyl acetate"], limit=1)[0][0]
+    1
+    """
+    from rapidfuzz import fuzz, process
+
+    q_text, q_key = search_text(query), matching_key(query)
+    texts = [search_text(c) for c in choices]
+    keys = [matching_key(c) for c in choices]
+    best: dict[int, float] = {}
+    for res in process.extract(q_text, texts, scorer=fuzz.WRatio, limit=None, score_cutoff=cutoff):
+        best[res[2]] = max(best.get(res[2], 0.0), float(res[1]))
+    for res in process.extract(q_key, keys, scorer=fuzz.ratio, limit=None, score_cutoff=cutoff):
+        best[res[2]] = max(best.get(res[2], 0.0), float(res[1]))
+    for i, k in enumerate(keys):
+        if k and k == q_key:
+            best[i] = 100.0
+    ordered = sorted(best.items(), key=lambda kv: (-kv[1], len(choices[kv[0]]), kv[0]))
+    return ordered[:limit]
+
+
+__all__ = ["GREEK", "matching_key", "search_text", "display_name", "rank"]
