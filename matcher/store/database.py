@@ -1,0 +1,321 @@
+"""Opening the house library: engines, schema creation and migration, transactions.
+
+* :func:`engine_for` builds (and caches) an engine for ``--db`` / ``$MATCHER_DB``
+  (see :mod:`matcher.store.location`). On SQLite every connection gets
+  ``PRAGMA journal_mode=WAL`` (readers never block the writer),
+  ``busy_timeout`` (a writer waits for another instead of failing) and
+  ``foreign_keys=ON``; write transactions start with ``BEGIN IMMEDIATE`` so
+  that two writers queue up instead of deadlocking on a lock upgrade.
+* :func:`init_library` creates the schema (or migrates an older one) and seeds
+  the stationary-phase catalog; :func:`open_library` refuses a missing or
+  too-new library with one line.
+* :func:`transaction` is a context manager giving a :class:`Session` inside one
+  transaction; :func:`run_write` runs a function in one, retrying when the
+  database is locked or the server reports a serialization failure.
+* Every change goes through :func:`record`, which writes the audit entry and
+  bumps the library revision (once per transaction).
+
+Migrations: :data:`MIGRATIONS` is an ordered list of ``(version, description,
+function)``. A fresh library is created from the models (``create_all``) and
+stamped with the latest version; an older library gets each missing
+migration applied in order, each in its own transaction.
+"""
+
+from __future__ import annotations
+
+import json
+import time
+from contextlib import contextmanager
+from datetime import datetime, timezone
+from typing import Callable, Iterator, TypeVar
+
+from sqlalchemy import Connection, Engine, create_engine, event, inspect, select, text, update
+from sqlalchemy.exc import OperationalError, DBAPIError
+from sqlalchemy.orm import Session
+
+from ..errors import LibraryError
+from .location import mask_url, resolve
+from .models import AuditEntry, Base, LibraryState, Phase, SchemaVersion
+
+T = TypeVar("T")
+
+BUSY_TIMEOUT_MS = 30_000
+
+
+def _initial(conn: Connection) -> None:  # version 1: the models as first released
+    Base.metadata.create_all(conn)
+
+
+#: Ordered migrations: (version, description, function(connection)).
+MIGRATIONS: list[tuple[int, str, Callable[[Connection], None]]] = [
+    (1, "initial schema: compounds, synonyms, phases, observations, audit log, revision", _initial),
+]
+
+
+def latest_version() -> int:
+    return MIGRATIONS[-1][0]
+
+
+def now() -> str:
+    """Current UTC time as ISO-8601 text (seconds)."""
+    return datetime.now(timezone.utc).replace(microsecond=0).isoformat()
+
+
+_ENGINES: dict[str, Engine] = {}
+
+
+def _sqlite_setup(engine: Engine) -> None:
+    memory = engine.url.database in (None, "", ":memory:")
+
+    @event.listens_for(engine, "connect")
+    def _on_connect(dbapi_conn, _record):  # pragma: no cover - exercised by every test
+        dbapi_conn.isolation_level = None  # we emit BEGIN ourselves
+        cur = dbapi_conn.cursor()
+        cur.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
+        if not memory:
+            cur.execute("PRAGMA journal_mode = WAL")
+        cur.execute("PRAGMA foreign_keys = ON")
+        cur.close()
+
+    @event.listens_for(engine, "begin")
+    def _on_begin(conn):
+        mode = conn.get_execution_options().get("sqlite_begin", "DEFERRED")
+        conn.exec_driver_sql(f"BEGIN {mode}")
+
+
+def engine_for(db: str | None = None) -> Engine:
+    """A cached engine for a path or URL (``None``: ``$MATCHER_DB`` or the default file)."""
+    url = resolve(db)
+    eng = _ENGINES.get(url)
+    if eng is not None:
+        return eng
+    if url.startswith("sqlite"):
+        from sqlalchemy.engine import make_url
+        import os
+
+        path = make_url(url).database
+        if path and path != ":memory:":
+            os.makedirs(os.path.dirname(os.path.abspath(path)) or ".", exist_ok=True)
+        eng = create_engine(url, connect_args={"timeout": BUSY_TIMEOUT_MS / 1000})
+        _sqlite_setup(eng)
+    else:
+        eng = create_engine(url, pool_pre_ping=True)
+    _ENGINES[url] = eng
+    return eng
+
+
+def dispose_all() -> None:
+    """Close every cached engine (tests, and before copying a SQLite file)."""
+    for eng in _ENGINES.values():
+        eng.dispose()
+    _ENGINES.clear()
+
+
+def _writer(engine: Engine) -> Engine:
+    if engine.dialect.name == "sqlite":
+        return engine.execution_options(sqlite_begin="IMMEDIATE")
+    return engine
+
+
+def schema_version(engine: Engine) -> int | None:
+    """The applied schema version, or None when the database holds no library."""
+    with engine.connect() as conn:
+        if not inspect(conn).has_table("schema_version"):
+            return None
+        v = conn.execute(text("SELECT MAX(version) FROM schema_version")).scalar()
+        return int(v) if v is not None else None
+
+
+def _where(engine: Engine) -> str:
+    return mask_url(engine.url.render_as_string(hide_password=False))
+
+
+def _wrap(engine: Engine, exc: Exception) -> LibraryError:
+    from .location import mask_secrets
+
+    msg = mask_secrets(" ".join(str(getattr(exc, "orig", exc)).split()))
+    return LibraryError(f"house library {_where(engine)}: {msg}")
+
+
+def init_library(db: str | None = None) -> Engine:
+    """Create the library (schema, revision row, phase catalog) or migrate an older one; idempotent."""
+    engine = engine_for(db)
+    try:
+        current = schema_version(engine)
+        if current is None:
+            with _writer(engine).begin() as conn:
+                Base.metadata.create_all(conn)
+                stamp = now()
+                for v, desc, _fn in MIGRATIONS:
+                    conn.execute(SchemaVersion.__table__.insert().values(version=v, description=desc, applied_at=stamp))
+                conn.execute(LibraryState.__table__.insert().values(id=1, revision=0, changed_at=stamp))
+        elif current > latest_version():
+            raise LibraryError(
+                f"house library {_where(engine)} has schema version {current}, newer than this "
+                f"program knows ({latest_version()}); upgrade matcher"
+            )
+        else:
+            for v, desc, fn in MIGRATIONS:
+                if v > current:
+                    with _writer(engine).begin() as conn:
+                        fn(conn)
+                        conn.execute(SchemaVersion.__table__.insert().values(version=v, description=desc, applied_at=now()))
+        _seed_phases(engine)
+    except OperationalError as exc:
+        raise _wrap(engine, exc) from None
+    return engine
+
+
+def _seed_phases(engine: Engine) -> None:
+    from ..phases import catalog
+
+    with transaction(engine, who="matcher") as s:
+        have = set(s.scalars(select(Phase.name)))
+        for p in catalog():
+            if p.name in have:
+                continue
+            x, y, z, u, sv = p.constants or (None,) * 5
+            row = Phase(name=p.name, phase_class=p.phase_class, x=x, y=y, z=z, u=u, s=sv, source=p.source)
+            s.add(row)
+            s.flush()
+            record(s, "add-phase", f"phase:{row.id}", None, {"name": p.name, "class": p.phase_class})
+
+
+def open_library(db: str | None = None) -> Engine:
+    """The engine of an existing, current library; a one-line :class:`LibraryError` otherwise."""
+    engine = engine_for(db)
+    try:
+        v = schema_version(engine)
+    except OperationalError as exc:
+        raise _wrap(engine, exc) from None
+    if v is None:
+        raise LibraryError(f"no house library at {_where(engine)}; create one with: matcher library init")
+    if v < latest_version():
+        raise LibraryError(f"house library {_where(engine)} has schema version {v}; run: matcher library init (migrates it)")
+    if v > latest_version():
+        raise LibraryError(f"house library {_where(engine)} has schema version {v}, newer than this program; upgrade matcher")
+    return engine
+
+
+def _as_engine(target: Engine | str | None) -> Engine:
+    return target if isinstance(target, Engine) else open_library(target)
+
+
+@contextmanager
+def transaction(target: Engine | str | None = None, *, who: str | None = None, write: bool = True) -> Iterator[Session]:
+    """A session inside ONE transaction: committed on success, rolled back on any error.
+
+    ``who`` is the default actor for :func:`record`. With ``write=True`` a
+    SQLite transaction starts ``BEGIN IMMEDIATE`` (takes the write lock at once).
+    """
+    engine = _as_engine(target)
+    bind = _writer(engine) if write else engine
+    session = Session(bind=bind, expire_on_commit=False)
+    session.info["who"] = who or _default_user()
+    try:
+        with session.begin():
+            yield session
+    except OperationalError as exc:
+        if is_retryable(exc):
+            raise
+        raise _wrap(engine, exc) from None
+    finally:
+        session.close()
+
+
+def is_retryable(exc: BaseException) -> bool:
+    """True for "database is locked"/busy (SQLite) and serialization failures or deadlocks (server)."""
+    if not isinstance(exc, DBAPIError):
+        return False
+    msg = str(getattr(exc, "orig", exc)).lower()
+    if "database is locked" in msg or "database is busy" in msg:
+        return True
+    code = getattr(getattr(exc, "orig", None), "sqlstate", None) or getattr(getattr(exc, "orig", None), "pgcode", None)
+    return code in ("40001", "40P01")
+
+
+def run_write(target: Engine | str | None, fn: Callable[[Session], T], *, who: str | None = None, attempts: int = 8) -> T:
+    """Run ``fn(session)`` in one write transaction, retrying on lock or serialization failure."""
+    engine = _as_engine(target)
+    delay = 0.05
+    for attempt in range(attempts):
+        try:
+            with transaction(engine, who=who) as s:
+                return fn(s)
+        except DBAPIError as exc:
+            if not is_retryable(exc) or attempt == attempts - 1:
+                raise _wrap(engine, exc) from None
+            time.sleep(delay)
+            delay = min(delay * 2, 1.0)
+    raise AssertionError("unreachable")
+
+
+def _default_user() -> str:
+    import getpass
+
+    try:
+        return getpass.getuser()
+    except Exception:  # no user name in this environment
+        return "unknown"
+
+
+def bump_revision(session: Session) -> int:
+    """Increase the library revision once per transaction; returns the new revision."""
+    rev = session.info.get("revision")
+    if rev is None:
+        session.execute(update(LibraryState).where(LibraryState.id == 1).values(revision=LibraryState.revision + 1, changed_at=now()))
+        rev = int(session.execute(select(LibraryState.revision).where(LibraryState.id == 1)).scalar_one())
+        session.info["revision"] = rev
+    return rev
+
+
+def record(session: Session, action: str, target: str, before: dict | None, after: dict | None, *, who: str | None = None) -> None:
+    """Write one audit entry (and bump the revision) for a change made in this session."""
+    rev = bump_revision(session)
+    session.add(
+        AuditEntry(
+            at=now(),
+            who=who or session.info.get("who") or _default_user(),
+            action=action,
+            target=target,
+            before=None if before is None else json.dumps(before, sort_keys=True, ensure_ascii=False),
+            after=None if after is None else json.dumps(after, sort_keys=True, ensure_ascii=False),
+            revision=rev,
+        )
+    )
+
+
+def revision(target: Engine | str | None = None) -> int:
+    """The current library revision."""
+    engine = _as_engine(target)
+    with engine.connect() as conn:
+        return int(conn.execute(select(LibraryState.revision).where(LibraryState.id == 1)).scalar_one())
+
+
+def ddl(dialect: str = "sqlite") -> str:
+    """The CREATE statements of the current schema for a dialect (``schema/store.sql`` is this for SQLite)."""
+    from sqlalchemy.schema import CreateIndex, CreateTable
+    from sqlalchemy.dialects import postgresql, sqlite
+
+    d = {"sqlite": sqlite.dialect(), "postgresql": postgresql.dialect()}[dialect]
+    parts = [
+        "-- The house-library store of matcher: generated from matcher/store/models.py by",
+        "-- matcher.store.database.ddl(); do not edit by hand (tests/test_store_schema.py checks it).",
+        f"-- Schema version {latest_version()}.",
+        "",
+    ]
+    for table in Base.metadata.sorted_tables:
+        parts.append(str(CreateTable(table).compile(dialect=d)).strip() + ";")
+        parts.append("")
+        for idx in sorted(table.indexes, key=lambda i: i.name or ""):
+            parts.append(str(CreateIndex(idx).compile(dialect=d)).strip() + ";")
+        if table.indexes:
+            parts.append("")
+    return "\n".join(parts).rstrip() + "\n"
+
+
+__all__ = [
+    "MIGRATIONS", "latest_version", "engine_for", "dispose_all", "init_library", "open_library",
+    "transaction", "run_write", "is_retryable", "record", "bump_revision", "revision", "ddl", "now",
+    "schema_version",
+]
