@@ -184,6 +184,12 @@ def _seed_phases(engine: Engine) -> None:
 def open_library(db: str | None = None) -> Engine:
     """The engine of an existing, current library; a one-line :class:`LibraryError` otherwise."""
     engine = engine_for(db)
+    if engine.dialect.name == "sqlite":
+        import os
+
+        path = engine.url.database
+        if path and path != ":memory:" and not os.path.isfile(path):
+            raise LibraryError(f"no house library at {_where(engine)}; create one with: matcher library init")
     try:
         v = schema_version(engine)
     except OperationalError as exc:
