@@ -4,11 +4,14 @@ Shared by the JSON output and the HTML report, so both say the same thing.
 
 Rules (our own):
 
-* a **row needs review** when it carries any flag other than the purely
-  reassuring ones in :data:`REASSURING_FLAGS` (``in-window``, ``mass-match``);
-  a flag this module does not know is treated as a reason to look;
-* a **peak is flagged for review** when it has at least one candidate and
-  any of its rows needs review;
+* a **row needs review** when it carries the ``review`` flag (the screening
+  engine's own verdict, see :mod:`matcher.flags`). A table in which no row
+  carries ``review`` at all (written by an engine that does not set it) is
+  judged by a fallback rule: any flag other than the reassuring ones in
+  :data:`REASSURING_FLAGS` asks for review, a flag this module does not know
+  included;
+* a **peak is flagged for review** when any of its rows needs review (a
+  peak without candidate normally is);
 * a peak has **no candidate** when its only row has an empty rank;
 * **not in library** counts peaks whose not-in-library posterior is at least
   as large as every candidate's probability (always true without candidates);
@@ -20,7 +23,7 @@ Rules (our own):
 ...                   "flags": ["in-window;ambiguous", "in-window;ambiguous", "in-window", "no-candidate"]})
 >>> s = summarise_table(t)
 >>> (s["peaks"], s["with_candidates"], s["review"], s["no_candidate"], s["not_in_library"])
-(3, 2, 1, 1, 2)
+(3, 2, 2, 1, 2)
 >>> s["flags"]
 {'ambiguous': 1, 'in-window': 2, 'no-candidate': 1}
 """
@@ -33,7 +36,10 @@ import numpy as np
 import pandas as pd
 
 #: Flags that on their own give no reason to look again at a row.
-REASSURING_FLAGS: frozenset[str] = frozenset({"in-window", "mass-match"})
+REASSURING_FLAGS: frozenset[str] = frozenset({"in-window", "mass-match", "ions-agree", "hit-agrees"})
+
+#: The flag by which the screening engine marks a row for review.
+REVIEW_FLAG = "review"
 
 
 def split_flags(value: Any) -> list[str]:
@@ -53,13 +59,25 @@ def split_flags(value: Any) -> list[str]:
     return [str(p).strip() for p in parts if str(p).strip()]
 
 
-def row_needs_review(flags: Any) -> bool:
-    """True when a row carries a flag that asks for a second look.
+def row_needs_review(flags: Any, *, engine_marks: bool = False) -> bool:
+    """True when a row asks for a second look (``engine_marks``: judge by the ``review`` flag alone).
 
     >>> row_needs_review("in-window;mass-match"), row_needs_review("in-window;ambiguous")
     (False, True)
+    >>> row_needs_review("in-window;ambiguous", engine_marks=True), row_needs_review("review", engine_marks=True)
+    (False, True)
     """
-    return any(f not in REASSURING_FLAGS for f in split_flags(flags))
+    words = split_flags(flags)
+    if engine_marks:
+        return REVIEW_FLAG in words
+    return any(f not in REASSURING_FLAGS for f in words)
+
+
+def engine_marks_review(table: pd.DataFrame) -> bool:
+    """True when any row of ``table`` carries the ``review`` flag (the engine sets it)."""
+    if table is None or "flags" not in table or len(table) == 0:
+        return False
+    return any(REVIEW_FLAG in split_flags(u) for u in pd.unique(table["flags"].astype(str)))
 
 
 def _has_rank(series: pd.Series) -> np.ndarray:
@@ -77,13 +95,14 @@ def summarise_table(table: pd.DataFrame) -> dict[str, Any]:
     ranked = _has_rank(table["rank"]) if "rank" in table else np.zeros(len(table), bool)
     flags = table["flags"] if "flags" in table else pd.Series([""] * len(table))
     f_codes, f_uniques = pd.factorize(flags.map(lambda v: ";".join(split_flags(v))))
-    review_u = np.array([row_needs_review(u) for u in f_uniques], bool)
+    marks = any(REVIEW_FLAG in split_flags(u) for u in f_uniques)
+    review_u = np.array([row_needs_review(u, engine_marks=marks) for u in f_uniques], bool)
     row_review = review_u[f_codes] if len(f_uniques) else np.zeros(len(table), bool)
 
     with_cand = np.zeros(n_peaks, bool)
     np.logical_or.at(with_cand, codes, ranked)
     review = np.zeros(n_peaks, bool)
-    np.logical_or.at(review, codes, row_review & ranked)
+    np.logical_or.at(review, codes, row_review)
 
     prob = pd.to_numeric(table.get("probability", pd.Series(np.nan, index=table.index)), errors="coerce").to_numpy(float)
     nil = pd.to_numeric(table.get("not_in_library", pd.Series(np.nan, index=table.index)), errors="coerce").to_numpy(float)

@@ -54,6 +54,7 @@ matcher.errors.MatcherError: cannot write out.txt: unknown output type '.txt'; u
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import json
 import math
@@ -480,6 +481,19 @@ def write_xlsx(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
             f"{EXCEL_MAX_ROWS - 1} data rows; write .csv or .json instead"
         )
     wb = Workbook(write_only=True)
+    try:
+        _fill_workbook(wb, result, frame, Font, WriteOnlyCell)
+        with atomic_write(path, "wb") as fh:
+            wb.save(fh)
+    finally:
+        for sheet in wb.worksheets:  # a failed write leaves no open temporary sheet behind
+            if not getattr(sheet, "closed", True):
+                with contextlib.suppress(Exception):
+                    sheet.close()
+    return [Path(path)]
+
+
+def _fill_workbook(wb, result: ScreenResult, frame: pd.DataFrame, Font, WriteOnlyCell) -> None:
     short = wb.create_sheet("shortlist")
     short.freeze_panes = "A2"
     short.oddHeader.center.text = str(result.caution).replace("&", "&&")
@@ -498,9 +512,6 @@ def write_xlsx(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
     runs.column_dimensions["B"].width = 60
     for row in _runs_sheet_rows(result):
         runs.append(row)
-    with atomic_write(path, "wb") as fh:
-        wb.save(fh)
-    return [Path(path)]
 
 
 _WRITERS = {".csv": write_csv, ".json": write_json, ".xlsx": write_xlsx}
