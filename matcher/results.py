@@ -51,6 +51,7 @@ class RunResult:
     calibration: dict[str, Any] | None = None   # the calibration document used (None when the table had ri)
     correction: dict[str, Any] | None = None    # adaptive fit, see matcher.adaptive
     measurement_sd: float | None = None          # index scatter assumed for this run
+    run_model: dict[str, Any] = field(default_factory=dict)  # fitted in-library share and scatter, see matcher.run_model
     notices: list[str] = field(default_factory=list)
     peak_count: int = 0
 

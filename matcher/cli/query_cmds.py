@@ -1,0 +1,82 @@
+"""``matcher query``: the ranked shortlist for one unknown index."""
+
+from __future__ import annotations
+
+import json
+from typing import Annotated, List, Optional
+
+import typer
+
+from .. import CAUTION
+from .common import DbOption, JsonFlag, say
+
+EXAMPLE = """
+Example: a peak at index 1031 on a 5 % phenyl column with molecular ion 136
+
+    matcher query 1031 --class slightly-polar --mol-ion 136
+
+    matcher query 1031 --class slightly-polar --ions "68 93 136" --hit limonene --hit-score 88 --json
+"""
+
+
+def register(app: typer.Typer) -> None:
+    @app.command(
+        "query",
+        help="Rank library candidates for one retention index inside the class's tolerance window.\n\n"
+        + CAUTION,
+        epilog=EXAMPLE,
+    )
+    def query_cmd(
+        ri: Annotated[float, typer.Argument(help="Retention index of the unknown.")],
+        phase_class: Annotated[str, typer.Option("--class", help="Polarity class of the column: nonpolar, slightly-polar, mid-polar, polar, highly-polar.")],
+        window: Annotated[Optional[float], typer.Option(help="Half-width of the window in index units (default: the class default).")] = None,
+        window_percent: Annotated[Optional[float], typer.Option("--window-percent", help="Half-width as a percentage of the index instead.")] = None,
+        mol_ion: Annotated[Optional[float], typer.Option("--mol-ion", help="Nominal m/z of the molecular ion.")] = None,
+        ions: Annotated[Optional[List[str]], typer.Option(help="Key ions seen in the spectrum, e.g. --ions '93 136' (repeatable).")] = None,
+        hit: Annotated[Optional[str], typer.Option(help="Name proposed by your spectral search.")] = None,
+        hit_score: Annotated[Optional[float], typer.Option("--hit-score", help="Score of that hit, 0-100.")] = None,
+        top: Annotated[Optional[int], typer.Option(help="Show at most this many candidates.")] = None,
+        fallback: Annotated[bool, typer.Option("--fallback", help="Also look in the neighbouring class when nothing good is found.")] = False,
+        homologues: Annotated[bool, typer.Option("--homologues", help="Propose missing members of homologous series (flagged predicted).")] = False,
+        sd: Annotated[Optional[float], typer.Option("--sd", help="Index scatter of your measurement (default: 0.3 x the class window).")] = None,
+        db: DbOption = None,
+        as_json: JsonFlag = False,
+    ) -> None:
+        from ..errors import MatcherError
+        from ..query import query
+
+        ion_list: list[int] = []
+        for chunk in ions or []:
+            for tok in chunk.replace(";", " ").replace(",", " ").split():
+                try:
+                    ion_list.append(int(round(float(tok))))
+                except ValueError:
+                    raise MatcherError(f"--ions: not an m/z value: {tok!r}") from None
+        if top is not None and top < 1:
+            raise MatcherError("--top must be at least 1")
+        if hit_score is not None and not (0 <= hit_score <= 100):
+            raise MatcherError("--hit-score must be between 0 and 100")
+        doc = query(ri, phase_class, db=db, window=window, window_percent=window_percent, mol_ion=mol_ion,
+                    ions=ion_list or None, hit=hit, hit_score=hit_score, top=top, fallback=fallback,
+                    homologues=homologues, measurement_sd=sd)
+        if as_json:
+            say(json.dumps(doc, indent=2, ensure_ascii=False))
+            return
+        say(render(doc))
+
+
+def render(doc: dict) -> str:
+    from ..textable import format_table
+
+    w = doc["window"]
+    head = (f"index {doc['ri']:g} on {doc['class']}, window ±{w['half_width']:g}; "
+            f"{doc['candidates_in_window']} candidate(s) in window")
+    if not doc["candidates"]:
+        body = "no library entry inside the window (not in library: 1.00)"
+    else:
+        rows = [[c["rank"], c["name"], c["library_ri"], c["delta_ri"], round(c["probability"], 3), ";".join(c["flags"])]
+                for c in doc["candidates"]]
+        body = format_table(["rank", "name", "library index", "deviation", "probability", "flags"], rows, align="rlrrrl")
+        body += f"\nnot in library: {doc['not_in_library']:.3f}"
+    notes = "".join(f"\nnote: {n}" for n in doc["notes"])
+    return f"{head}\n\n{body}{notes}\n\n{doc['caution']}"

@@ -1,0 +1,120 @@
+"""The flag vocabulary: short words that say what to look at, each with an exact rule.
+
+Flags are written semicolon-separated in the ``flags`` column. Candidate
+flags describe one candidate; peak flags are repeated on every row of the
+peak; run flags come from comparing peaks of the same run.
+
+=================  =======  ===================================================================
+flag               level    rule
+=================  =======  ===================================================================
+in-window          cand.    the library index lies inside the home-class window, |Δ| ≤ w
+window-edge        cand.    0.7·w < |Δ| ≤ w (or beyond w for a cross-class candidate)
+single-record      cand.    the library entry rests on one observation
+mass-match         cand.    the molecular ion equals the nominal mass of the candidate's formula
+mass-mismatch      cand.    the molecular ion differs from that nominal mass
+no-formula         cand.    a molecular ion was given but the candidate has no formula
+ions-agree         cand.    at least half of the candidate's key ions are among the peak's ions
+ions-disagree      cand.    fewer than half of them are
+hit-agrees         cand.    the spectral-search hit names this candidate (similarity ≥ 0.9)
+cross-class        cand.    found by the fallback in the neighbouring polarity class
+predicted          cand.    a homologue prediction, not a measured library value
+extrapolated       peak     the peak's index lies outside the ladder (computed from the nearest pair)
+ambiguous          peak     the second candidate has at least half the probability of the first
+likely-unlisted    peak     not_in_library ≥ 0.5
+no-candidate       peak     no library entry inside the window
+repeated-top       run      the same compound ranks first for another peak more than 2·w away
+order-break        run      two ranked-first members of one homologous series elute out of order
+review             peak     any of: ambiguous, likely-unlisted, extrapolated, no-candidate, top
+                            probability < 0.5, or a top candidate that is cross-class, predicted
+                            or mass-mismatch, or a run flag
+=================  =======  ===================================================================
+
+>>> combine(np.array([[True, False], [True, True], [False, False]]), ["in-window", "ambiguous"]).tolist()
+['in-window', 'in-window;ambiguous', '']
+"""
+
+from __future__ import annotations
+
+from typing import Sequence
+
+import numpy as np
+
+VOCABULARY: tuple[str, ...] = (
+    "in-window", "window-edge", "single-record", "mass-match", "mass-mismatch", "no-formula",
+    "ions-agree", "ions-disagree", "hit-agrees", "cross-class", "predicted",
+    "extrapolated", "ambiguous", "likely-unlisted", "no-candidate",
+    "repeated-top", "order-break", "review",
+)
+
+EDGE_FRACTION = 0.7
+AMBIGUOUS_RATIO = 0.5
+UNLISTED_AT = 0.5
+REVIEW_BELOW = 0.5
+
+
+def combine(masks: np.ndarray, names: Sequence[str]) -> np.ndarray:
+    """Join boolean columns (rows × flags) into 'a;b' strings, fast for many rows."""
+    masks = np.asarray(masks, dtype=bool)
+    if masks.ndim == 1:
+        masks = masks[:, None]
+    if masks.shape[0] == 0:
+        return np.zeros(0, dtype=object)
+    weights = (1 << np.arange(masks.shape[1], dtype=np.int64))
+    codes = masks.astype(np.int64) @ weights
+    uniq, inv = np.unique(codes, return_inverse=True)
+    text = np.array([";".join(n for i, n in enumerate(names) if (c >> i) & 1) for c in uniq], dtype=object)
+    return text[inv]
+
+
+def row_flags(cols: dict, *, window, mass_state, ions_state, hit_agrees, extrapolated, top1, top2,
+              not_in_library, has_candidate) -> np.ndarray:
+    """Flags of every shortlist row (see the table in the module doc)."""
+    n = len(cols["peak"])
+    cand = np.asarray(has_candidate, dtype=bool)
+    dev = np.abs(np.asarray(cols["delta_ri"], dtype=float))
+    cross = np.asarray(cols["cross_class"], dtype=bool) & cand
+    pred = np.asarray(cols["predicted"], dtype=bool) & cand
+    with np.errstate(invalid="ignore"):
+        in_window = cand & ~cross & (dev <= window)
+        edge = cand & (dev > EDGE_FRACTION * window)
+        ions_ok = np.nan_to_num(ions_state, nan=-1.0)
+    extrap = np.zeros(n, dtype=bool) if extrapolated is None else np.asarray(extrapolated, dtype=bool)
+    ambiguous = cand & (top2 > 0) & (top2 >= AMBIGUOUS_RATIO * top1)
+    unlisted = cand & (not_in_library >= UNLISTED_AT)
+    no_cand = ~cand
+    mass_mis = cand & (mass_state == -1)
+
+    # peak-level review: needs the top row's attributes, spread to all rows of the peak
+    peak = np.asarray(cols["peak"], dtype=np.int64)
+    top_row = cand & (np.asarray(cols["rank"]) == 1)
+    size = int(peak.max()) + 1 if n else 0
+    bad_top = np.zeros(size, dtype=bool)
+    bad_top[peak[top_row]] = (cross | pred | mass_mis)[top_row]
+    review = ambiguous | unlisted | extrap | no_cand | (cand & (top1 < REVIEW_BELOW)) | bad_top[peak]
+
+    masks = np.column_stack([
+        in_window, edge, cand & ~pred & (np.asarray(cols["library_n"]) == 1),
+        cand & (mass_state == 1), mass_mis, cand & (mass_state == 0),
+        cand & (ions_ok >= 0.5), cand & (ions_ok >= 0) & (ions_ok < 0.5), cand & hit_agrees,
+        cross, pred, extrap, ambiguous, unlisted, no_cand,
+        np.zeros(n, bool), np.zeros(n, bool), review,
+    ])
+    return combine(masks, VOCABULARY)
+
+
+def add_flag(flags: np.ndarray, mask: np.ndarray, name: str, *, review: bool = True) -> np.ndarray:
+    """Append ``name`` (and ``review``) to the flags of the rows in ``mask``, keeping vocabulary order."""
+    out = np.asarray(flags, dtype=object).copy()
+    idx = np.flatnonzero(mask)
+    for i in idx:
+        present = set(filter(None, str(out[i]).split(";")))
+        present.add(name)
+        if review:
+            present.add("review")
+        out[i] = ";".join(f for f in VOCABULARY if f in present)
+    return out
+
+
+def has_flag(flags: np.ndarray, name: str) -> np.ndarray:
+    """Boolean mask of rows carrying ``name``."""
+    return np.array([name in str(f).split(";") for f in flags], dtype=bool)

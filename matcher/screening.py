@@ -1,0 +1,401 @@
+"""Screening whole runs: every peak of every run shortlisted against the house library.
+
+The importable form of ``matcher screen``. The library is read once
+(:func:`matcher.store.snapshot_loader.load_snapshot`) and prepared once per
+class; each run's peaks are converted to indices, scored in chunks of
+:data:`CHUNK` peaks on whole arrays, and given run-level flags. With
+``adaptive=True`` the run's confident matches drive the correction of
+Zenkevich (see :mod:`matcher.adaptive`) and the run's own index scatter is
+estimated (see :mod:`matcher.run_model`).
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import os
+from dataclasses import dataclass
+from typing import Callable, Sequence
+
+import numpy as np
+
+from . import CAUTION, __version__
+from . import flags as F
+from .adaptive import ANCHOR_PROBABILITY, LONE_ANCHOR_PROBABILITY, MAX_SLOPE, apply_correction, enough_anchors, fit_correction
+from .candidates import half_widths, window_description
+from .classes import check_class
+from .errors import InputError, MatcherError
+from .evidence import DEFAULT_MEASUREMENT_SD, DEFAULT_PRIOR_IN_LIBRARY, Model, PeakHints
+from .hints import ion_masks
+from .results import DETAIL_COLUMNS, SHORTLIST_COLUMNS, RunResult, ScreenResult
+from .shortlist import PeakInput, PreparedClass, Shortlist, neighbour_of, prepare, shortlist
+from .snapshot import LibrarySnapshot
+
+CHUNK = 50_000
+MAX_FIT_PEAKS = 20_000  # peaks used to fit the run model (a seeded sample beyond this)
+
+
+@dataclass
+class RunInput:
+    """One run to screen: where its peaks come from and how to turn times into indices."""
+
+    peaks_path: str
+    calibration_path: str | None = None
+    ladder_path: str | None = None
+
+
+def plan_runs(peak_files: Sequence[str], calibration: Sequence[str] | str | None = None,
+              ladder: Sequence[str] | str | None = None) -> list[RunInput]:
+    """Pair peak files with calibrations or ladders: one for all runs, or one per run in order."""
+    cals = [calibration] if isinstance(calibration, str) else list(calibration or [])
+    lads = [ladder] if isinstance(ladder, str) else list(ladder or [])
+    if cals and lads:
+        raise MatcherError("give either --calibration or --ladder, not both")
+    given = cals or lads
+    if len(given) not in (0, 1, len(peak_files)):
+        raise MatcherError(
+            f"{len(given)} calibration/ladder files for {len(peak_files)} runs: give one for all runs or one per run, in the same order")
+    runs = []
+    for k, p in enumerate(peak_files):
+        g = given[0] if len(given) == 1 else (given[k] if given else None)
+        runs.append(RunInput(p, g if cals else None, g if lads else None))
+    return runs
+
+
+def _calibrate(run: RunInput, mode: str, dead_time: float | None, rt_unit: str | None):
+    from .calibration import Calibration
+
+    if run.calibration_path:
+        return Calibration.load(run.calibration_path)
+    if run.ladder_path:
+        return Calibration.from_ladder_file(run.ladder_path, mode=mode, dead_time=dead_time, rt_unit=rt_unit)
+    return None
+
+
+def _hints_for_fit(peaks: PeakInput) -> PeakHints:
+    masks = ion_masks(peaks.ions) if peaks.ions is not None and any(len(i) for i in peaks.ions) else None
+    return PeakHints(np.asarray(peaks.mol_ion, float) if peaks.mol_ion is not None else np.full(len(peaks), np.nan), masks)
+
+
+def _subset(peaks: PeakInput, idx: np.ndarray) -> PeakInput:
+    return PeakInput(
+        np.asarray(peaks.ri)[idx],
+        None if peaks.mol_ion is None else np.asarray(peaks.mol_ion)[idx],
+        None if peaks.ions is None else [peaks.ions[i] for i in idx],
+        None if peaks.hit is None else np.asarray(peaks.hit, dtype=object)[idx],
+        None if peaks.hit_score is None else np.asarray(peaks.hit_score)[idx],
+        None if peaks.extrapolated is None else np.asarray(peaks.extrapolated)[idx],
+    )
+
+
+def fit_run_model(home: PreparedClass, peaks: PeakInput, model: Model, w: np.ndarray, *, estimate_scatter: bool) -> tuple[Model, dict]:
+    """The run's in-library share (and scatter with ``estimate_scatter``) from its own peaks."""
+    from .run_model import fit
+
+    idx = np.flatnonzero(np.isfinite(np.asarray(peaks.ri, float)))
+    if len(idx) > MAX_FIT_PEAKS:
+        idx = np.sort(np.random.default_rng(20261201).choice(idx, MAX_FIT_PEAKS, replace=False))
+    sub = _subset(peaks, idx)
+    return fit(sub.ri, home.entries, home.compounds, home.background, model, w[idx],
+               hints=_hints_for_fit(sub), compound_ion_masks=home.ion_masks, estimate_scatter=estimate_scatter)
+
+
+def shortlist_chunked(home, peaks: PeakInput, model: Model, *, window, window_percent, top, neighbour,
+                      progress: Callable[[int], None] | None = None) -> Shortlist:
+    """:func:`matcher.shortlist.shortlist` over chunks of peaks, results joined."""
+    n = len(peaks)
+    if n <= CHUNK:
+        sl = shortlist(home, peaks, model, window=window, window_percent=window_percent, top=top, neighbour=neighbour)
+        if progress:
+            progress(n)
+        return sl
+    parts = []
+    for start in range(0, n, CHUNK):
+        idx = np.arange(start, min(n, start + CHUNK))
+        part = shortlist(home, _subset(peaks, idx), model, window=window, window_percent=window_percent, top=top, neighbour=neighbour)
+        part.columns["peak"] = part.columns["peak"] + start
+        parts.append(part)
+        if progress:
+            progress(len(idx))
+    cols = {k: np.concatenate([p.columns[k] for p in parts]) for k in parts[0].columns}
+    return Shortlist(
+        cols,
+        np.concatenate([p.not_in_library for p in parts]),
+        np.concatenate([p.top_probability for p in parts]),
+        np.concatenate([p.candidate_count for p in parts]),
+        np.concatenate([p.window for p in parts]),
+        sorted({n for p in parts for n in p.notes}),
+    )
+
+
+def select_anchors(sl: Shortlist, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, list[str]]:
+    """Confident matches of a first pass: (peak positions, reference indices, names)."""
+    c = sl.columns
+    top = c["rank"] == 1
+    flags = c["flags"]
+    alone = sl.candidate_count[c["peak"]] == 1
+    confident = (c["probability"] >= ANCHOR_PROBABILITY) | (alone & (c["probability"] >= LONE_ANCHOR_PROBABILITY))
+    ok = top & confident & ~c["cross_class"] & ~c["predicted"]
+    ok &= ~F.has_flag(flags, "ambiguous") & ~F.has_flag(flags, "mass-mismatch")
+    rows = np.flatnonzero(ok)
+    return c["peak"][rows], c["library_ri"][rows], [str(v) for v in c["name"][rows]]
+
+
+def _anchors_from_file(path: str, label: str, peak_ids: np.ndarray, snapshot: LibrarySnapshot, home: PreparedClass):
+    """User-named anchors: CSV with ``peak`` and ``name`` (a library compound) or ``ri`` (reference index)."""
+    from .names import matching_key
+    from .tables import load_table, map_headers, numbers, texts
+
+    raw = load_table(path, what="anchors file")
+    cols = map_headers(raw, {"peak": ["peak id", "peak #", "id"], "name": ["compound"], "ri": ["reference index", "index"],
+                             "run": ["file", "sample"]})
+    if "peak" not in cols or not ({"name", "ri"} & set(cols)):
+        raise InputError("needs a 'peak' column and a 'name' or 'ri' column", file=path)
+    pk = texts(raw, cols["peak"], required=True)
+    names = texts(raw, cols["name"]) if "name" in cols else [""] * len(pk)
+    ref = numbers(raw, cols["ri"], required=False, positive=True) if "ri" in cols else np.full(len(pk), np.nan)
+    runs = texts(raw, cols["run"]) if "run" in cols else [""] * len(pk)
+    by_key = {}
+    e = home.entries
+    for k in range(len(e)):
+        if not e.predicted[k]:
+            by_key[matching_key(str(home.compounds.name[e.compound[k]]))] = (float(e.ri[k]), str(home.compounds.name[e.compound[k]]))
+    pos_of = {str(p): i for i, p in enumerate(peak_ids)}
+    out_pos, out_ref, out_name = [], [], []
+    for r, (p, nm, rv, rn) in enumerate(zip(pk, names, ref, runs), start=1):
+        if rn and rn != label:
+            continue
+        if p not in pos_of:
+            continue
+        if np.isfinite(rv):
+            out_pos.append(pos_of[p]); out_ref.append(float(rv)); out_name.append(nm or f"anchor {p}")
+            continue
+        hitk = by_key.get(matching_key(nm))
+        if hitk is None:
+            raise InputError(f"{nm!r} is not in the library's {home.phase_class} class; give its 'ri' instead",
+                             file=path, row=r, line=raw.line_of(r), column=cols.get("name"))
+        out_pos.append(pos_of[p]); out_ref.append(hitk[0]); out_name.append(hitk[1])
+    return np.array(out_pos, dtype=np.int64), np.array(out_ref, dtype=float), out_name
+
+
+def run_flags(sl: Shortlist, x: np.ndarray, compounds) -> np.ndarray:
+    """Run-level consistency flags: repeated-top and order-break (see :mod:`matcher.flags`)."""
+    c = sl.columns
+    flags = c["flags"]
+    top = np.flatnonzero((c["rank"] == 1) & (c["compound"] >= 0))
+    if len(top) < 2:
+        return flags
+    peak = c["peak"][top]
+    comp = c["compound"][top]
+    xi = x[peak]
+    w = sl.window[peak]
+    bad_peaks: set[int] = set()
+    order = np.lexsort((xi, comp))
+    comp_s, x_s, w_s, p_s = comp[order], xi[order], w[order], peak[order]
+    same = comp_s[1:] == comp_s[:-1]
+    # within each compound group, any two peaks farther apart than 2·w: flag the group's extremes
+    for g in np.unique(comp_s[1:][same]):
+        sel = comp_s == g
+        if x_s[sel].max() - x_s[sel].min() > 2 * w_s[sel].max():
+            bad_peaks.update(int(v) for v in p_s[sel])
+    repeated = np.isin(c["peak"], list(bad_peaks))
+    flags = F.add_flag(flags, repeated, "repeated-top")
+
+    series = compounds.series[comp]
+    carb = compounds.carbons[comp]
+    broken: set[int] = set()
+    for label in {s for s in series if s}:
+        sel = np.flatnonzero((series == label) & (carb > 0))
+        if len(sel) < 2:
+            continue
+        o = sel[np.argsort(xi[sel], kind="stable")]
+        cs = carb[o]
+        inv = np.flatnonzero(cs[1:] < cs[:-1])
+        for i in inv:
+            broken.update((int(peak[o[i]]), int(peak[o[i + 1]])))
+    if broken:
+        flags = F.add_flag(flags, np.isin(c["peak"], list(broken)), "order-break")
+    return flags
+
+
+def _table(sl: Shortlist, label: str, phase_class: str, peak_ids, rt, x, x_raw, hints: PeakInput):
+    import pandas as pd
+
+    c = sl.columns
+    p = c["peak"]
+    rank = pd.array(np.where(c["rank"] > 0, c["rank"], 0), dtype="Int64")
+    rank[c["rank"] == 0] = pd.NA
+    def opt(a, fill=np.nan):
+        return np.full(len(p), fill, dtype=object if isinstance(fill, str) else float) if a is None else np.asarray(a)[p]
+    data = {
+        "peak": np.asarray(peak_ids, dtype=object)[p],
+        "rt": np.asarray(rt, dtype=float)[p],
+        "ri": x[p],
+        "class": phase_class,
+        "rank": rank,
+        "name": c["name"],
+        "cas": c["cas"],
+        "library_ri": c["library_ri"],
+        "delta_ri": c["delta_ri"],
+        "score": c["score"],
+        "probability": c["probability"],
+        "flags": c["flags"],
+        "run": label,
+        "ri_measured": x_raw[p],
+        "not_in_library": sl.not_in_library[p],
+        "formula": c["formula"],
+        "nominal_mass": c["nominal_mass"],
+        "library_sd": c["library_sd"],
+        "library_n": pd.array(np.where(c["rank"] > 0, c["library_n"], 0), dtype="Int64"),
+        "mol_ion": opt(hints.mol_ion),
+        "hit": opt(hints.hit, ""),
+        "hit_score": opt(hints.hit_score),
+        "ev_index": c["ev_index"],
+        "ev_mol_ion": c["ev_mol_ion"],
+        "ev_ions": c["ev_ions"],
+        "ev_hit": c["ev_hit"],
+    }
+    df = pd.DataFrame(data)
+    df.loc[df["rank"].isna(), "library_n"] = pd.NA
+    return df[list(SHORTLIST_COLUMNS) + list(DETAIL_COLUMNS)]
+
+
+def screen_run(home: PreparedClass, peaks: PeakInput, base_sd: float, *, window=None, window_percent=None, top=None,
+               neighbour: PreparedClass | None = None, adaptive: bool = False, user_anchors=None,
+               estimate_scatter: bool = True, peak_ids: np.ndarray | None = None, progress=None):
+    """Screen one run's peaks (indices already computed); returns
+    (shortlist, corrected indices, model, run-model info, correction or None, notices)."""
+    x_raw = np.asarray(peaks.ri, dtype=float)
+    ids = np.arange(1, len(x_raw) + 1).astype(str) if peak_ids is None else np.asarray(peak_ids)
+    notices: list[str] = []
+    w = half_widths(x_raw, home.phase_class, window, window_percent)
+    model, info = fit_run_model(home, peaks, Model(base_sd, DEFAULT_PRIOR_IN_LIBRARY), w, estimate_scatter=False)
+    correction = None
+    x = x_raw
+    if adaptive:
+        if user_anchors is not None:
+            a_pos, a_ref, a_names = user_anchors
+            source = "anchors file"
+        else:
+            first = shortlist_chunked(home, peaks, model, window=window, window_percent=window_percent, top=None, neighbour=None)
+            a_pos, a_ref, a_names = select_anchors(first, x_raw)
+            source = "confident matches"
+        ok, why = enough_anchors(x_raw[a_pos], x_raw)
+        correction = {"applied": False, "method": "theil-sen", "source": source, "a": None, "b": None,
+                      "scatter": None, "notice": why, "anchors": []}
+        if ok:
+            fit = fit_correction(x_raw[a_pos], a_ref)
+            if abs(fit["a"]) > MAX_SLOPE:
+                correction["notice"] = f"adaptive correction refused: fitted slope {fit['a']:.3f} is implausible for run drift"
+            else:
+                x = apply_correction(x_raw, fit)
+                correction.update(applied=True, a=fit["a"], b=fit["b"], scatter=fit["scatter"],
+                                  notice=f"corrected with {len(a_pos)} anchors from {source}")
+            correction["anchors"] = [
+                {"peak": str(ids[p]), "name": n, "ri_measured": float(x_raw[p]), "ri_reference": float(r),
+                 "residual": float(res)}
+                for p, n, r, res in zip(a_pos, a_names, a_ref, fit["residuals"])
+            ]
+        notices.append(correction["notice"])
+        peaks = PeakInput(x, peaks.mol_ion, peaks.ions, peaks.hit, peaks.hit_score, peaks.extrapolated)
+        w = half_widths(x, home.phase_class, window, window_percent)
+        model, info = fit_run_model(home, peaks, Model(base_sd, DEFAULT_PRIOR_IN_LIBRARY), w,
+                                    estimate_scatter=estimate_scatter)
+    if info.get("notice"):
+        notices.append(info["notice"])
+    sl = shortlist_chunked(home, peaks, model, window=window, window_percent=window_percent, top=top,
+                           neighbour=neighbour, progress=progress)
+    notices.extend(sl.notes)
+    sl.columns["flags"] = run_flags(sl, x, home.compounds)
+    return sl, x, model, info, correction, notices
+
+
+def screen(
+    peak_files: Sequence[str],
+    phase_class: str,
+    *,
+    db: str | None = None,
+    snapshot: LibrarySnapshot | None = None,
+    calibration: Sequence[str] | str | None = None,
+    ladder: Sequence[str] | str | None = None,
+    mode: str = "programmed",
+    dead_time: float | None = None,
+    rt_unit: str | None = None,
+    header_map: dict[str, str] | None = None,
+    window: float | None = None,
+    window_percent: float | None = None,
+    top: int | None = None,
+    fallback: bool = False,
+    homologues: bool = False,
+    adaptive: bool = False,
+    anchors: str | None = None,
+    measurement_sd: float | None = None,
+    progress: Callable[[int], None] | None = None,
+) -> ScreenResult:
+    """Screen runs against one class of the house library; see the module doc."""
+    from .peaks import read_peaks
+
+    phase_class = check_class(phase_class)
+    if top is not None and top < 1:
+        raise MatcherError("--top must be at least 1")
+    plan = plan_runs(list(peak_files), calibration, ladder)
+    if not plan:
+        raise MatcherError("no peak file given")
+    # read and convert every run before any heavy work, so a bad file fails fast
+    loaded = []
+    for run in plan:
+        table = read_peaks(run.peaks_path, rt_unit=rt_unit, overrides=header_map)
+        cal = None
+        extrap = np.zeros(len(table.peak), dtype=bool)
+        if table.has_ri:
+            x = np.asarray(table.ri, dtype=float)
+        else:
+            cal = _calibrate(run, mode, dead_time, rt_unit)
+            if cal is None:
+                raise MatcherError(f"{run.peaks_path}: the table has no 'ri' column; give --calibration CAL.json or --ladder LADDER.csv")
+            x, extrap = cal.convert(np.asarray(table.rt, dtype=float))
+        loaded.append((run, table, cal, np.asarray(x, dtype=float), np.asarray(extrap, dtype=bool)))
+
+    if snapshot is None:
+        from .store.snapshot_loader import load_snapshot
+
+        snapshot = load_snapshot(db)
+    home = prepare(snapshot, phase_class, homologues=homologues)
+    neighbour = neighbour_of(snapshot, phase_class) if fallback else None
+    base_sd = DEFAULT_MEASUREMENT_SD[phase_class] if measurement_sd is None else float(measurement_sd)
+
+    runs: list[RunResult] = []
+    labels_seen: dict[str, int] = {}
+    for run, table, cal, x_raw, extrap in loaded:
+        label = os.path.splitext(os.path.basename(run.peaks_path))[0]
+        if label in labels_seen:
+            labels_seen[label] += 1
+            label = f"{label}-{labels_seen[label]}"
+        else:
+            labels_seen[label] = 1
+        peaks = PeakInput(x_raw, table.mol_ion, table.ions, table.hit, table.hit_score, extrap)
+        user_anchors = None
+        if anchors:
+            user_anchors = _anchors_from_file(anchors, label, np.asarray(table.peak), snapshot, home)
+        outcome = screen_run(home, peaks, base_sd, window=window, window_percent=window_percent, top=top,
+                             neighbour=neighbour, adaptive=adaptive or bool(anchors), user_anchors=user_anchors,
+                             estimate_scatter=measurement_sd is None, peak_ids=np.asarray(table.peak), progress=progress)
+        sl, x, model, info, correction, notices = outcome
+        df = _table(sl, label, phase_class, table.peak, table.rt, x, x_raw, peaks)
+        runs.append(RunResult(
+            source=run.peaks_path, label=label, phase_class=phase_class,
+            window=window_description(phase_class, window, window_percent),
+            table=df, calibration=None if cal is None else cal.to_dict(), correction=correction,
+            measurement_sd=model.measurement_sd, notices=notices, peak_count=len(table.peak), run_model=info,
+        ))
+
+    return ScreenResult(
+        runs=runs,
+        library={"location": snapshot.source, "revision": snapshot.revision,
+                 "entries": len(home.entries), "compounds": len(snapshot.compounds), "predicted": home.predicted},
+        created=_dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat(),
+        tool_version=__version__,
+        caution=CAUTION,
+        settings={"class": phase_class, "top": top, "fallback": fallback, "homologues": homologues,
+                  "adaptive": adaptive, "anchors": anchors, "window": window, "window_percent": window_percent,
+                  "measurement_sd": measurement_sd},
+    )
