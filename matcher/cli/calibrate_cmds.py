@@ -1,0 +1,176 @@
+"""``matcher calibrate`` (fit and check a ladder) and ``matcher ri`` (times to indices)."""
+
+from __future__ import annotations
+
+from typing import Annotated, List, Optional
+
+import typer
+
+from .common import JsonFlag, note, say
+
+CALIBRATE_EXAMPLE = """\b
+Example (the distillery lab's n-alkane ladder, programmed oven):
+    matcher calibrate alkanes_2024-05-14.csv -o cal.json
+\b
+Isothermal run, hold-up time by least squares (the default there):
+    matcher calibrate alkanes_iso.csv --mode isothermal -o cal_iso.json
+\b
+Ladder file (times in minutes unless --rt-unit s or the header says [s]):
+    rt,carbons,name
+    4.12,8,octane
+    6.30,9,nonane
+"""
+
+RI_EXAMPLE = """\b
+Example: convert three times, or a whole peak table to a CSV file
+    matcher ri --calibration cal.json 5.21 7.80 12.03
+    matcher ri --calibration cal.json --peaks run_0514.csv -o run_0514_ri.csv
+\b
+Output columns: peak, rt, ri, extrapolated (true for times outside the ladder,
+computed from the nearest pair of standards).
+"""
+
+
+def _parse_map(items: list[str] | None) -> dict[str, str]:
+    from ..errors import MatcherError
+
+    out: dict[str, str] = {}
+    for item in items or []:
+        if "=" not in item:
+            raise MatcherError(f"--map wants column=header, got {item!r}")
+        k, v = item.split("=", 1)
+        out[k.strip()] = v.strip()
+    return out
+
+
+def _choice(value: str | None, allowed: tuple[str, ...], option: str) -> str | None:
+    from ..errors import MatcherError
+
+    if value is None:
+        return None
+    v = value.strip().lower()
+    if v not in allowed:
+        raise MatcherError(f"{option} must be one of {', '.join(allowed)}; got {value!r}")
+    return v
+
+
+def qc_table(cal) -> str:
+    """The ladder's QC table, one row per standard."""
+    from ..textable import format_table
+
+    qc = cal.qc
+    ratio = [None] + list(qc["spacing_ratio"])
+    rows = []
+    for k in range(len(cal.rt)):
+        fit = qc["fit_residual"][k] if qc["fit_residual"] else None
+        rows.append([cal.names[k], round(float(cal.rt[k]), 4), round(float(cal.index[k]), 2),
+                     None if ratio[k] is None else round(ratio[k], 2),
+                     None if qc["loo_residual"][k] is None else round(qc["loo_residual"][k], 1),
+                     None if fit is None else round(fit, 2), qc["flags"][k]])
+    headers = ["standard", "time (min)", "index", "spacing vs trend", "leave-one-out dev.", "line dev.", "check"]
+    if cal.mode != "isothermal":
+        headers.pop(5)
+        rows = [r[:5] + r[6:] for r in rows]
+        align = "lrrrrl"
+    else:
+        align = "lrrrrrl"
+    return format_table(headers, rows, align=align)
+
+
+def summary(cal) -> str:
+    from ..calibration import FORMULA
+    from ..series import SERIES
+
+    lo, hi = cal.index_range
+    t0, t1 = cal.rt_range
+    lines = [
+        f"series: {SERIES[cal.series].label} ({SERIES[cal.series].scale}); {len(cal.rt)} standards",
+        f"mode: {cal.mode} ({FORMULA[cal.mode]})",
+        f"covers index {lo:g} to {hi:g} ({t0:g} to {t1:g} min); outside that, indices are extrapolated and flagged",
+        f"ladder times in {cal.source.get('rt_unit', 'min')}, decided by {cal.source.get('rt_unit_source', '')}",
+    ]
+    if cal.holdup is not None:
+        use = "" if cal.holdup_used else " (recorded only; it cancels in programmed mode)"
+        lines.append(f"hold-up time: {cal.holdup.value:.4f} min, method {cal.holdup.method}: {cal.holdup.detail}{use}")
+    for gap in cal.qc.get("gaps", []):
+        lines.append(f"gap: {gap['from']:g} to {gap['to']:g} (no {', '.join(gap['missing'])})")
+    return "\n".join(lines)
+
+
+def register(app: typer.Typer) -> None:
+    @app.command(
+        "calibrate",
+        help="Fit and check a reference ladder (n-alkanes, FAMEs, PAHs or your own series), print its QC table "
+        "and save the calibration for 'matcher ri' and 'matcher screen'. A ladder whose times go backwards, with "
+        "duplicate or fractional chain lengths, or with fewer than two standards is refused and nothing is written.",
+        epilog=CALIBRATE_EXAMPLE,
+    )
+    def calibrate_cmd(
+        ladder: Annotated[str, typer.Argument(help="Ladder CSV (or .xlsx): rt plus carbons or index, optional name.")],
+        output: Annotated[str, typer.Option("-o", "--output", help="Where to save the calibration (JSON).")],
+        mode: Annotated[str, typer.Option("--mode", help="programmed (van den Dool & Kratz) or isothermal (Kovats).")] = "programmed",
+        dead_time: Annotated[Optional[float], typer.Option("--dead-time", help="Hold-up time in minutes, if you know it.")] = None,
+        marker: Annotated[Optional[float], typer.Option("--marker", help="Time in minutes of an unretained marker peak (e.g. methane).")] = None,
+        holdup: Annotated[Optional[str], typer.Option("--holdup", help="Hold-up method: given, marker, peterson-hirsch or fit (isothermal default: fit, unless --dead-time/--marker).")] = None,
+        series: Annotated[Optional[str], typer.Option("--series", help="Reference series: alkanes, fame, pah or custom (default: alkanes with a carbons column, custom with an index column).")] = None,
+        rt_unit: Annotated[Optional[str], typer.Option("--rt-unit", help="Unit of the ladder's times: min or s (default: from the header, else min).")] = None,
+        mapping: Annotated[Optional[List[str]], typer.Option("--map", help="Use this header for a column, e.g. --map rt='Ret.Time'. Repeatable.")] = None,
+        as_json: JsonFlag = False,
+    ) -> None:
+        import json
+
+        from ..calibration import calibrate
+        from ..holdup import METHODS
+        from ..ladder import read_ladder
+        from ..series import SERIES
+
+        mode_ = _choice(mode, ("programmed", "isothermal"), "--mode")
+        holdup_ = _choice(holdup, METHODS, "--holdup")
+        series_ = _choice(series, tuple(SERIES), "--series")
+        unit = _choice(rt_unit, ("min", "s"), "--rt-unit")
+        lad = read_ladder(ladder, series=series_, rt_unit=unit, overrides=_parse_map(mapping))
+        cal = calibrate(lad, mode=mode_, holdup=holdup_, dead_time=dead_time, marker=marker)
+        cal.save(output)
+        if as_json:
+            say(json.dumps(cal.to_dict(), indent=2, ensure_ascii=False))
+        else:
+            say(qc_table(cal))
+            say()
+            say(summary(cal))
+        for w in cal.warnings:
+            note(f"warning: {w}")
+        note(f"saved calibration to {output}")
+
+    @app.command(
+        "ri",
+        help="Convert retention times to retention indices with a saved calibration. Times outside the ladder "
+        "are computed from the nearest pair of standards and marked extrapolated=true.",
+        epilog=RI_EXAMPLE,
+    )
+    def ri_cmd(
+        calibration: Annotated[str, typer.Option("--calibration", "-c", help="Calibration file from 'matcher calibrate'.")],
+        times: Annotated[Optional[List[str]], typer.Argument(help="Retention times (minutes unless --rt-unit s).", show_default=False)] = None,
+        peaks: Annotated[Optional[str], typer.Option("--peaks", help="Peak table CSV (or .xlsx) with a time column.")] = None,
+        rt_unit: Annotated[Optional[str], typer.Option("--rt-unit", help="Unit of the times: min or s (peak tables: default from the header, else min).")] = None,
+        output: Annotated[Optional[str], typer.Option("-o", "--output", help="Write the CSV here instead of standard output.")] = None,
+        mapping: Annotated[Optional[List[str]], typer.Option("--map", help="Use this header for a peak-table column, e.g. --map rt='Ret.Time'.")] = None,
+        as_json: JsonFlag = False,
+    ) -> None:
+        import json
+
+        from ..calibration import Calibration, atomic_write_text
+        from ..errors import MatcherError
+        from ..retention import convert_times, ri_csv, ri_document
+
+        unit = _choice(rt_unit, ("min", "s"), "--rt-unit")
+        if bool(times) == bool(peaks):
+            raise MatcherError("give retention times as arguments or --peaks FILE (one of the two)")
+        cal = Calibration.load(calibration)
+        result = convert_times(cal, times=times, peaks=peaks, rt_unit=unit, overrides=_parse_map(mapping))
+        text = json.dumps(ri_document(cal, calibration, result), indent=2, ensure_ascii=False) + "\n" if as_json else ri_csv(result)
+        if output:
+            atomic_write_text(output, text)
+            n_ext = int(result["extrapolated"].sum())
+            note(f"wrote {len(result['peak'])} indices to {output}" + (f"; {n_ext} extrapolated" if n_ext else ""))
+        else:
+            typer.echo(text, nl=False)
