@@ -317,7 +317,7 @@ def ddl(dialect: str = "sqlite") -> str:
             parts.append(str(CreateIndex(idx).compile(dialect=d)).strip() + ";")
         if table.indexes:
             parts.append("")
-    return "\n".join(parts).rstrip() + "\n"
+    return "\n".join(line.rstrip() for line in "\n".join(parts).splitlines()).rstrip() + "\n"
 
 
 __all__ = [

@@ -131,7 +131,9 @@ def show(db: str | None, name: str) -> dict:
             raise LibraryError(f"no compound {name!r} in the library{hint}")
         obs = list(c.observations)
         classes: dict[str, dict] = {}
-        for cls in sorted({o.phase_class for o in obs if o.active}):
+        from ..classes import PHASE_CLASSES
+
+        for cls in [k for k in PHASE_CLASSES if any(o.active and o.phase_class == k for o in obs)]:
             sel = [o for o in obs if o.active and o.phase_class == cls]
             ri = np.array([o.ri for o in sel], float)
             n = np.array([o.n if o.n is not None else 1 for o in sel], float)
