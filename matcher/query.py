@@ -28,7 +28,7 @@ from .snapshot import LibrarySnapshot
 
 def _f(v, nd=4):
     v = float(v)
-    return None if not np.isfinite(v) else round(v, nd)
+    return None if not np.isfinite(v) else round(v, nd) + 0.0  # + 0.0 turns -0.0 into 0.0
 
 
 def candidate_records(sl: Shortlist, rows: np.ndarray) -> list[dict]:
@@ -95,9 +95,8 @@ def query(
         raise MatcherError(f"retention index must be a number between 0 and 10000, got {ri}")
     if snapshot is None:
         from .store.snapshot_loader import load_snapshot
-        from .store.location import resolve
 
-        snapshot = load_snapshot(resolve(db))
+        snapshot = load_snapshot(db)
     home = prepare(snapshot, phase_class, homologues=homologues)
     neighbour = neighbour_of(snapshot, phase_class) if fallback else None
     sd = DEFAULT_MEASUREMENT_SD[phase_class] if measurement_sd is None else float(measurement_sd)

@@ -62,12 +62,13 @@ def plan_runs(peak_files: Sequence[str], calibration: Sequence[str] | str | None
 
 
 def _calibrate(run: RunInput, mode: str, dead_time: float | None, rt_unit: str | None):
-    from .calibration import Calibration
+    from .calibration import Calibration, calibrate
+    from .ladder import read_ladder
 
     if run.calibration_path:
         return Calibration.load(run.calibration_path)
     if run.ladder_path:
-        return Calibration.from_ladder_file(run.ladder_path, mode=mode, dead_time=dead_time, rt_unit=rt_unit)
+        return calibrate(read_ladder(run.ladder_path, rt_unit=rt_unit), mode=mode, dead_time=dead_time)
     return None
 
 

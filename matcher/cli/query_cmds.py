@@ -74,8 +74,8 @@ def render(doc: dict) -> str:
     if not doc["candidates"]:
         body = "no library entry inside the window (not in library: 1.00)"
     else:
-        rows = [[c["rank"], c["name"], c["library_ri"], c["delta_ri"], round(c["probability"], 3), ";".join(c["flags"])]
-                for c in doc["candidates"]]
+        rows = [[c["rank"], c["name"], f"{c['library_ri']:.1f}", f"{c['delta_ri']:+.1f}", f"{c['probability']:.3f}",
+                 ";".join(c["flags"])] for c in doc["candidates"]]
         body = format_table(["rank", "name", "library index", "deviation", "probability", "flags"], rows, align="rlrrrl")
         body += f"\nnot in library: {doc['not_in_library']:.3f}"
     notes = "".join(f"\nnote: {n}" for n in doc["notes"])
