@@ -9,9 +9,9 @@ different locants).
 
 Rules, in order (common practice of the trade, no single source):
 
-1. Unicode NFKC, then Greek letters become their names (α → alpha, β → beta,
+1. Unicode NFKC and case folding, then Greek letters (either case) become their names (α → alpha, β → beta,
    γ → gamma, δ → delta, ...); a German ``ß`` typed for β counts as beta.
-2. Case is folded; every kind of dash becomes ``-``; whitespace collapses.
+2. Every kind of dash becomes ``-``; accents are dropped; whitespace collapses.
 3. Stereo descriptors are written one way: ``(E)-``, ``E-``, ``trans-`` → ``e-``
    and ``(Z)-``, ``Z-``, ``cis-`` → ``z-`` (``(2E,6E)-`` → ``2e,6e-``);
    optical signs ``(+)``, ``(-)``, ``(±)`` become ``plus``, ``minus``, ``rac``;
@@ -65,9 +65,9 @@ _WORDS = re.compile(r"[\s\-_()\[\]{}.]+")
 
 
 def _fold(text: str) -> str:
-    s = unicodedata.normalize("NFKC", str(text))
+    s = unicodedata.normalize("NFKC", str(text)).replace("ß", "beta").casefold()
     s = "".join(GREEK.get(ch, ch) for ch in s)
-    s = _DASHES.sub("-", s).casefold()
+    s = _DASHES.sub("-", s)
     s = unicodedata.normalize("NFKD", s)
     s = "".join(ch for ch in s if not unicodedata.combining(ch))
     for rx, rep in _OPTICAL:
