@@ -22,7 +22,7 @@ extrapolated       peak     the peak's index lies outside the ladder (computed f
 ambiguous          peak     the second candidate has at least half the probability of the first
 likely-unlisted    peak     not_in_library ≥ 0.5
 no-candidate       peak     no library entry inside the window
-repeated-top       run      the same compound ranks first for another peak more than 2·w away
+repeated-top       run      the same compound ranks first for another peak more than w away
 order-break        run      two ranked-first members of one homologous series elute out of order
 review             peak     any of: ambiguous, likely-unlisted, extrapolated, no-candidate, top
                             probability < 0.5, or a top candidate that is cross-class, predicted

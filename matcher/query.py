@@ -46,7 +46,7 @@ def candidate_records(sl: Shortlist, rows: np.ndarray) -> list[dict]:
             "library_ri": _f(c["library_ri"][i], 2),
             "delta_ri": _f(c["delta_ri"][i], 2),
             "score": _f(c["score"][i], 3),
-            "probability": _f(c["probability"][i], 6),
+            "probability": _f(c["probability"][i], 12),
             "flags": [f for f in str(c["flags"][i]).split(";") if f],
             "evidence": {
                 "index": _f(c["ev_index"][i], 3),
@@ -115,7 +115,7 @@ def query(
         "class": phase_class,
         "window": window_description(phase_class, window, window_percent) | {"half_width": _f(sl.window[0], 3)},
         "candidates": candidate_records(sl, rows),
-        "not_in_library": _f(sl.not_in_library[0], 6),
+        "not_in_library": _f(sl.not_in_library[0], 12),
         "candidates_in_window": int(sl.candidate_count[0]),
         "model": {"measurement_sd": sd, "prior_in_library": prior_in_library},
         "library": {"location": snapshot.source, "revision": snapshot.revision, "entries": len(home.entries)},

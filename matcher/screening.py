@@ -193,10 +193,10 @@ def run_flags(sl: Shortlist, x: np.ndarray, compounds) -> np.ndarray:
     order = np.lexsort((xi, comp))
     comp_s, x_s, w_s, p_s = comp[order], xi[order], w[order], peak[order]
     same = comp_s[1:] == comp_s[:-1]
-    # within each compound group, any two peaks farther apart than 2·w: flag the group's extremes
+    # within each compound group, two peaks farther apart than the half-width w: flag the group
     for g in np.unique(comp_s[1:][same]):
         sel = comp_s == g
-        if x_s[sel].max() - x_s[sel].min() > 2 * w_s[sel].max():
+        if x_s[sel].max() - x_s[sel].min() > w_s[sel].max():
             bad_peaks.update(int(v) for v in p_s[sel])
     repeated = np.isin(c["peak"], list(bad_peaks))
     flags = F.add_flag(flags, repeated, "repeated-top")
