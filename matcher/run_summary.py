@@ -94,7 +94,13 @@ def summarise_table(table: pd.DataFrame) -> dict[str, Any]:
     n_peaks = len(uniques)
     ranked = _has_rank(table["rank"]) if "rank" in table else np.zeros(len(table), bool)
     flags = table["flags"] if "flags" in table else pd.Series([""] * len(table))
-    f_codes, f_uniques = pd.factorize(flags.map(lambda v: ";".join(split_flags(v))))
+    try:
+        raw_codes, raw_uniques = pd.factorize(flags, use_na_sentinel=False)
+    except TypeError:  # flags given as lists
+        raw_codes, raw_uniques = pd.factorize(flags.map(lambda v: ";".join(split_flags(v))), use_na_sentinel=False)
+    norm = [";".join(split_flags(u)) for u in raw_uniques]
+    norm_codes, f_uniques = pd.factorize(pd.Series(norm, dtype=object), use_na_sentinel=False)
+    f_codes = np.asarray(norm_codes)[raw_codes] if len(norm) else np.zeros(len(table), dtype=np.int64)
     marks = any(REVIEW_FLAG in split_flags(u) for u in f_uniques)
     review_u = np.array([row_needs_review(u, engine_marks=marks) for u in f_uniques], bool)
     row_review = review_u[f_codes] if len(f_uniques) else np.zeros(len(table), bool)

@@ -174,13 +174,25 @@ def floor_decimals(x: np.ndarray, decimals: int = PROBABILITY_DECIMALS) -> np.nd
     return np.floor(np.round(x * scale, 6)) / scale
 
 
+def _factorize(values: pd.Series) -> tuple[np.ndarray, list[Any]]:
+    """Codes and distinct values; list cells (flags given as lists) are joined first."""
+    try:
+        codes, uniques = pd.factorize(values, use_na_sentinel=True)
+    except TypeError:  # unhashable cells such as lists
+        joined = values.map(lambda v: ";".join(split_flags(v)) if isinstance(v, (list, tuple, set, frozenset, np.ndarray)) else v)
+        codes, uniques = pd.factorize(joined, use_na_sentinel=True)
+    return codes, list(uniques)
+
+
 def _text_cells(values: pd.Series, safe) -> list[Any]:
     """Text column made safe; works on the distinct values only (fast on big runs)."""
-    cells = values.map(lambda v: ";".join(split_flags(v)) if isinstance(v, (list, tuple, set, frozenset)) else v)
-    codes, uniques = pd.factorize(cells, use_na_sentinel=True)
-    done = [safe(str(u)) for u in uniques]
-    lookup = np.array(done + [""], dtype=object)
+    codes, uniques = _factorize(values)
+    lookup = np.array([safe(str(u)) for u in uniques] + [""], dtype=object)
     return lookup[codes].tolist()  # code -1 (missing) picks the trailing ""
+
+
+def _flag_text(value: Any) -> str:
+    return ";".join(split_flags(value))
 
 
 def csv_cells(frame: pd.DataFrame) -> dict[str, list[str]]:
@@ -189,7 +201,7 @@ def csv_cells(frame: pd.DataFrame) -> dict[str, list[str]]:
     for name in frame.columns:
         values = frame[name]
         if name == "flags":
-            out[name] = _text_cells(values.map(lambda v: ";".join(split_flags(v))), neutralise)
+            out[name] = _text_cells(values, lambda u: neutralise(_flag_text(u)))
             continue
         if _is_bool_column(values):
             out[name] = ["" if v is None or v is pd.NA or (isinstance(v, float) and v != v)
@@ -309,7 +321,13 @@ def run_document(run: RunResult, *, with_peaks: bool = True) -> dict[str, Any]:
     return doc
 
 
-def results_document(result: ScreenResult, *, content: str = "shortlist", table_file: str | None = None) -> dict[str, Any]:
+def results_document(
+    result: ScreenResult,
+    *,
+    content: str = "shortlist",
+    table_file: str | None = None,
+    table_columns: list[str] | None = None,
+) -> dict[str, Any]:
     """The whole job as one JSON-ready dict (``content`` "shortlist", or "provenance" without peaks)."""
     if content not in ("shortlist", "provenance"):
         raise ValueError(f"content must be 'shortlist' or 'provenance', not {content!r}")
@@ -325,7 +343,8 @@ def results_document(result: ScreenResult, *, content: str = "shortlist", table_
         "runs": [run_document(r, with_peaks=(content == "shortlist")) for r in result.runs],
     }
     if table_file is not None:
-        doc["table"] = {"file": table_file, "columns": output_columns(combined_table(result)),
+        columns = table_columns if table_columns is not None else output_columns(combined_table(result))
+        doc["table"] = {"file": table_file, "columns": list(columns),
                         "rows": int(sum(len(r.table) for r in result.runs if r.table is not None))}
     return doc
 
@@ -352,7 +371,7 @@ def write_csv(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
     frame = combined_table(result)
     cells = csv_cells(frame)
     side = sidecar_path(path)
-    doc = results_document(result, content="provenance", table_file=path.name)
+    doc = results_document(result, content="provenance", table_file=path.name, table_columns=list(frame.columns))
     with atomic_write(side) as fh:
         fh.write(_dump(doc))
     try:

@@ -103,22 +103,22 @@ def _juniper_run(names):
     correction = {
         "applied": True,
         "method": "theil-sen",
-        "a": 0.0021,
-        "b": -0.35,
-        "scatter": 1.3,
+        "a": 0.0051,
+        "b": -2.64,
+        "scatter": 0.6,
         "notice": "",
         "anchors": [
-            {"peak": "P1", "name": names[0], "ri_measured": 929.9, "ri_reference": 932.0, "residual": 0.5},
-            {"peak": "P2", "name": "myrcene", "ri_measured": 987.0, "ri_reference": 990.0, "residual": 0.9},
-            {"peak": "P3", "name": names[1], "ri_measured": 1027.2, "ri_reference": 1030.0, "residual": 0.8},
-            {"peak": "P7", "name": "beta-caryophyllene", "ri_measured": 1415.2, "ri_reference": 1419.0, "residual": 0.7},
-            {"peak": "P8", "name": "delta-cadinene", "ri_measured": 1518.9, "ri_reference": 1524.0, "residual": 1.6},
+            {"peak": "P1", "name": names[0], "ri_measured": 929.9, "ri_reference": 932.0, "residual": 0.0},
+            {"peak": "P2", "name": "myrcene", "ri_measured": 987.0, "ri_reference": 990.0, "residual": 0.6},
+            {"peak": "P3", "name": names[1], "ri_measured": 1027.2, "ri_reference": 1030.0, "residual": 0.2},
+            {"peak": "P7", "name": "beta-caryophyllene", "ri_measured": 1415.2, "ri_reference": 1419.0, "residual": -0.8},
+            {"peak": "P8", "name": "delta-cadinene", "ri_measured": 1518.9, "ri_reference": 1524.0, "residual": 0.0},
         ],
     }
     return RunResult(
         source=f"incoming/{run}.csv", label=run, phase_class=cls,
         window={"mode": "fixed", "value": 10.0}, table=_table(rows),
-        calibration=calibration, correction=correction, measurement_sd=1.3,
+        calibration=calibration, correction=correction, measurement_sd=0.6,
         notices=[f"adaptive correction used 5 anchors ({names[3]} kept for review)"], peak_count=5,
     )
 
