@@ -124,6 +124,17 @@ class ClassEntries:
 
 
 @dataclass(frozen=True)
+class Observations:
+    """The active observations behind a snapshot (for self-checks such as ``matcher evaluate``)."""
+
+    compound: np.ndarray  # int64 CompoundTable row
+    phase_class: np.ndarray  # object
+    ri: np.ndarray
+    n: np.ndarray  # weights ≥ 1
+    sd: np.ndarray  # NaN where a record has no spread
+
+
+@dataclass(frozen=True)
 class LibrarySnapshot:
     """The whole library as arrays: compounds plus per-class sorted entries."""
 
@@ -131,6 +142,7 @@ class LibrarySnapshot:
     classes: Mapping[str, ClassEntries]
     source: str = ""  # masked location of the library it was read from
     revision: str = ""  # store revision marker, for provenance
+    observations: "Observations | None" = field(default=None, repr=False, compare=False)
     _name_index: dict = field(default_factory=dict, repr=False, compare=False)
 
     def entries(self, phase_class: str) -> ClassEntries:
@@ -239,7 +251,8 @@ def build_snapshot(
             compound=uniq[o].astype(np.int64),
             predicted=np.zeros(len(o), dtype=bool),
         )
-    return LibrarySnapshot(compounds=compounds, classes=classes, source=source, revision=revision)
+    raw = Observations(rows, obs_class, obs_ri, obs_n, obs_sd)
+    return LibrarySnapshot(compounds=compounds, classes=classes, source=source, revision=revision, observations=raw)
 
 
 def with_entries(snapshot: LibrarySnapshot, phase_class: str, extra: ClassEntries) -> LibrarySnapshot:
@@ -257,7 +270,7 @@ def with_entries(snapshot: LibrarySnapshot, phase_class: str, extra: ClassEntrie
     )
     classes = dict(snapshot.classes)
     classes[phase_class] = merged
-    return LibrarySnapshot(snapshot.compounds, classes, snapshot.source, snapshot.revision)
+    return LibrarySnapshot(snapshot.compounds, classes, snapshot.source, snapshot.revision, observations=snapshot.observations)
 
 
 __all__: Sequence[str] = [
@@ -265,6 +278,7 @@ __all__: Sequence[str] = [
     "CompoundTable",
     "ClassEntries",
     "LibrarySnapshot",
+    "Observations",
     "build_snapshot",
     "summarise",
     "with_entries",
