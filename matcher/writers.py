@@ -150,18 +150,24 @@ def _numeric(values: pd.Series) -> np.ndarray | None:
     return None
 
 
+def _distinct(x: np.ndarray, fmt) -> list[str]:
+    """Format each distinct value once (rows repeat a peak's index and a compound's library values)."""
+    codes, uniques = pd.factorize(x, use_na_sentinel=True)
+    cells = [fmt(v) if math.isfinite(v) else "" for v in uniques.tolist()]
+    lookup = np.array(cells + [""], dtype=object)
+    return lookup[codes].tolist()
+
+
 def _fmt_fixed(x: np.ndarray, decimals: int) -> list[str]:
-    spec = f"{{:.{decimals}f}}".format
-    return ["" if v != v or v in (math.inf, -math.inf) else spec(v) for v in x.tolist()]
+    return _distinct(x, f"{{:.{decimals}f}}".format)
 
 
 def _fmt_general(x: np.ndarray) -> list[str]:
-    return ["" if v != v or v in (math.inf, -math.inf) else (str(int(v)) if v.is_integer() and abs(v) < 1e15 else repr(v))
-            for v in x.tolist()]
+    return _distinct(x, lambda v: str(int(v)) if v.is_integer() and abs(v) < 1e15 else repr(v))
 
 
 def _fmt_int(x: np.ndarray) -> list[str]:
-    return ["" if v != v else str(int(v)) for v in x.tolist()]
+    return _distinct(x, lambda v: str(int(v)))
 
 
 def floor_decimals(x: np.ndarray, decimals: int = PROBABILITY_DECIMALS) -> np.ndarray:
