@@ -12,6 +12,11 @@
   the **not-in-library detection rate** is how often "not in library" is the
   most probable answer, and the mean top probability shows whether absent
   compounds get high probabilities just because something lies nearby;
+* the index scatter of a query beyond the entry's own predictive spread is
+  the added noise (a held-out observation comes from the same lab), unless
+  ``measurement_sd`` says otherwise;
+* the prior share of in-library answers is the evaluation's own mix of
+  held-out and removed queries;
 * **expected calibration error** (ECE) of the top probability over both kinds
   of query: the mean gap, in ten equal bins, between the stated top
   probability and the observed hit rate;
@@ -107,7 +112,6 @@ def evaluate_class(snapshot: LibrarySnapshot, phase_class: str, *, noise: float 
         out["notice"] = "fewer than two entries: nothing to evaluate"
         return out
     bg = background(entries, comps)
-    model = Model(DEFAULT_MEASUREMENT_SD[phase_class] if measurement_sd is None else measurement_sd, DEFAULT_PRIOR_IN_LIBRARY)
     floor = SPREAD_FLOOR[phase_class]
 
     # leave one out
@@ -125,6 +129,12 @@ def evaluate_class(snapshot: LibrarySnapshot, phase_class: str, *, noise: float 
     for k, i in enumerate(loo):
         rest = [j for j in rows_of[int(obs.compound[i])] if j != i]
         new_ri[k], new_sd[k], _ = summarise(obs.ri[rest], obs.n[rest], obs.sd[rest], floor)
+    # A held-out observation scatters around its entry by the entry's own (predictive) spread;
+    # only the added noise is extra measurement scatter. The prior share in the library is the
+    # evaluation's own mix of held-out (present) and removed (absent) queries.
+    k_rm = min(len(entries), MAX_QUERIES)
+    share = len(loo) / (len(loo) + k_rm)
+    model = Model(max(noise, 0.1) if measurement_sd is None else measurement_sd, min(max(share, 0.05), 0.95))
     x = obs.ri[loo] + (rng.normal(0, noise, len(loo)) if noise else 0.0)
     w = half_widths(x, phase_class, window)
     mass = comps.nominal_mass[own] if with_mol_ion else None
@@ -132,7 +142,6 @@ def evaluate_class(snapshot: LibrarySnapshot, phase_class: str, *, noise: float 
     rank, top_loo, hit_loo = _ranks(pairs, sc, pairs.entry >= len(entries), len(loo))
 
     # removal: each compound's centre queried with the compound gone
-    k_rm = min(len(entries), MAX_QUERIES)
     rm = np.sort(rng.choice(len(entries), k_rm, replace=False))
     own_rm = entries.compound[rm]
     x_rm = entries.ri[rm] + (rng.normal(0, noise, k_rm) if noise else 0.0)
