@@ -158,3 +158,14 @@ def test_export_is_atomic_on_failure(library_url, tmp_path):
     with pytest.raises(Exception):
         export_library(library_url, target)
     assert not target.exists()
+
+
+def test_shared_cas_inside_one_file_keeps_names_apart(library_url, tmp_path):
+    from matcher.store.inspect import check
+
+    # a table listing the racemate and a name variant under one CAS number keeps both rows' names
+    p = _write(tmp_path, "t.csv", HEADER + "limonene,nonpolar,1030,138-86-3,,\nDL-limonene,nonpolar,1031,138-86-3,,\n")
+    import_library(library_url, p)
+    assert [r["name"] for r in export_rows(library_url)] == ["limonene", "DL-limonene"]
+    assert check(library_url) == []
+    assert any("138-86-3" in x for x in check(library_url, strict=True))

@@ -125,11 +125,14 @@ def register(app: typer.Typer) -> None:
             say(format_table(["class", "compounds", "observations", "lowest", "highest", "per 100 units", "widest gap"], rows))
 
     @lib.command("check", help="Check integrity: database, foreign keys, orphans, duplicate names, invalid CAS/formula/InChIKey.", epilog=EX_CHECK)
-    def check_cmd(db: DbOption = None) -> None:
+    def check_cmd(
+        strict: Annotated[bool, typer.Option("--strict", help="Also list CAS numbers shared by two compounds.")] = False,
+        db: DbOption = None,
+    ) -> None:
         from ..store.inspect import check
         from ..store.location import mask_url, resolve
 
-        problems = check(db)
+        problems = check(db, strict=strict)
         where = mask_url(resolve(db))
         if problems:
             for p in problems:

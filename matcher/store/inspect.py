@@ -190,8 +190,12 @@ def stats(db: str | None) -> dict:
     }
 
 
-def check(db: str | None) -> list[str]:
-    """Integrity problems of the library, one line each (empty list: healthy)."""
+def check(db: str | None, *, strict: bool = False) -> list[str]:
+    """Integrity problems of the library, one line each (empty list: healthy).
+
+    With ``strict``, a CAS number shared by two compounds is also listed (it may be
+    deliberate, e.g. a table listing an isomer mixture under two names).
+    """
     from sqlalchemy import text
     from sqlalchemy.orm import Session
 
@@ -243,7 +247,7 @@ def check(db: str | None) -> list[str]:
                         problems.append(f"{who}: CAS {cas!r} not in canonical form")
                 except ValueError as exc:
                     problems.append(f"{who}: {exc}")
-                if cas in cas_seen:
+                if strict and cas in cas_seen:
                     problems.append(f"{who}: CAS {cas} also belongs to {cas_seen[cas]}")
                 cas_seen.setdefault(cas, who)
             if formula:

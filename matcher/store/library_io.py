@@ -21,9 +21,12 @@ ONE transaction: a refused file changes nothing. Messages name the file, the
 data row (data rows count from 1 after the header) with its physical line,
 and the column. A row attaches to an existing compound when its name, or one
 of its synonyms, has the matching key of a library name or synonym
-(:func:`matcher.names.matching_key`), or when its CAS number is already in
-the library; a row that would tie two different compounds together is
-refused. An observation already in the library with identical values is
+(:func:`matcher.names.matching_key`), or else when its CAS number belongs to
+exactly one compound that was in the library before the import (the new name
+becomes a synonym). Inside one file, rows with different names stay different
+compounds even when they share a CAS number (``library check --strict`` lists
+shared CAS numbers). A row that would tie two different compounds together,
+or give a compound a CAS number that contradicts its own, is refused. An observation already in the library with identical values is
 skipped, so importing a file twice adds nothing the second time.
 
 **Export** writes every observation (retired ones too, with the reason) in
@@ -294,9 +297,11 @@ def _resolve(rows: list[LibraryRow], session, path: str) -> list[_Slot]:
             elif k in idx.by_key:
                 hits.setdefault(slot_for_cid(idx.by_key[k]), how)
         if r.cas:
+            # a CAS number attaches a new name to a compound that was in the library before this
+            # import (when exactly one has it); inside one file, different names stay different
             if r.cas in by_cas:
                 hits.setdefault(by_cas[r.cas], "CAS")
-            elif r.cas in idx.by_cas:
+            elif len(idx.by_cas.get(r.cas, ())) == 1:
                 hits.setdefault(slot_for_cid(idx.by_cas[r.cas][0]), "CAS")
         if len(hits) > 1:
             names = "; ".join(f"{slots[i].name!r} (by {how})" for i, how in hits.items())
@@ -324,8 +329,6 @@ def _resolve(rows: list[LibraryRow], session, path: str) -> list[_Slot]:
                 by_key[k] = si
                 if k != matching_key(s.name) and nm not in s.synonyms:
                     s.synonyms.append(nm)
-        if r.cas:
-            by_cas.setdefault(r.cas, si)
         s.rows.append(r)
     return slots
 
