@@ -1,0 +1,54 @@
+"""``matcher demo``: the whole daily workflow on the bundled, invented demo data."""
+
+from __future__ import annotations
+
+from typing import Annotated
+
+import typer
+
+from .. import CAUTION
+from .common import say
+
+EXAMPLE = """
+Example
+
+    matcher demo --out demo-output
+
+Then open demo-output/report.html in a browser, or read demo-output/shortlist.csv.
+"""
+
+
+def register(app: typer.Typer) -> None:
+    @app.command(
+        "demo",
+        help="Run the demo end to end: build the demo house library, calibrate the example ladder, screen the "
+        "example run (juniper-berry oil on a 5 % phenyl column; invented numbers) and write a shortlist and a report.\n\n"
+        + CAUTION,
+        epilog=EXAMPLE,
+    )
+    def demo_cmd(
+        out: Annotated[str, typer.Option("--out", help="Folder for the demo files (created if needed).")] = "matcher-demo",
+    ) -> None:
+        from ..demo import run_demo
+        from .screen_cmds import summary
+
+        outcome = run_demo(out)
+        run = outcome.result.runs[0]
+        say("matcher demo: lot JB-0412 of juniper-berry oil, 5 % phenyl column (slightly-polar class). "
+            "All numbers are invented for the demo.\n")
+        say(summary(outcome.result))
+        say("")
+        t = run.table
+        first = t[t["rank"] == 1].head(12)
+        from ..textable import format_table
+
+        say("first peaks, best candidate:")
+        say(format_table(["peak", "index", "best candidate", "probability", "flags"],
+                         [[r.peak, f"{r.ri:.1f}", r.name, f"{r.probability:.3f}", r.flags] for r in first.itertuples()],
+                         align="rrlrl"))
+        say("")
+        for label, path in (("library", outcome.library), ("calibration", outcome.calibration),
+                            ("shortlist", outcome.shortlist), ("report", outcome.report)):
+            say(f"{label:12s} {path}")
+        say("")
+        say(CAUTION)
