@@ -19,7 +19,8 @@ be positive, finite and at most 10,000 min (:data:`MAX_RT_MIN`); indices
 finite and within 0-10,000 (:data:`MAX_RI`, well above the largest indices GC
 reaches); ``mol_ion`` and ions whole numbers 1-5,000 (:data:`MAX_MZ`);
 ``hit_score`` within 0-100; ``area`` not negative; peak ids unique. A table
-with neither a time nor an index column is refused. Empty cells in optional
+with neither a time nor an index column, or with a header but no peaks, is
+refused. Empty cells in optional
 columns are allowed (NaN / empty).
 
 >>> time_unit("Retention time [s]"), time_unit("RT (min)"), time_unit("rt"), time_unit("RT [s]", "min")
@@ -131,6 +132,8 @@ def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | 
             file=raw.path, line=raw.first_line,
         )
     n = len(raw)
+    if n == 0:
+        raise InputError("the peak table has a header but no peaks (no data rows)", file=raw.path, line=raw.first_line)
     nan = np.full(n, np.nan)
 
     if "peak" in cols:

@@ -19,9 +19,13 @@ What is read, and how (documented behaviour):
 * **Delimiter**: comma, semicolon or tab, sniffed from the header and the
   first data lines. With semicolons, decimal commas (``5,23``) are accepted
   by :func:`numbers`.
-* **Rows**: blank lines between rows are skipped; a row shorter than the
-  header is padded with empty cells; a row with *more* non-empty fields than
-  the header is refused (trailing empty fields are ignored).
+* **Rows**: blank lines between rows are skipped. A row with *more*
+  non-empty fields than the header is refused (trailing empty fields are
+  ignored), and so is a row with *fewer* fields than the header: a missing
+  field cannot be told from a shifted one (write an empty cell as ``,,``).
+  A cell longer than :data:`MAX_CELL` characters is refused: no field of a
+  peak table, ladder or library needs that, and it is nearly always a broken
+  quote or a binary file read as text.
 * **Header**: duplicate names are refused; an empty header cell is named
   ``(column N)``. A header-only file is a table with no rows (callers decide).
 
@@ -54,6 +58,8 @@ if TYPE_CHECKING:  # pragma: no cover
 
 #: Longest cell text echoed back in an error message.
 ECHO_LIMIT = 40
+#: Longest cell accepted, in characters.
+MAX_CELL = 1000
 
 _DELIMITERS = (",", ";", "\t")
 _SAMPLE_LINES = 50
@@ -245,14 +251,29 @@ def load_table(path, *, what: str = "table") -> RawTable:
             if len(record) > len(header):
                 extra = record[len(header):]
                 if any(c.strip() for c in extra):
+                    at = len(header) + next(i for i, c in enumerate(extra) if c.strip()) + 1
                     raise InputError(
                         f"{len(record)} fields but the header has {len(header)} "
                         f"(delimiter {_DELIM_NAME[delim]}); a field may hold an unquoted delimiter",
-                        file=path, row=len(rows) + 1, line=start,
+                        file=path, row=len(rows) + 1, line=start, column=f"(column {at})",
                     )
                 record = record[: len(header)]
             elif len(record) < len(header):
-                record = record + [""] * (len(header) - len(record))
+                missing = header[len(record)].strip() or f"(column {len(record) + 1})"
+                raise InputError(
+                    f"{len(record)} field{'s' if len(record) != 1 else ''} but the header has {len(header)} "
+                    f"(delimiter {_DELIM_NAME[delim]}); a missing field cannot be told from a shifted one, "
+                    f"so write an empty cell as an empty field",
+                    file=path, row=len(rows) + 1, line=start, column=" ".join(missing.split()),
+                )
+            for i, c in enumerate(record):
+                if len(c) > MAX_CELL:
+                    raise InputError(
+                        f"a cell of {len(c)} characters (at most {MAX_CELL} are accepted; "
+                        f"a quote may be left open): {echo(c)}",
+                        file=path, row=len(rows) + 1, line=start,
+                        column=" ".join(header[i].split()) or f"(column {i + 1})",
+                    )
             rows.append(record)
             line_numbers.append(start)
     except csv.Error as exc:
@@ -275,6 +296,9 @@ def _clean_header(header: list[str], path: str, first_line: int) -> list[str]:
     # they are kept under a neutral name so that data rows still line up
     out = []
     for i, h in enumerate(header):
+        if len(h) > MAX_CELL:
+            raise InputError(f"header cell {i + 1} has {len(h)} characters (at most {MAX_CELL} are accepted): {echo(h)}",
+                             file=path, line=first_line)
         h = " ".join(h.split())
         out.append(h if h else f"(column {i + 1})")
     seen: dict[str, int] = {}
@@ -316,7 +340,12 @@ def _load_xlsx(path: str, what: str) -> RawTable:
             continue
         if any(c.strip() for c in rec[width:]):
             raise InputError(f"a value lies right of the last named column", file=path, row=len(rows) + 1, line=i + 1)
-        rows.append(rec[:width] + [""] * (width - len(rec[:width])))
+        rec = rec[:width] + [""] * (width - len(rec[:width]))
+        for j, c in enumerate(rec):
+            if len(c) > MAX_CELL:
+                raise InputError(f"a cell of {len(c)} characters (at most {MAX_CELL} are accepted): {echo(c)}",
+                                 file=path, row=len(rows) + 1, line=i + 1, column=header[j])
+        rows.append(rec)
         line_numbers.append(i + 1)
     frame = pd.DataFrame(rows, columns=header, dtype=object) if rows else pd.DataFrame({h: pd.Series([], dtype=object) for h in header})
     return RawTable(path=path, frame=frame, header=header, first_line=skip + 1, delimiter="xlsx",
@@ -387,32 +416,39 @@ def numbers(
     checks = []
     present = np.array([bool(c) for c in cells], dtype=bool)
     if finite:
-        checks.append((present & ~np.isfinite(out), lambda v: f"must be a finite number, got {v!r}"))
+        # a literal 'nan'/'inf' is not a measurement; digits that overflow float64 are 'too large'
+        literal = np.array([bool(c) and c.lstrip("+-")[:1].lower() in ("n", "i") for c in cells], dtype=bool)
+        checks.append((present & literal & ~np.isfinite(out), lambda v: f"must be a finite number, got {v}"))
+        checks.append((present & ~literal & ~np.isfinite(out),
+                       lambda v: f"too large a number (beyond floating point), got {v}"))
     if positive:
-        checks.append((present & ~(out > 0), lambda v: f"must be positive, got {v!r}"))
+        checks.append((present & ~(out > 0), lambda v: f"must be positive, got {v}"))
     if nonnegative:
-        checks.append((present & ~(out >= 0), lambda v: f"must not be negative, got {v!r}"))
+        checks.append((present & ~(out >= 0), lambda v: f"must not be negative, got {v}"))
     if integer:
         with np.errstate(invalid="ignore"):
-            checks.append((present & np.isfinite(out) & (out != np.round(out)), lambda v: f"must be a whole number, got {v!r}"))
+            checks.append((present & np.isfinite(out) & (out != np.round(out)), lambda v: f"must be a whole number, got {v}"))
     if minimum is not None:
-        checks.append((present & ~(out >= minimum), lambda v: f"must be at least {_fmt(minimum)}, got {v!r}"))
+        checks.append((present & ~(out >= minimum), lambda v: f"must be at least {_fmt(minimum)}, got {v}"))
     if maximum is not None:
-        checks.append((present & ~(out <= maximum), lambda v: f"must be at most {_fmt(maximum)}, got {v!r}"))
+        checks.append((present & ~(out <= maximum), lambda v: f"must be at most {_fmt(maximum)}, got {v}"))
     first_bad, message = n, ""
     for bad, msg in checks:
         idx = np.flatnonzero(bad)
         if idx.size and idx[0] < first_bad:
             first_bad = int(idx[0])
-            message = msg(" ".join(_column(raw, column)[first_bad].split())[:ECHO_LIMIT])
+            message = msg(echo(_column(raw, column)[first_bad]))
     if first_bad < n:
         raise raw.fail(message, row=first_bad + 1, column=column)
     return out
 
 
 def texts(raw: RawTable, column: str, *, required: bool = False) -> list[str]:
-    """The stripped text of ``column``; with ``required`` an empty cell is an error."""
-    cells = [" ".join(c.split()) if ("\n" in c or "\r" in c) else c.strip() for c in _column(raw, column)]
+    """The text of ``column``, stripped at both ends and otherwise literal (a quoted newline stays).
+
+    With ``required`` an empty cell is an error.
+    """
+    cells = [c.strip() for c in _column(raw, column)]
     if required:
         for k, c in enumerate(cells):
             if not c:

@@ -113,9 +113,13 @@ def test_ragged_row_names_the_line(tmp_path):
     assert "3 fields but the header has 2" in str(ei.value)
 
 
-def test_trailing_empty_fields_and_short_rows_are_tolerated(tmp_path):
-    raw = load_table(write(tmp_path, "t.csv", "peak,rt,area\n1,5.0,10,,\n2,6.0\n"))
+def test_trailing_empty_fields_tolerated_short_rows_refused(tmp_path):
+    raw = load_table(write(tmp_path, "t.csv", "peak,rt,area\n1,5.0,10,,\n2,6.0,\n"))
     assert raw.frame.values.tolist() == [["1", "5.0", "10"], ["2", "6.0", ""]]
+    # a row that lacks a field: is '6.0' the time or a shifted area? refused, naming the missing column
+    with pytest.raises(InputError, match="2 fields but the header has 3") as ei:
+        load_table(write(tmp_path, "s.csv", "peak,rt,area\n1,5.0,10\n2,6.0\n"))
+    assert (ei.value.row, ei.value.line, ei.value.column) == (2, 3, "area")
 
 
 def test_duplicate_header_refused(tmp_path):
@@ -123,13 +127,17 @@ def test_duplicate_header_refused(tmp_path):
         load_table(write(tmp_path, "d.csv", "rt,peak,rt\n1,2,3\n"))
 
 
-def test_long_field_is_fine_and_echo_is_capped(tmp_path):
+def test_long_field_is_refused_and_echo_is_capped(tmp_path):
+    from matcher.tables import MAX_CELL
+
+    ok = "x" * MAX_CELL
+    raw = load_table(write(tmp_path, "ok.csv", f"peak,rt\n{ok},5\n"))
+    assert len(texts(raw, "peak")[0]) == MAX_CELL
     big = "x" * 200_000
-    raw = load_table(write(tmp_path, "l.csv", f"peak,rt\n{big},{big}\n"))
-    assert len(texts(raw, "peak")[0]) == 200_000
-    with pytest.raises(InputError) as ei:
-        numbers(raw, "rt")
-    assert len(str(ei.value)) < 200
+    with pytest.raises(InputError, match="200000 characters") as ei:
+        load_table(write(tmp_path, "l.csv", f"peak,rt\n1,5\n2,{big}\n"))
+    assert (ei.value.row, ei.value.column) == (2, "rt")
+    assert len(str(ei.value)) < 300
 
 
 def test_quoted_field_with_newline_keeps_line_numbers(tmp_path):
