@@ -244,7 +244,11 @@ def softmax_with_null(logw: np.ndarray, peak: np.ndarray, n_peaks: int):
     if len(logw) == 0:
         return np.zeros(0), nil
     mx = np.zeros(n_peaks)
-    np.maximum.at(mx, peak, logw)
+    if np.all(peak[1:] >= peak[:-1]):  # grouped by peak (the usual case): a segmented maximum
+        starts = np.flatnonzero(np.r_[True, peak[1:] != peak[:-1]])
+        mx[peak[starts]] = np.maximum(np.maximum.reduceat(logw, starts), 0.0)
+    else:
+        np.maximum.at(mx, peak, logw)
     w = np.exp(logw - mx[peak])
     denom = np.bincount(peak, weights=w, minlength=n_peaks) + np.exp(-mx)
     prob = w / denom[peak]

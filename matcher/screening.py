@@ -189,16 +189,15 @@ def run_flags(sl: Shortlist, x: np.ndarray, compounds) -> np.ndarray:
     comp = c["compound"][top]
     xi = x[peak]
     w = sl.window[peak]
-    bad_peaks: set[int] = set()
     order = np.lexsort((xi, comp))
     comp_s, x_s, w_s, p_s = comp[order], xi[order], w[order], peak[order]
-    same = comp_s[1:] == comp_s[:-1]
+    starts = np.flatnonzero(np.r_[True, comp_s[1:] != comp_s[:-1]])
     # within each compound group, two peaks farther apart than the half-width w: flag the group
-    for g in np.unique(comp_s[1:][same]):
-        sel = comp_s == g
-        if x_s[sel].max() - x_s[sel].min() > w_s[sel].max():
-            bad_peaks.update(int(v) for v in p_s[sel])
-    repeated = np.isin(c["peak"], list(bad_peaks))
+    spread = np.maximum.reduceat(x_s, starts) - np.minimum.reduceat(x_s, starts)
+    bad_group = spread > np.maximum.reduceat(w_s, starts)
+    sizes = np.diff(np.r_[starts, len(comp_s)])
+    bad_peaks = p_s[np.repeat(bad_group, sizes)]
+    repeated = np.isin(c["peak"], bad_peaks)
     flags = F.add_flag(flags, repeated, "repeated-top")
 
     series = compounds.series[comp]

@@ -114,7 +114,8 @@ def _hints(peaks: PeakInput, pairs_peak: np.ndarray, pairs_compound: np.ndarray,
     sim = None
     if peaks.hit is not None:
         hits = np.asarray(peaks.hit, dtype=object)
-        sim = hit_similarity(hits, pairs_peak, pairs_compound, prep.name_keys, matching_key)
+        if any(hits.tolist()):
+            sim = hit_similarity(hits, pairs_peak, pairs_compound, prep.name_keys, matching_key)
     score = None if peaks.hit_score is None else np.asarray(peaks.hit_score, dtype=float)
     return PeakHints(mol, masks, sim, score)
 
@@ -189,21 +190,21 @@ def shortlist(
                 prob, nil = softmax_with_null(logw, gpeak, n)
                 notes.append(f"cross-class fallback: {len(np.unique(g2))} peak(s) also searched in {neighbour.phase_class}")
 
-    # rank within each peak by probability
-    order = np.lexsort((-prob, gpeak))
-    gpeak, ent, cls_arr, prob, logw, delta, sd = (a[order] for a in (gpeak, ent, cls_arr, prob, logw, delta, sd))
-    evs = [a[order] for a in evs]
-    mstate, istate, hitsim = mstate[order], istate[order], hitsim[order]
+    # rank within each peak by probability: one float sort key (peak, then descending probability)
     count = np.bincount(gpeak, minlength=n).astype(np.int64)
     starts = np.cumsum(count) - count
-    rank = np.arange(len(gpeak)) - starts[gpeak] + 1
+    order = np.argsort(gpeak + 0.5 * (1.0 - prob), kind="stable")
+    rank_sorted = np.arange(len(gpeak)) - starts[gpeak[order]] + 1
     top1 = np.zeros(n)
     top2 = np.zeros(n)
     if len(gpeak):
-        top1[gpeak[rank == 1]] = prob[rank == 1]
-        top2[gpeak[rank == 2]] = prob[rank == 2]
-
-    keep = rank <= top if top else np.ones(len(rank), dtype=bool)
+        r1, r2 = order[rank_sorted == 1], order[rank_sorted == 2]
+        top1[gpeak[r1]] = prob[r1]
+        top2[gpeak[r2]] = prob[r2]
+    kept = rank_sorted <= top if top else np.ones(len(order), dtype=bool)
+    keep = order[kept]  # rows kept, already grouped by peak and ranked
+    rank = np.zeros(len(gpeak), dtype=np.int64)
+    rank[order] = rank_sorted
     # rows for candidates, plus one row per peak without any
     empty = np.flatnonzero(count == 0)
     kp = np.concatenate([gpeak[keep], empty])
