@@ -45,6 +45,7 @@ Entries of each class are sorted by centre so that a tolerance window is two
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Iterable, Mapping, Sequence
 
@@ -165,7 +166,7 @@ def _weighted_median(values: np.ndarray, weights: np.ndarray) -> float:
     cum = np.cumsum(w)
     half = cum[-1] / 2.0
     k = int(np.searchsorted(cum, half, side="left"))
-    if np.isclose(cum[k], half) and k + 1 < len(v):
+    if math.isclose(cum[k], half, rel_tol=1e-9, abs_tol=1e-12) and k + 1 < len(v):
         return float((v[k] + v[k + 1]) / 2.0)
     return float(v[k])
 
