@@ -1,0 +1,144 @@
+"""The query, screen, evaluate and demo commands as a user runs them."""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from typer.testing import CliRunner
+
+from matcher import CAUTION
+from matcher.cli.main import app
+
+runner = CliRunner()
+MATCHER = str(Path(sys.executable).with_name("matcher"))
+
+LIBRARY = """name,phase_class,ri,formula,cas,series
+limonene,slightly-polar,1030,C10H16,138-86-3,
+limonene,slightly-polar,1028,C10H16,138-86-3,
+p-cymene,slightly-polar,1025,C10H14,99-87-6,
+"1,8-cineole",slightly-polar,1033,C10H18O,470-82-6,
+decane,slightly-polar,1000,C10H22,124-18-5,n-alkanes
+undecane,slightly-polar,1100,C11H24,1120-21-4,n-alkanes
+dodecane,slightly-polar,1200,C12H26,112-40-3,n-alkanes
+linalool,nonpolar,1098,C10H18O,78-70-6,
+"""
+
+
+@pytest.fixture()
+def lib(tmp_path):
+    db = str(tmp_path / "lab.sqlite")
+    src = tmp_path / "lib.csv"
+    src.write_text(LIBRARY, encoding="utf-8")
+    assert runner.invoke(app, ["library", "init", "--db", db]).exit_code == 0
+    res = runner.invoke(app, ["library", "import", str(src), "--db", db])
+    assert res.exit_code == 0, res.output
+    return db
+
+
+def test_query_table_and_json(lib):
+    res = runner.invoke(app, ["query", "1031", "--class", "slightly-polar", "--mol-ion", "136", "--db", lib])
+    assert res.exit_code == 0, res.output
+    assert "limonene" in res.output and CAUTION in res.output
+    res = runner.invoke(app, ["query", "1031", "--class", "slightly-polar", "--mol-ion", "136", "--json", "--db", lib])
+    doc = json.loads(res.output)
+    assert doc["candidates"][0]["name"] == "limonene"
+    assert {"index", "mol_ion", "ions", "hit"} <= set(doc["candidates"][0]["evidence"])
+    assert sum(c["probability"] for c in doc["candidates"]) + doc["not_in_library"] == pytest.approx(1.0, abs=1e-9)
+
+
+def test_query_far_away_is_empty_with_exit_zero(lib):
+    res = runner.invoke(app, ["query", "2500", "--class", "slightly-polar", "--json", "--db", lib])
+    assert res.exit_code == 0
+    doc = json.loads(res.output)
+    assert doc["candidates"] == [] and doc["not_in_library"] == 1.0
+
+
+def test_unknown_class_is_one_clean_line(lib):
+    proc = subprocess.run([MATCHER, "query", "1031", "--class", "waxy", "--db", lib], capture_output=True, text=True)
+    assert proc.returncode == 2
+    assert proc.stderr.strip().count("\n") == 0 and "unknown phase class 'waxy'" in proc.stderr
+    assert "Traceback" not in proc.stderr
+
+
+def _ladder_and_run(tmp_path, n_peaks=60):
+    carbons = np.arange(8, 16)
+    times = 1.5 + 1.9 * (carbons - 8) + 0.02 * (carbons - 8) ** 2  # invented
+    (tmp_path / "ladder.csv").write_text("rt,carbons\n" + "".join(f"{t:.4f},{c}\n" for t, c in zip(times, carbons)))
+    ri = np.array([1029.0, 1101.0, 1199.0, 1024.0] * (n_peaks // 4))
+    rt = np.interp(ri, 100.0 * carbons, times)
+    mol = [136, 156, 170, 134] * (n_peaks // 4)
+    lines = "".join(f"{k + 1},{t:.5f},{m}\n" for k, (t, m) in enumerate(zip(rt, mol)))
+    (tmp_path / "run.csv").write_text("Peak #,Ret. time (min),M+\n" + lines)
+    return tmp_path / "ladder.csv", tmp_path / "run.csv", ri
+
+
+@pytest.mark.parametrize("suffix", ["csv", "json", "xlsx"])
+def test_screen_with_a_ladder_writes_every_peak(lib, tmp_path, suffix):
+    ladder, run, ri = _ladder_and_run(tmp_path)
+    out = tmp_path / f"out.{suffix}"
+    report = tmp_path / "r.html"
+    res = runner.invoke(app, ["screen", str(run), "--ladder", str(ladder), "--class", "slightly-polar",
+                              "-o", str(out), "--report", str(report), "--db", lib])
+    assert res.exit_code == 0, res.output
+    assert out.exists() and report.exists()
+    if suffix == "csv":
+        df = pd.read_csv(out)
+        assert list(df.columns[:12]) == ["peak", "rt", "ri", "class", "rank", "name", "cas", "library_ri",
+                                         "delta_ri", "score", "probability", "flags"]
+        assert sorted(df["peak"].unique()) == list(range(1, len(ri) + 1))
+        first = df[df["rank"] == 1].set_index("peak")
+        np.testing.assert_allclose(first["ri"].to_numpy(), ri, atol=0.05)
+        assert (first.loc[first["ri"].round() == 1101, "name"] == "undecane").all()
+        sums = df.groupby("peak")["probability"].sum()
+        assert (sums <= 1.0 + 1e-9).all()
+    html = report.read_text(encoding="utf-8")
+    assert "tentative" in html
+
+
+def test_screen_bad_second_file_writes_nothing(lib, tmp_path):
+    ladder, run, _ = _ladder_and_run(tmp_path)
+    bad = tmp_path / "bad.csv"
+    bad.write_text("peak,rt\n1,abc\n")
+    out = tmp_path / "out.csv"
+    proc = subprocess.run([MATCHER, "screen", str(run), str(bad), "--ladder", str(ladder), "--class", "slightly-polar",
+                           "-o", str(out), "--db", lib], capture_output=True, text=True)
+    assert proc.returncode == 2
+    assert "bad.csv" in proc.stderr and "'rt'" in proc.stderr and "Traceback" not in proc.stderr
+    assert not out.exists()
+
+
+def test_screen_adaptive_reports_its_fit(lib, tmp_path):
+    ladder, run, _ = _ladder_and_run(tmp_path, n_peaks=80)
+    out = tmp_path / "out.json"
+    res = runner.invoke(app, ["screen", str(run), "--ladder", str(ladder), "--class", "slightly-polar", "--adaptive",
+                              "-o", str(out), "--db", lib])
+    assert res.exit_code == 0, res.output
+    doc = json.loads(out.read_text())
+    assert "correction" in json.dumps(doc)
+
+
+def test_evaluate_json_reports_top1_and_top3(lib):
+    res = runner.invoke(app, ["evaluate", "--json", "--db", lib])
+    assert res.exit_code == 0, res.output
+    doc = json.loads(res.output)
+    assert 0.0 <= doc["top1"] <= doc["top3"] <= 1.0
+
+
+def test_demo_from_an_unrelated_folder(tmp_path):
+    work = tmp_path / "somewhere"
+    work.mkdir()
+    proc = subprocess.run([MATCHER, "demo", "--out", "demo-out"], cwd=work, capture_output=True, text=True)
+    assert proc.returncode == 0, proc.stderr
+    out = work / "demo-out"
+    df = pd.read_csv(out / "shortlist.csv")
+    assert df["peak"].nunique() == 41
+    html = (out / "report.html").read_text(encoding="utf-8")
+    assert "tentative" in html and "<svg" in html
+    assert "INVENTED" in proc.stdout.upper() or "invented" in proc.stdout
