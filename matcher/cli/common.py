@@ -12,6 +12,7 @@ DbOption = Annotated[
     typer.Option(
         "--db",
         envvar="MATCHER_DB",
+        metavar="PATH_OR_URL",
         help="House library: a file path (SQLite) or an SQLAlchemy URL. "
         "Default: $MATCHER_DB, else a file in your user data directory.",
         show_default=False,

@@ -27,7 +27,7 @@ def register(app: typer.Typer) -> None:
         epilog=EXAMPLE,
     )
     def demo_cmd(
-        out: Annotated[str, typer.Option("--out", help="Folder for the demo files (created if needed).")] = "matcher-demo",
+        out: Annotated[str, typer.Option("--out", metavar="DIR", help="Folder for the demo files (created if needed).")] = "matcher-demo",
     ) -> None:
         from ..demo import run_demo
         from .screen_cmds import summary

@@ -25,9 +25,9 @@ def register(app: typer.Typer) -> None:
         epilog=EXAMPLE,
     )
     def evaluate_cmd(
-        phase_class: Annotated[Optional[str], typer.Option("--class", help="Evaluate one class only.")] = None,
-        noise: Annotated[float, typer.Option(help="Add Gaussian noise of this many index units to every query.")] = 0.0,
-        window: Annotated[Optional[float], typer.Option(help="Half-width of the window (default: the class default).")] = None,
+        phase_class: Annotated[Optional[str], typer.Option("--class", metavar="CLASS", help="Evaluate one class only.")] = None,
+        noise: Annotated[float, typer.Option(metavar="UNITS", help="Add Gaussian noise of this many index units to every query.")] = 0.0,
+        window: Annotated[Optional[float], typer.Option(metavar="UNITS", help="Half-width of the window (default: the class default).")] = None,
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
