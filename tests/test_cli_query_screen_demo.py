@@ -142,3 +142,27 @@ def test_demo_from_an_unrelated_folder(tmp_path):
     html = (out / "report.html").read_text(encoding="utf-8")
     assert "tentative" in html and "<svg" in html
     assert "INVENTED" in proc.stdout.upper() or "invented" in proc.stdout
+
+
+def test_anchors_file_drives_the_correction(lib, tmp_path):
+    """Internal standards named by the user correct a run shifted by +6 units (invented numbers)."""
+    rows = [(1, 1006.0), (2, 1106.0), (3, 1206.0), (4, 1036.0), (5, 1031.0), (6, 1104.0)]
+    (tmp_path / "shifted.csv").write_text("peak,ri\n" + "".join(f"{p},{r}\n" for p, r in rows))
+    # decane, undecane, dodecane by name; two more by reference index
+    (tmp_path / "anchors.csv").write_text("peak,name,ri\n1,decane,\n2,undecane,\n3,dodecane,\n4,,1030\n5,,1025\n")
+    out = tmp_path / "out.json"
+    res = runner.invoke(app, ["screen", str(tmp_path / "shifted.csv"), "--class", "slightly-polar", "--anchors",
+                              str(tmp_path / "anchors.csv"), "-o", str(out), "--db", lib])
+    assert res.exit_code == 0, res.output
+    doc = json.loads(out.read_text())
+    text = json.dumps(doc)
+    assert '"applied": true' in text and "anchors file" in text
+    from matcher.screening import screen
+
+    result = screen([str(tmp_path / "shifted.csv")], "slightly-polar", db=lib, anchors=str(tmp_path / "anchors.csv"))
+    corr = result.runs[0].correction
+    assert corr["applied"] and len(corr["anchors"]) == 5
+    t = result.runs[0].table
+    first = t[t["rank"] == 1].set_index("peak")
+    assert first.loc["1", "ri"] == pytest.approx(1000.0, abs=0.5)
+    assert first.loc["4", "name"] == "limonene"
