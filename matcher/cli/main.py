@@ -49,6 +49,7 @@ def _register_all() -> None:
     for name in (
         "calibrate_cmds",
         "library_cmds",
+        "copy_cmds",
         "phases_cmds",
         "query_cmds",
         "screen_cmds",

@@ -6,6 +6,17 @@
   ``busy_timeout`` (a writer waits for another instead of failing) and
   ``foreign_keys=ON``; write transactions start with ``BEGIN IMMEDIATE`` so
   that two writers queue up instead of deadlocking on a lock upgrade.
+* On a PostgreSQL server (``postgresql+psycopg://user@host/db``; the password
+  comes from ``$PGPASSWORD`` or ``~/.pgpass``, read by libpq) a write
+  transaction runs at READ COMMITTED and its first statement locks the one
+  ``library_state`` row (``SELECT ... FOR UPDATE``), the server's counterpart of
+  ``BEGIN IMMEDIATE``: writers queue on that row, and every later statement of
+  the transaction sees what the writer before it committed, so two analysts
+  adding the same new compound at once give one compound (the unique matching
+  key backs this up). Readers are never blocked. Schema creation and
+  migrations take a transaction-scoped advisory lock, so two ``library init``
+  at once create the schema once. A role that may only read gets a one-line
+  refusal on any change.
 * :func:`init_library` creates the schema (or migrates an older one) and seeds
   the stationary-phase catalog; :func:`open_library` refuses a missing or
   too-new library with one line.
@@ -30,7 +41,7 @@ from datetime import datetime, timezone
 from typing import Callable, Iterator, TypeVar
 
 from sqlalchemy import Connection, Engine, create_engine, event, inspect, select, text, update
-from sqlalchemy.exc import OperationalError, DBAPIError
+from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
 
 from ..errors import LibraryError
@@ -40,6 +51,10 @@ from .models import AuditEntry, Base, LibraryState, Phase, SchemaVersion
 T = TypeVar("T")
 
 BUSY_TIMEOUT_MS = 30_000
+
+
+#: Key of the advisory lock held while the schema is created or migrated on a server.
+SCHEMA_LOCK_KEY = 0x6D617463  # "matc"
 
 
 def _initial(conn: Connection) -> None:  # version 1: the models as first released
@@ -117,23 +132,50 @@ def _writer(engine: Engine) -> Engine:
     return engine
 
 
+def _version_on(conn: Connection) -> int | None:
+    if not inspect(conn).has_table("schema_version"):
+        return None
+    v = conn.execute(text("SELECT MAX(version) FROM schema_version")).scalar()
+    return int(v) if v is not None else None
+
+
 def schema_version(engine: Engine) -> int | None:
     """The applied schema version, or None when the database holds no library."""
     with engine.connect() as conn:
-        if not inspect(conn).has_table("schema_version"):
-            return None
-        v = conn.execute(text("SELECT MAX(version) FROM schema_version")).scalar()
-        return int(v) if v is not None else None
+        return _version_on(conn)
+
+
+def _schema_lock(conn: Connection) -> None:
+    """On a server, serialise schema creation and migration (held until the transaction ends)."""
+    if conn.dialect.name == "postgresql":
+        conn.execute(text("SELECT pg_advisory_xact_lock(:k)"), {"k": SCHEMA_LOCK_KEY})
 
 
 def _where(engine: Engine) -> str:
     return mask_url(engine.url.render_as_string(hide_password=False))
 
 
+#: SQLSTATEs of a change refused because the role may only read (42501 insufficient privilege,
+#: 25006 read-only transaction, as with ``default_transaction_read_only``).
+READ_ONLY_STATES = ("42501", "25006")
+
+
+def sqlstate(exc: BaseException) -> str | None:
+    """The SQLSTATE a server reported for this error (None for SQLite and non-database errors)."""
+    orig = getattr(exc, "orig", exc)
+    return getattr(orig, "sqlstate", None) or getattr(orig, "pgcode", None)
+
+
 def _wrap(engine: Engine, exc: Exception) -> LibraryError:
     from .location import mask_secrets
 
     msg = mask_secrets(" ".join(str(getattr(exc, "orig", exc)).split()))
+    if sqlstate(exc) in READ_ONLY_STATES:
+        user = engine.url.username or "this role"
+        return LibraryError(
+            f"house library {_where(engine)}: refused, {user!s} may read this library but not change it "
+            f"({msg}); screening and queries work, changes need a role with write access"
+        )
     return LibraryError(f"house library {_where(engine)}: {msg}")
 
 
@@ -144,26 +186,40 @@ def init_library(db: str | None = None) -> Engine:
         current = schema_version(engine)
         if current is None:
             with _writer(engine).begin() as conn:
-                Base.metadata.create_all(conn)
-                stamp = now()
-                for v, desc, _fn in MIGRATIONS:
-                    conn.execute(SchemaVersion.__table__.insert().values(version=v, description=desc, applied_at=stamp))
-                conn.execute(LibraryState.__table__.insert().values(id=1, revision=0, changed_at=stamp))
-        elif current > latest_version():
+                _schema_lock(conn)
+                if _version_on(conn) is None:  # nobody created it while we waited for the lock
+                    Base.metadata.create_all(conn)
+                    stamp = now()
+                    for v, desc, _fn in MIGRATIONS:
+                        conn.execute(SchemaVersion.__table__.insert().values(version=v, description=desc, applied_at=stamp))
+                    conn.execute(LibraryState.__table__.insert().values(id=1, revision=0, changed_at=stamp))
+            current = schema_version(engine)
+        if current > latest_version():
             raise LibraryError(
                 f"house library {_where(engine)} has schema version {current}, newer than this "
                 f"program knows ({latest_version()}); upgrade matcher"
             )
-        else:
-            for v, desc, fn in MIGRATIONS:
-                if v > current:
-                    with _writer(engine).begin() as conn:
-                        fn(conn)
-                        conn.execute(SchemaVersion.__table__.insert().values(version=v, description=desc, applied_at=now()))
-        _seed_phases(engine)
-    except OperationalError as exc:
+        for v, desc, fn in MIGRATIONS:
+            if v > current:
+                with _writer(engine).begin() as conn:
+                    _schema_lock(conn)
+                    if (_version_on(conn) or 0) >= v:  # applied by another process meanwhile
+                        continue
+                    fn(conn)
+                    conn.execute(SchemaVersion.__table__.insert().values(version=v, description=desc, applied_at=now()))
+        if _phases_missing(engine):
+            _seed_phases(engine)
+    except DBAPIError as exc:
         raise _wrap(engine, exc) from None
     return engine
+
+
+def _phases_missing(engine: Engine) -> bool:
+    from ..phases import catalog
+
+    with engine.connect() as conn:
+        have = set(conn.execute(select(Phase.name)).scalars())
+    return any(p.name not in have for p in catalog())
 
 
 def _seed_phases(engine: Engine) -> None:
@@ -192,7 +248,7 @@ def open_library(db: str | None = None) -> Engine:
             raise LibraryError(f"no house library at {_where(engine)}; create one with: matcher library init")
     try:
         v = schema_version(engine)
-    except OperationalError as exc:
+    except DBAPIError as exc:
         raise _wrap(engine, exc) from None
     if v is None:
         raise LibraryError(f"no house library at {_where(engine)}; create one with: matcher library init")
@@ -220,8 +276,11 @@ def transaction(target: Engine | str | None = None, *, who: str | None = None, w
     session.info["who"] = who or _default_user()
     try:
         with session.begin():
+            if write and engine.dialect.name == "postgresql":
+                # the writer lock: queue behind any other writer (see the module notes)
+                session.execute(select(LibraryState.revision).where(LibraryState.id == 1).with_for_update())
             yield session
-    except OperationalError as exc:
+    except DBAPIError as exc:
         if is_retryable(exc):
             raise
         raise _wrap(engine, exc) from None
@@ -236,8 +295,7 @@ def is_retryable(exc: BaseException) -> bool:
     msg = str(getattr(exc, "orig", exc)).lower()
     if "database is locked" in msg or "database is busy" in msg:
         return True
-    code = getattr(getattr(exc, "orig", None), "sqlstate", None) or getattr(getattr(exc, "orig", None), "pgcode", None)
-    return code in ("40001", "40P01")
+    return sqlstate(exc) in ("40001", "40P01")
 
 
 def run_write(target: Engine | str | None, fn: Callable[[Session], T], *, who: str | None = None, attempts: int = 8) -> T:
@@ -323,5 +381,5 @@ def ddl(dialect: str = "sqlite") -> str:
 __all__ = [
     "MIGRATIONS", "latest_version", "engine_for", "dispose_all", "init_library", "open_library",
     "transaction", "run_write", "is_retryable", "record", "bump_revision", "revision", "ddl", "now",
-    "schema_version",
+    "schema_version", "sqlstate", "READ_ONLY_STATES",
 ]

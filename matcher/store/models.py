@@ -18,6 +18,10 @@ library_state      one row: the library ``revision``, bumped on every change
 schema_version     the migrations applied (see :mod:`matcher.store.database`)
 =================  ===========================================================
 
+Bounded text columns are ``VARCHAR(n)`` on SQLite (which does not enforce the
+bound) and unbounded ``TEXT`` on PostgreSQL (which would), so a library holds
+exactly the same values on both backends and copies between them losslessly.
+
 Times are stored as ISO-8601 text in UTC so that every backend round-trips
 them identically; observation dates are ISO dates (``YYYY-MM-DD``) as text.
 """
@@ -45,6 +49,11 @@ MODES = ("programmed", "isothermal")
 _CLASS_CHECK = "phase_class IN (" + ", ".join(f"'{c}'" for c in PHASE_CLASSES) + ")"
 
 
+def Str(length: int):
+    """``VARCHAR(length)`` on SQLite, ``TEXT`` on PostgreSQL (see the module notes)."""
+    return String(length).with_variant(Text(), "postgresql")
+
+
 class Base(DeclarativeBase):
     pass
 
@@ -53,17 +62,17 @@ class Compound(Base):
     __tablename__ = "compounds"
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
-    name: Mapped[str] = mapped_column(String(300))
-    key: Mapped[str] = mapped_column(String(300), unique=True)
-    cas: Mapped[Optional[str]] = mapped_column(String(12), index=True)
-    formula: Mapped[Optional[str]] = mapped_column(String(100))
+    name: Mapped[str] = mapped_column(Str(300))
+    key: Mapped[str] = mapped_column(Str(300), unique=True)
+    cas: Mapped[Optional[str]] = mapped_column(Str(12), index=True)
+    formula: Mapped[Optional[str]] = mapped_column(Str(100))
     nominal_mass: Mapped[Optional[int]] = mapped_column(Integer)
-    inchikey: Mapped[Optional[str]] = mapped_column(String(27), index=True)
+    inchikey: Mapped[Optional[str]] = mapped_column(Str(27), index=True)
     smiles: Mapped[Optional[str]] = mapped_column(Text)
     notes: Mapped[Optional[str]] = mapped_column(Text)
-    series: Mapped[Optional[str]] = mapped_column(String(100))
-    key_ions: Mapped[Optional[str]] = mapped_column(String(200))
-    created_at: Mapped[str] = mapped_column(String(32))
+    series: Mapped[Optional[str]] = mapped_column(Str(100))
+    key_ions: Mapped[Optional[str]] = mapped_column(Str(200))
+    created_at: Mapped[str] = mapped_column(Str(32))
 
     synonyms: Mapped[list["Synonym"]] = relationship(
         back_populates="compound", cascade="all, delete-orphan", order_by="Synonym.id"
@@ -78,8 +87,8 @@ class Synonym(Base):
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     compound_id: Mapped[int] = mapped_column(ForeignKey("compounds.id", ondelete="CASCADE"), index=True)
-    name: Mapped[str] = mapped_column(String(300))
-    key: Mapped[str] = mapped_column(String(300), unique=True)
+    name: Mapped[str] = mapped_column(Str(300))
+    key: Mapped[str] = mapped_column(Str(300), unique=True)
 
     compound: Mapped[Compound] = relationship(back_populates="synonyms")
 
@@ -89,8 +98,8 @@ class Phase(Base):
     __table_args__ = (CheckConstraint(_CLASS_CHECK, name="ck_phases_class"),)
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
-    name: Mapped[str] = mapped_column(String(200), unique=True)
-    phase_class: Mapped[str] = mapped_column(String(20))
+    name: Mapped[str] = mapped_column(Str(200), unique=True)
+    phase_class: Mapped[str] = mapped_column(Str(20))
     x: Mapped[Optional[float]] = mapped_column(Float)
     y: Mapped[Optional[float]] = mapped_column(Float)
     z: Mapped[Optional[float]] = mapped_column(Float)
@@ -111,19 +120,19 @@ class Observation(Base):
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     compound_id: Mapped[int] = mapped_column(ForeignKey("compounds.id", ondelete="CASCADE"), index=True)
-    phase_class: Mapped[str] = mapped_column(String(20))
+    phase_class: Mapped[str] = mapped_column(Str(20))
     phase_id: Mapped[Optional[int]] = mapped_column(ForeignKey("phases.id", ondelete="RESTRICT"))
     ri: Mapped[float] = mapped_column(Float)
-    mode: Mapped[str] = mapped_column(String(12), default="programmed")
+    mode: Mapped[str] = mapped_column(Str(12), default="programmed")
     ri_sd: Mapped[Optional[float]] = mapped_column(Float)
     n: Mapped[Optional[int]] = mapped_column(Integer)
     source: Mapped[Optional[str]] = mapped_column(Text)
-    analyst: Mapped[Optional[str]] = mapped_column(String(100))
-    date: Mapped[Optional[str]] = mapped_column(String(10))
+    analyst: Mapped[Optional[str]] = mapped_column(Str(100))
+    date: Mapped[Optional[str]] = mapped_column(Str(10))
     active: Mapped[bool] = mapped_column(Boolean, default=True)
     retired_reason: Mapped[Optional[str]] = mapped_column(Text)
-    retired_at: Mapped[Optional[str]] = mapped_column(String(32))
-    created_at: Mapped[str] = mapped_column(String(32))
+    retired_at: Mapped[Optional[str]] = mapped_column(Str(32))
+    created_at: Mapped[str] = mapped_column(Str(32))
 
     compound: Mapped[Compound] = relationship(back_populates="observations")
     phase: Mapped[Optional[Phase]] = relationship()
@@ -133,10 +142,10 @@ class AuditEntry(Base):
     __tablename__ = "audit_log"
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
-    at: Mapped[str] = mapped_column(String(32))
-    who: Mapped[str] = mapped_column(String(100))
-    action: Mapped[str] = mapped_column(String(40))
-    target: Mapped[str] = mapped_column(String(300), index=True)
+    at: Mapped[str] = mapped_column(Str(32))
+    who: Mapped[str] = mapped_column(Str(100))
+    action: Mapped[str] = mapped_column(Str(40))
+    target: Mapped[str] = mapped_column(Str(300), index=True)
     before: Mapped[Optional[str]] = mapped_column(Text)  # JSON
     after: Mapped[Optional[str]] = mapped_column(Text)  # JSON
     revision: Mapped[int] = mapped_column(Integer)
@@ -148,7 +157,7 @@ class LibraryState(Base):
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     revision: Mapped[int] = mapped_column(Integer, default=0)
-    changed_at: Mapped[str] = mapped_column(String(32))
+    changed_at: Mapped[str] = mapped_column(Str(32))
 
 
 class SchemaVersion(Base):
@@ -156,7 +165,7 @@ class SchemaVersion(Base):
 
     version: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=False)
     description: Mapped[str] = mapped_column(Text)
-    applied_at: Mapped[str] = mapped_column(String(32))
+    applied_at: Mapped[str] = mapped_column(Str(32))
 
 
 __all__ = [

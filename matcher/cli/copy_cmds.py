@@ -1,0 +1,46 @@
+"""``matcher library copy SRC DST``: move a whole library between backends, audit trail included."""
+
+from __future__ import annotations
+
+from typing import Annotated
+
+import typer
+
+from .common import say
+
+EX_COPY = (
+    "Example: move the lab's SQLite library to the shared server (password from $PGPASSWORD or ~/.pgpass),\n"
+    "then keep a file copy of it as a backup\n\n"
+    "    matcher library copy lab.sqlite postgresql+psycopg://curator@db.lab/ri\n\n"
+    "    matcher library copy postgresql+psycopg://curator@db.lab/ri backup-2024-06.sqlite --replace"
+)
+
+
+def _library_group(app: typer.Typer) -> typer.Typer:
+    """The ``library`` group added by :mod:`matcher.cli.library_cmds` (registered before this module)."""
+    for info in app.registered_groups:
+        if info.name == "library" and info.typer_instance is not None:
+            return info.typer_instance
+    lib = typer.Typer(help="Manage the house library.", no_args_is_help=True, rich_markup_mode=None)
+    app.add_typer(lib, name="library")
+    return lib
+
+
+def register(app: typer.Typer) -> None:
+    lib = _library_group(app)
+
+    @lib.command(
+        "copy",
+        help="Copy a whole library (every compound, observation, phase, the audit log and the revision) "
+        "from SRC to DST, e.g. a SQLite file to a PostgreSQL server or back. Refuses a destination "
+        "that already holds a library unless --replace; one transaction, so a failed copy changes nothing.",
+        epilog=EX_COPY,
+    )
+    def copy_cmd(
+        src: Annotated[str, typer.Argument(metavar="SRC", help="Source library: a file path (SQLite) or an SQLAlchemy URL.")],
+        dst: Annotated[str, typer.Argument(metavar="DST", help="Destination library: a file path (SQLite) or an SQLAlchemy URL.")],
+        replace: Annotated[bool, typer.Option("--replace", help="Overwrite a destination that already holds a library.")] = False,
+    ) -> None:
+        from ..store.copying import copy_library
+
+        say(copy_library(src, dst, replace=replace).summary())
