@@ -166,12 +166,17 @@ def sqlstate(exc: BaseException) -> str | None:
     return getattr(orig, "sqlstate", None) or getattr(orig, "pgcode", None)
 
 
-def _wrap(engine: Engine, exc: Exception) -> LibraryError:
+def _wrap(engine: Engine, exc: Exception, *, writing: bool = False) -> LibraryError:
     from .location import mask_secrets
 
     msg = mask_secrets(" ".join(str(getattr(exc, "orig", exc)).split()))
+    user = engine.url.username or "this role"
+    if sqlstate(exc) == "42501" and not writing:
+        return LibraryError(
+            f"house library {_where(engine)}: refused, {user!s} may not read this library ({msg}); "
+            "ask its administrator to grant read access"
+        )
     if sqlstate(exc) in READ_ONLY_STATES:
-        user = engine.url.username or "this role"
         return LibraryError(
             f"house library {_where(engine)}: refused, {user!s} may read this library but not change it "
             f"({msg}); screening and queries work, changes need a role with write access"
@@ -210,7 +215,7 @@ def init_library(db: str | None = None) -> Engine:
         if _phases_missing(engine):
             _seed_phases(engine)
     except DBAPIError as exc:
-        raise _wrap(engine, exc) from None
+        raise _wrap(engine, exc, writing=True) from None
     return engine
 
 
@@ -283,7 +288,7 @@ def transaction(target: Engine | str | None = None, *, who: str | None = None, w
     except DBAPIError as exc:
         if is_retryable(exc):
             raise
-        raise _wrap(engine, exc) from None
+        raise _wrap(engine, exc, writing=write) from None
     finally:
         session.close()
 
@@ -308,7 +313,7 @@ def run_write(target: Engine | str | None, fn: Callable[[Session], T], *, who: s
                 return fn(s)
         except DBAPIError as exc:
             if not is_retryable(exc) or attempt == attempts - 1:
-                raise _wrap(engine, exc) from None
+                raise _wrap(engine, exc, writing=True) from None
             time.sleep(delay)
             delay = min(delay * 2, 1.0)
     raise AssertionError("unreachable")
