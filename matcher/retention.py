@@ -28,15 +28,23 @@ from .errors import InputError
 
 
 def _parse_time_args(times: list[str], rt_unit: str | None) -> np.ndarray:
+    """Times given on the command line: plain decimal numbers (a decimal comma is accepted),
+    positive, finite and at most :data:`matcher.peaks.MAX_RT_MIN` minutes."""
+    from .peaks import MAX_RT_MIN
+    from .tables import _NUMBER, echo
+
+    limit = MAX_RT_MIN * (60.0 if rt_unit == "s" else 1.0)
     out = np.empty(len(times))
     for k, t in enumerate(times):
-        s = str(t).strip().replace(",", ".") if "." not in str(t) else str(t).strip()
-        try:
-            v = float(s)
-        except ValueError:
-            raise InputError(f"not a retention time: {str(t)[:40]!r}", column=f"argument {k + 1}") from None
-        if not np.isfinite(v) or v <= 0:
-            raise InputError(f"retention times must be positive finite numbers, got {str(t)[:40]!r}", column=f"argument {k + 1}")
+        s = str(t).strip().replace("\u2212", "-")
+        if "." not in s:
+            s = s.replace(",", ".")
+        if not s.isascii() or not _NUMBER.fullmatch(s):
+            raise InputError(f"not a retention time: {echo(str(t))}", column=f"argument {k + 1}") from None
+        v = float(s)
+        if not np.isfinite(v) or v <= 0 or v > limit:
+            raise InputError(f"retention times must be positive finite numbers of at most {limit:g} "
+                             f"{'s' if rt_unit == 's' else 'min'}, got {echo(str(t))}", column=f"argument {k + 1}")
         out[k] = v
     return out / 60.0 if rt_unit == "s" else out
 

@@ -649,3 +649,18 @@ def test_kill_9_during_a_100000_row_import_leaves_the_library_whole(tmp_path, bi
     assert killed, "no import was killed"
     assert trials["deep in the transaction"]["wal_at_kill"] > 2_000_000  # the kill did land mid-write
     dispose_all()
+
+
+@pytest.mark.parametrize("arg,says", [("1_000", "not a retention time"), ("0x10", "not a retention time"),
+                                      ("５", "not a retention time"), ("1e308", "at most 10000 min"),
+                                      ("-1", "positive"), ("nan", "positive")])
+def test_ri_refuses_odd_time_arguments(lab, arg, says):
+    res = run_in(["ri", "-c", lab["cal"], "5.21", "--", arg])
+    assert_refused(res, None, None, "argument 2", says)
+    assert res.out == ""
+
+
+def test_ri_time_argument_with_a_decimal_comma(lab):
+    res = run_in(["ri", "-c", lab["cal"], "5,21"])
+    assert res.code == 0, res.err
+    assert float(_ri_rows(res.out)[0]["ri"]) == pytest.approx(vdk(5.21, 4.12, 6.30, 8), abs=1e-3)
