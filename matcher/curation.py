@@ -359,13 +359,13 @@ def add_confirmed(db: str | None, name: str, phase_class: str, ri: float, *, for
                   analyst: str | None = None, force: bool = False, new: bool = False,
                   as_existing: str | None = None, ask: Callable[[str, list[Match]], str | None] | None = None,
                   inchikey: str | None = None, date: str | None = None, mode: str | None = None,
-                  provenance: dict | None = None, once: bool = False) -> AddResult:
+                  provenance: dict | None = None, once: str | None = None) -> AddResult:
     """Add one confirmed observation (see the module doc for name resolution and the outlier guard).
 
     ``ask(name, matches)`` may return a compound name (attach to it), :data:`NEW` (create a new
-    compound) or None (refuse). ``provenance`` is kept in an audit entry ``confirm``; with
-    ``once`` an observation of the same compound with the same ``source`` is refused (a peak
-    confirmed twice) unless ``force``.
+    compound) or None (refuse). ``provenance`` is kept in an audit entry ``confirm``; when an
+    observation of the compound already has the text ``once`` in its source (the same peak
+    confirmed twice) the addition is refused unless ``force``.
     Raises :class:`~matcher.errors.RefusedChange` (nothing written) when refused.
     """
     from .store.database import open_library, record, run_write
@@ -383,10 +383,10 @@ def add_confirmed(db: str | None, name: str, phase_class: str, ri: float, *, for
         created = c is None
         before = None if created else _class_summary(c, cls)
         forced = False
-        if once and not created and source and not force:
-            twin = next((o for o in c.observations if o.source == source), None)
+        if once and not created and not force:
+            twin = next((o for o in c.observations if once in (o.source or "")), None)
             if twin is not None:
-                raise RefusedChange(f"already recorded as observation {twin.id} of {c.name!r} ({source}); "
+                raise RefusedChange(f"already recorded as observation {twin.id} of {c.name!r} ({once}); "
                                     f"nothing written; add --force to record it again")
         if before is not None:
             dev = v["ri"] - before.centre
@@ -642,7 +642,7 @@ def confirm_from_results(db: str | None, results_path: str | os.PathLike, peak: 
         if facts.ri_measured is None:
             raise MatcherError(f"{facts.results}: peak {facts.peak} has no ri_measured")
         ri = facts.ri_measured
-    text = facts.source_text()
+    text = here = facts.source_text()
     if facts.corrected and facts.ri_measured is not None:
         text += f"; index {'as measured' if measured else 'after run correction'}, measured {facts.ri_measured:g}, corrected {facts.ri:g}"
     if source:
@@ -654,7 +654,7 @@ def confirm_from_results(db: str | None, results_path: str | os.PathLike, peak: 
             "best_candidate": facts.best, "sidecar": facts.sidecar}
     return add_confirmed(db, name, facts.phase_class, ri, source=text, analyst=analyst, force=force, new=new,
                          as_existing=as_existing, ask=ask, date=facts.date or None, mode=facts.mode,
-                         provenance=prov, once=True)
+                         provenance=prov, once=here)
 
 
 # --------------------------------------------------------------------------- history and retiring

@@ -474,17 +474,18 @@ for k in range(count):
 
 
 def _writers(url, tags, count=25, script=_WRITER):
+    """Writer processes that all start adding at the same moment; (processes, start time)."""
     import time
 
     start = time.time() + 1.5
     procs = [subprocess.Popen([sys.executable, "-c", script, url, t, str(count), str(start)],
                               stdout=subprocess.PIPE, stderr=subprocess.PIPE) for t in tags]
-    return procs
+    return procs, start
 
 
 def test_two_writer_processes_lose_nothing(library_url):
     cu.add_confirmed(library_url, "limonene", "nonpolar", 1024.0)
-    procs = _writers(library_url, ["p1", "p2"])
+    procs, _ = _writers(library_url, ["p1", "p2"])
     for p in procs:
         out, err = p.communicate(timeout=300)
         assert p.returncode == 0, err.decode()
@@ -499,18 +500,18 @@ def test_two_writer_processes_lose_nothing(library_url):
 def test_backup_while_another_process_writes_is_consistent(library_url, tmp_path):
     _sqlite_only(library_url)
     cu.add_confirmed(library_url, "limonene", "nonpolar", 1024.0)
-    procs = _writers(library_url, ["w"], count=40)
+    procs, start = _writers(library_url, ["w"], count=60)
     import time
 
+    time.sleep(max(0.0, start - time.time()))
     copies = []
-    deadline = time.time() + 60
-    while procs[0].poll() is None and time.time() < deadline and len(copies) < 6:
+    while procs[0].poll() is None and len(copies) < 40:
         dest = tmp_path / f"b{len(copies)}.sqlite"
         cu.backup(library_url, dest)
         copies.append(dest)
-        time.sleep(0.2)
     procs[0].communicate(timeout=300)
     assert procs[0].returncode == 0 and copies
+    counts = []
     for dest in copies:
         con = sqlite3.connect(dest)
         # in a consistent copy every audited observation exists, and each transaction bumped the revision once
@@ -520,3 +521,5 @@ def test_backup_while_another_process_writes_is_consistent(library_url, tmp_path
         max_rev = con.execute("SELECT MAX(revision) FROM audit_log").fetchone()[0]
         con.close()
         assert n_obs == n_audit and rev == max_rev
+        counts.append(n_obs)
+    assert any(1 < n < 61 for n in counts), counts  # at least one copy was taken mid-way
