@@ -42,7 +42,8 @@ class InputError(MatcherError):
     def __str__(self) -> str:
         where: list[str] = []
         if self.file:
-            where.append(str(self.file))
+            # a file name may hold a line break (legal on Linux): escape it so the message stays one line
+            where.append("".join(c if c.isprintable() else repr(c)[1:-1] for c in str(self.file)))
         if self.row is not None:
             part = f"data row {self.row}"
             if self.line is not None:

@@ -90,8 +90,9 @@ def matching_key(text: str) -> str:
 
 
 def display_name(text: str) -> str:
-    """The name as it will be shown: NFC, stripped, whitespace collapsed (spelling kept)."""
-    return " ".join(unicodedata.normalize("NFC", str(text)).split())
+    """The name as it will be stored and shown: NFC and stripped; everything inside kept literally
+    (an embedded line break too; tables on the terminal show it as a space)."""
+    return unicodedata.normalize("NFC", str(text)).strip()
 
 
 def rank(query: str, choices: Sequence[str], limit: int = 10, cutoff: float = 50.0) -> list[tuple[int, float]]:

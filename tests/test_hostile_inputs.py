@@ -461,8 +461,6 @@ def test_odd_names_show_literally(odd_lab, name):
     assert res.code == 0 and res.out.splitlines()[0] == name
 
 
-@pytest.mark.xfail(strict=True, reason="matcher/names.py display_name() collapses an embedded newline into a space "
-                   "(store owner; see the hardening report)")
 def test_embedded_newline_in_a_name_is_kept(tmp_path):
     db = tmp_path / "nl.sqlite"
     assert run_in(["library", "init", "--db", db]).code == 0
@@ -565,8 +563,6 @@ def test_password_is_masked_in_import_and_screen_and_from_the_environment(lab, t
     assert res.code == 2 and SECRET not in res.err
 
 
-@pytest.mark.xfail(strict=True, reason="store/database.py _where() masks only user:password@, not a "
-                   "?password= query parameter (store owner; see the hardening report)")
 def test_password_in_the_query_string_is_masked():
     res = run_in(["library", "stats", "--db", f"postgresql+psycopg://analyst@127.0.0.1:1/ri?password={SECRET}"])
     assert res.code != 0 and SECRET not in res.err + res.out

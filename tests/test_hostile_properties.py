@@ -194,13 +194,11 @@ def test_echo_is_one_short_line(text, limit):
 @given(st.text(), st.text(max_size=30), st.none() | st.integers(1, 10**6), st.none() | st.text(max_size=30))
 def test_input_error_text_is_always_one_line(message, file, row, column):
     assume(message.strip())
-    file = "".join(ch for ch in file if ch.isprintable())  # a line break in a file name: see the xfail below
+    file = "".join(ch for ch in file if ch.isprintable())  # a line break in a file name: see the next test
     e = InputError(message, file=file or None, row=row, line=None if row is None else row + 1, column=column)
     assert len(str(e).splitlines()) == 1
 
 
-@pytest.mark.xfail(strict=True, reason="matcher/errors.py InputError.__str__ puts the file name in unescaped; a "
-                   "(legal POSIX) file name with a line break splits the message (lead; see the hardening report)")
 @settings(max_examples=50, deadline=None)
 @given(st.sampled_from(["\n", "\r", "\u2028", "\x85"]))
 def test_input_error_with_a_line_break_in_the_file_name_is_one_line(brk):

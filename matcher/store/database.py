@@ -45,7 +45,7 @@ from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
 
 from ..errors import LibraryError
-from .location import mask_url, resolve
+from .location import mask_secrets, mask_url, resolve
 from .models import AuditEntry, Base, LibraryState, Phase, SchemaVersion
 
 T = TypeVar("T")
@@ -152,7 +152,7 @@ def _schema_lock(conn: Connection) -> None:
 
 
 def _where(engine: Engine) -> str:
-    return mask_url(engine.url.render_as_string(hide_password=False))
+    return mask_secrets(engine.url.render_as_string(hide_password=False))
 
 
 #: SQLSTATEs of a change refused because the role may only read (42501 insufficient privilege,

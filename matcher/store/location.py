@@ -28,7 +28,7 @@ import re
 
 # user:password@ where the password runs to the last '@' before the host (a password may hold '@')
 _URL_PASSWORD = re.compile(r"([a-zA-Z][a-zA-Z0-9+.\-]*://[^:/@\s]*):(\S*?)@(?=[^@/\s]*(?:[/?#\s'\"]|$))")
-_KV_PASSWORD = re.compile(r"(password\s*=\s*)('[^']*'|\"[^\"]*\"|\S+)", re.IGNORECASE)
+_KV_PASSWORD = re.compile(r"(password\s*=\s*)('[^']*'|\"[^\"]*\"|[^\s&;]+)", re.IGNORECASE)
 
 
 def mask_url(url: str) -> str:

@@ -1,6 +1,6 @@
 """Convert 1,000,000 retention times with a calibration; compare with a bare numpy.interp.
 
-Run: python benchmarks/bench_ri.py   (invented ladder; prints seconds and the ratio)
+Run: python tests/benchmarks/bench_ri.py   (invented ladder; prints seconds and the ratio)
 """
 
 from __future__ import annotations
