@@ -16,6 +16,7 @@ import json
 import os
 import subprocess
 import sys
+import tempfile
 import time
 
 import pytest
@@ -33,12 +34,16 @@ pytestmark = pytest.mark.postgres
 
 PASSWORD = "Zq7-s3cret-pw!x"  # distinctive, so that a leak in any output is found
 
+# Subprocesses start outside the source tree, so they import the INSTALLED package
+# (from the repository root, ``python -m matcher`` would pick up the source folder).
+NEUTRAL_CWD = tempfile.gettempdir()
+
 
 def _cli(*args: str, env: dict | None = None, timeout: float = 120) -> subprocess.CompletedProcess:
     full_env = {**os.environ, **(env or {})}
     full_env.pop("MATCHER_DB", None)
     return subprocess.run([sys.executable, "-m", "matcher", *args], capture_output=True, text=True,
-                          env=full_env, timeout=timeout)
+                          env=full_env, timeout=timeout, cwd=NEUTRAL_CWD)
 
 
 def _example(tmp_path, name: str):
@@ -186,7 +191,7 @@ def test_four_processes_25_additions_each_lose_nothing(library_url):
     start = time.time() + 2.0  # all four begin writing at the same moment
     for me in range(4):
         procs.append(subprocess.Popen([sys.executable, "-c", WRITER, library_url, str(me), str(start)],
-                                      stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True))
+                                      stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=NEUTRAL_CWD))
     results = [p.communicate(timeout=180) for p in procs]
     assert all(p.returncode == 0 for p in procs), [e for _, e in results]
     dbm.dispose_all()
@@ -209,7 +214,7 @@ def test_two_processes_creating_the_schema_at_once(pg_database):
             "print(revision(init_library(sys.argv[1])))")
     start = time.time() + 1.5
     procs = [subprocess.Popen([sys.executable, "-c", code, url, str(start)], stdout=subprocess.PIPE,
-                              stderr=subprocess.PIPE, text=True) for _ in range(2)]
+                              stderr=subprocess.PIPE, text=True, cwd=NEUTRAL_CWD) for _ in range(2)]
     outs = [p.communicate(timeout=120) for p in procs]
     assert all(p.returncode == 0 for p in procs), [e for _, e in outs]
     with dbm.transaction(url, write=False) as s:
