@@ -504,11 +504,24 @@ def test_backup_while_another_process_writes_is_consistent(library_url, tmp_path
     import time
 
     time.sleep(max(0.0, start - time.time()))
+    live = library_url.split("///", 1)[1]
+
+    def written() -> int:
+        con = sqlite3.connect(live, timeout=30)
+        try:
+            return con.execute("SELECT COUNT(*) FROM observations").fetchone()[0]
+        finally:
+            con.close()
+
+    deadline = time.time() + 120
+    while procs[0].poll() is None and written() < 2 and time.time() < deadline:
+        time.sleep(0.01)  # wait for the writer's first addition, so copies are taken while it writes
     copies = []
     while procs[0].poll() is None and len(copies) < 40:
         dest = tmp_path / f"b{len(copies)}.sqlite"
         cu.backup(library_url, dest)
         copies.append(dest)
+        time.sleep(0.02)
     procs[0].communicate(timeout=300)
     assert procs[0].returncode == 0 and copies
     counts = []
