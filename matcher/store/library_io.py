@@ -387,6 +387,7 @@ def import_library(db: str | None, path: str | Path, *, replace: bool = False, w
             s.have = have
         # observations in file order, so that ids follow the file
         order = sorted(((r, s) for s in slots for r in s.rows), key=lambda t: t[0].row)
+        pending: list = []
         for r, s in order:
             phase = None
             if r.phase:
@@ -403,11 +404,12 @@ def import_library(db: str | None, path: str | Path, *, replace: bool = False, w
             if sig in s.have:
                 report.observations_skipped += 1
                 continue
-            writes.add_observation(session, s.compound, {
+            pending.append((s.compound, {
                 "phase_class": r.phase_class, "ri": r.ri, "mode": r.mode, "ri_sd": r.ri_sd, "n": r.n,
                 "source": r.source, "analyst": r.analyst, "date": r.date, "retired_reason": r.retired or None,
-            }, phase)
+            }, phase))
             report.observations_added += 1
+        writes.add_observations(session, pending)  # one bulk insert, audited row by row
         if report.observations_added or report.compounds_updated or replace:
             record(session, "import", f"file:{Path(path).name}", None, {
                 "rows": report.rows, "added": report.observations_added,

@@ -19,6 +19,8 @@ Example, adding one observation to a new compound::
 
 from __future__ import annotations
 
+import json
+
 from dataclasses import dataclass, field
 
 from sqlalchemy import select
@@ -156,6 +158,46 @@ def add_observation(session: Session, compound: Compound, fields: dict, phase: P
     return o
 
 
+def add_observations(session: Session, items: list[tuple[Compound, dict, Phase | None]]) -> list[int]:
+    """Many new observations in two bulk statements (observations, then their audit entries).
+
+    The same rows and audit entries as calling :func:`add_observation` for each item, in order,
+    without one ORM flush per row; returns the new ids in item order.
+    """
+    from sqlalchemy import insert
+
+    from .database import _default_user, bump_revision
+    from .models import AuditEntry
+
+    if not items:
+        return []
+    stamp = now()
+    rows = []
+    for compound, fields, phase in items:
+        retired = fields.get("retired_reason") or None
+        rows.append({
+            "compound_id": compound.id, "phase_id": phase.id if phase is not None else None,
+            "phase_class": fields["phase_class"], "ri": float(fields["ri"]), "mode": fields.get("mode") or "programmed",
+            "ri_sd": fields.get("ri_sd"), "n": fields.get("n"), "source": fields.get("source") or None,
+            "analyst": fields.get("analyst") or None, "date": fields.get("date") or None,
+            "active": retired is None, "retired_reason": retired, "retired_at": stamp if retired else None,
+            "created_at": stamp,
+        })
+    session.flush()
+    ids = list(session.scalars(insert(Observation).returning(Observation.id, sort_by_parameter_order=True), rows))
+    rev = bump_revision(session)
+    who = session.info.get("who") or _default_user()
+    audit = []
+    for oid, row, (compound, _, _) in zip(ids, rows, items):
+        after = {"id": oid, "compound_id": row["compound_id"], **{f: row[f] for f in OBSERVATION_FIELDS},
+                 "phase_id": row["phase_id"], "active": bool(row["active"]), "retired_reason": row["retired_reason"],
+                 "compound": compound.name}
+        audit.append({"at": stamp, "who": who, "action": "add-observation", "target": f"compound:{compound.id}",
+                      "before": None, "after": json.dumps(after, sort_keys=True, ensure_ascii=False), "revision": rev})
+    session.execute(insert(AuditEntry), audit)
+    return ids
+
+
 def retire_observation(session: Session, obs_id: int, reason: str) -> Observation:
     """Stop using an observation (the row stays, with the reason); audited."""
     o = session.get(Observation, obs_id)
@@ -170,5 +212,6 @@ def retire_observation(session: Session, obs_id: int, reason: str) -> Observatio
 
 __all__ = [
     "COMPOUND_FIELDS", "OBSERVATION_FIELDS", "CompoundIndex", "compound_dict", "observation_dict",
-    "create_compound", "update_compound", "get_phase", "add_observation", "retire_observation", "phase_key",
+    "create_compound", "update_compound", "get_phase", "add_observation", "add_observations", "retire_observation",
+    "phase_key",
 ]
