@@ -1,7 +1,8 @@
 """Growing the house library with compounds confirmed by an authentic standard.
 
-The library API behind ``matcher library add|history|retire|merge|backup`` and
-``matcher confirm``. Every change runs in ONE write transaction through
+The library API behind ``matcher library add|history|retire`` and ``matcher confirm``
+(merging two libraries is :mod:`matcher.library_merge`, a consistent copy is
+:mod:`matcher.store.backup`, reading a screening output is :mod:`matcher.results_reader`). Every change runs in ONE write transaction through
 :func:`matcher.store.database.run_write` (SQLite: WAL, busy timeout,
 ``BEGIN IMMEDIATE``, retried on lock), goes through
 :mod:`matcher.store.writes` (so it is audited and bumps the revision), and a
@@ -52,20 +53,18 @@ provenance record.
 
 from __future__ import annotations
 
-import csv
 import json
 import math
 import os
-import sqlite3
 from dataclasses import asdict, dataclass, field
 from datetime import date as _date, datetime, timezone
-from pathlib import Path
 from typing import Any, Callable, Sequence
 
 import numpy as np
 
 from .classes import DEFAULT_WINDOWS, check_class
-from .errors import InputError, LibraryError, MatcherError, RefusedChange
+from .errors import LibraryError, MatcherError, RefusedChange
+from .results_reader import read_peak
 
 #: Similarity (0-100) of matching keys at or above which a new name counts as close to a library name.
 CLOSE_SCORE = 88.0
@@ -268,15 +267,12 @@ def _lookup(session, idx, text: str):
 
 
 def _close_names(session, text: str, limit: int = 5) -> list[Match]:
-    from sqlalchemy import select
-
-    from .store.models import Synonym
-    from .store.writes import CompoundIndex
+    from .store.writes import CompoundIndex, synonym_names
 
     best: dict[str, Match] = {}
     idx = CompoundIndex.read(session)
     choices = [(cid, nm) for cid, nm in idx.names.items()]
-    choices += [(s.compound_id, s.name) for s in session.scalars(select(Synonym))]
+    choices += synonym_names(session)
     for cid, nm in choices:
         sc = closeness(text, nm)
         if sc >= CLOSE_SCORE:
@@ -451,176 +447,6 @@ def add_confirmed(db: str | None, name: str, phase_class: str, ri: float, *, for
 # --------------------------------------------------------------------------- confirming from screening outputs
 
 
-@dataclass
-class PeakFacts:
-    """One peak of a screening output and the facts of its run."""
-
-    results: str
-    run: str
-    peak: str
-    ri: float
-    ri_measured: float | None
-    phase_class: str
-    flags: list[str]
-    best: str  # the top candidate's name ("" when none)
-    run_source: str = ""
-    ladder: str = ""
-    mode: str = "programmed"
-    calibrated: str = ""
-    screened: str = ""
-    tool_version: str = ""
-    corrected: bool = False
-    sidecar: bool = True
-
-    @property
-    def date(self) -> str:
-        return (self.calibrated or self.screened)[:10]
-
-    def source_text(self) -> str:
-        bits = [f"peaks {self.run_source}" if self.run_source else "",
-                f"ladder {self.ladder}" if self.ladder else "",
-                f"screened {self.screened}" + (f" with matcher {self.tool_version}" if self.tool_version else "")
-                if self.screened else "",
-                "" if self.sidecar else "no provenance sidecar found"]
-        inner = "; ".join(b for b in bits if b)
-        return f"confirmed from {Path(self.results).name}, run {self.run}, peak {self.peak}" + (f" ({inner})" if inner else "")
-
-
-def _same_id(a: Any, b: Any) -> bool:
-    sa, sb = str(a).strip(), str(b).strip()
-    if sa == sb:
-        return True
-    try:
-        return float(sa) == float(sb)
-    except ValueError:
-        return False
-
-
-def _num(text: Any) -> float | None:
-    if text is None or str(text).strip() == "":
-        return None
-    try:
-        v = float(text)
-    except (TypeError, ValueError):
-        return None
-    return v if math.isfinite(v) else None
-
-
-def _load_json(path: Path, what: str) -> dict:
-    try:
-        doc = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"cannot read {what}: {exc}", file=str(path)) from None
-    except json.JSONDecodeError as exc:
-        raise InputError(f"not valid JSON ({exc.msg})", file=str(path), line=exc.lineno) from None
-    if not isinstance(doc, dict) or doc.get("format") != "matcher.screen-output":
-        raise InputError(f"not a matcher screening output ({what})", file=str(path))
-    return doc
-
-
-def _run_facts(run_doc: dict | None, doc: dict | None) -> dict:
-    if not run_doc:
-        return {}
-    cal = run_doc.get("calibration") or {}
-    src = cal.get("source") or {}
-    corr = run_doc.get("correction") or {}
-    return {
-        "run_source": str(run_doc.get("source") or ""),
-        "ladder": str(src.get("ladder") or ""),
-        "mode": str(cal.get("mode") or "programmed"),
-        "calibrated": str(cal.get("created") or ""),
-        "screened": str((doc or {}).get("created") or ""),
-        "tool_version": str(((doc or {}).get("tool") or {}).get("version") or ""),
-        "corrected": bool(corr.get("applied")),
-        "class": run_doc.get("class"),
-    }
-
-
-def _pick(found: list, results: str, peak: str, run: str | None, runs_seen: list[str]):
-    if run is not None:
-        found = [f for f in found if f[0] == run]
-        if not found:
-            raise MatcherError(f"{results}: no peak {peak!r} in run {run!r}; runs: {', '.join(runs_seen) or 'none'}")
-    if not found:
-        raise MatcherError(f"{results}: no peak {peak!r}")
-    labels = sorted({f[0] for f in found})
-    if len(labels) > 1:
-        raise MatcherError(f"{results}: peak {peak!r} is in several runs ({', '.join(labels)}); say which with --run")
-    return found[0]
-
-
-def read_peak(results_path: str | os.PathLike, peak: Any, *, run: str | None = None) -> PeakFacts:
-    """The peak's index and its run's facts from a screening CSV (+ sidecar) or JSON output."""
-    path = Path(results_path)
-    if not path.is_file():
-        raise InputError("no such file", file=str(path))
-    if path.suffix.lower() == ".json":
-        doc = _load_json(path, "JSON output")
-        if doc.get("content") != "shortlist":
-            raise InputError("this is the provenance sidecar of a CSV; give the CSV itself", file=str(path))
-        found = []
-        runs_seen = []
-        for rd in doc.get("runs") or []:
-            runs_seen.append(str(rd.get("label")))
-            for p in rd.get("peaks") or []:
-                if _same_id(p.get("peak"), peak):
-                    found.append((str(rd.get("label")), rd, p))
-        label, rd, p = _pick(found, str(path), str(peak), run, runs_seen)
-        facts = _run_facts(rd, doc)
-        cands = p.get("candidates") or []
-        ri = _num(p.get("ri"))
-        cls = p.get("class") or facts.get("class")
-        flags = list(p.get("flags") or [])
-        best = str(cands[0].get("name") or "") if cands else ""
-        ri_measured = _num(p.get("ri_measured"))
-        sidecar = True
-    else:
-        from .writers import sidecar_path
-
-        side = sidecar_path(path)
-        doc = _load_json(side, "provenance sidecar") if side.is_file() else None
-        found = []
-        runs_seen: list[str] = []
-        try:
-            with open(path, newline="", encoding="utf-8-sig") as fh:
-                reader = csv.DictReader(fh)
-                need = {"peak", "ri", "class"} - set(reader.fieldnames or [])
-                if need:
-                    raise InputError(f"not a screening CSV: missing column(s) {', '.join(sorted(need))}", file=str(path), line=1)
-                for k, row in enumerate(reader, start=1):
-                    label = str(row.get("run") or "").strip() or "run"
-                    if label not in runs_seen:
-                        runs_seen.append(label)
-                    if _same_id(row.get("peak"), peak):
-                        found.append((label, k, row))
-        except (OSError, UnicodeDecodeError) as exc:
-            raise InputError(f"cannot read the screening CSV: {exc}", file=str(path)) from None
-        label, k, row = _pick(found, str(path), str(peak), run, runs_seen)
-        rows = [f for f in found if f[0] == label]
-        first = rows[0][2]
-        ranked = [r for _, _, r in rows if _num(r.get("rank")) is not None]
-        ranked.sort(key=lambda r: _num(r.get("rank")))
-        best = str(ranked[0].get("name") or "") if ranked else ""
-        ri = _num(first.get("ri"))
-        if ri is None:
-            raise InputError(f"peak {peak!r} has no index in column 'ri'", file=str(path), row=rows[0][1], column="ri")
-        rd = None
-        if doc is not None:
-            rd = next((r for r in doc.get("runs") or [] if str(r.get("label")) == label), None)
-        facts = _run_facts(rd, doc)
-        cls = first.get("class") or facts.get("class")
-        flags = [f for f in str(first.get("flags") or "").split(";") if f]
-        ri_measured = _num(first.get("ri_measured"))
-        sidecar = doc is not None
-    if ri is None:
-        raise InputError(f"peak {peak!r} has no retention index", file=str(path))
-    if not cls:
-        raise InputError(f"the run of peak {peak!r} names no phase class", file=str(path))
-    facts.pop("class", None)
-    return PeakFacts(results=str(path), run=label, peak=str(peak).strip(), ri=ri, ri_measured=ri_measured,
-                     phase_class=check_class(cls), flags=flags, best=best, sidecar=sidecar, **facts)
-
-
 def confirm_from_results(db: str | None, results_path: str | os.PathLike, peak: Any, name: str, *,
                          run: str | None = None, source: str | None = None, analyst: str | None = None,
                          force: bool = False, new: bool = False, as_existing: str | None = None,
@@ -662,12 +488,10 @@ def confirm_from_results(db: str | None, results_path: str | os.PathLike, peak: 
 
 def history(db: str | None, name: str) -> list[dict]:
     """The audit trail of one compound (name, synonym or CAS): dicts when, who, action, before, after, revision."""
-    from sqlalchemy import select
     from sqlalchemy.orm import Session
 
     from .store.database import open_library
-    from .store.models import AuditEntry
-    from .store.writes import CompoundIndex
+    from .store.writes import CompoundIndex, audit_trail
 
     engine = open_library(db)
     with Session(engine) as s:
@@ -675,7 +499,7 @@ def history(db: str | None, name: str) -> list[dict]:
         if c is None:
             raise _not_found(s, name)
         target = f"compound:{c.id}"
-        entries = list(s.scalars(select(AuditEntry).where(AuditEntry.target == target).order_by(AuditEntry.id)))
+        entries = audit_trail(s, target)
     # ids can be reused after `import --replace`: start at this compound's own creation
     start = 0
     for k, e in enumerate(entries):
@@ -720,265 +544,3 @@ def retire(db: str | None, observation_id: int, why: str, *, analyst: str | None
 
 
 # --------------------------------------------------------------------------- merging two libraries
-
-
-@dataclass
-class Conflict:
-    """Something in the other library that was not merged, and why."""
-
-    compound: str
-    phase_class: str
-    reason: str
-    ours: dict | None = None
-    theirs: dict | None = None
-
-    def text(self) -> str:
-        return f"{self.compound} [{self.phase_class or '-'}]: {self.reason}"
-
-
-@dataclass
-class MergeReport:
-    """What :func:`merge` did."""
-
-    other: str
-    observations_added: int = 0
-    observations_present: int = 0
-    observations_held: int = 0  # not added because of a conflict
-    compounds_created: int = 0
-    compounds_updated: int = 0
-    conflicts: list[Conflict] = field(default_factory=list)
-    revision: int | None = None
-
-    def summary(self) -> str:
-        return (f"merged {self.other}: {self.observations_added} observations added "
-                f"({self.observations_present} already present, {self.observations_held} held back by "
-                f"{len(self.conflicts)} conflict(s)), {self.compounds_created} new compounds, "
-                f"{self.compounds_updated} compounds updated")
-
-    def as_dict(self) -> dict:
-        return asdict(self)
-
-
-def _other_rows(other: str):
-    """The other library as validated library rows (a library file, or a library's export)."""
-    import tempfile
-
-    from .store.library_io import export_library, read_rows
-
-    if str(other).lower().endswith((".csv", ".txt", ".xlsx")) and "://" not in str(other):
-        return read_rows(other)[0]
-    with tempfile.TemporaryDirectory() as tmp:
-        p = os.path.join(tmp, "other-library.csv")
-        export_library(other, p)
-        return read_rows(p)[0]
-
-
-def _sig(phase_class, ri, mode, ri_sd, n, phase, source, analyst, date) -> tuple:
-    from .store.writes import phase_key
-
-    return (phase_class, float(ri), mode or "programmed", ri_sd, n, phase_key(phase) if phase else "",
-            source or "", analyst or "", date or "")
-
-
-def _shown(other: str) -> str:
-    from .store.location import mask_url, resolve
-
-    if "://" not in str(other) and str(other).lower().endswith((".csv", ".txt", ".xlsx")):
-        return str(other)
-    return mask_url(resolve(other))
-
-
-def merge(db: str | None, other_db: str, *, analyst: str | None = None) -> MergeReport:
-    """Combine ``other_db`` (a library path/URL or a library CSV) into ``db``, in one transaction.
-
-    Compounds are matched by name or synonym key, else by a CAS number that exactly one of
-    ours has. Observations already present (same class, index, mode, spread, n, phase,
-    source, analyst, date; active or retired) are skipped, so merging twice adds nothing.
-    Nothing is overwritten: a compound whose CAS number or formula contradicts ours, a
-    phase filed under another class, or a class whose centres lie farther apart than the
-    outlier guard (:func:`guard_limit` of our summary) is reported as a conflict and its
-    observations are held back.
-    """
-    from .names import matching_key
-    from .store.database import open_library, record, run_write
-    from .store import writes
-    from .store.models import Compound
-    from .store.writes import CompoundIndex
-
-    rows = _other_rows(other_db)
-    engine = open_library(db)
-    shown = _shown(other_db)
-    report = MergeReport(other=shown)
-
-    groups: dict[str, list] = {}
-    for r in rows:
-        groups.setdefault(matching_key(r.name), []).append(r)
-
-    def work(session) -> MergeReport:
-        rep = MergeReport(other=shown)
-        idx = CompoundIndex.read(session)
-        for key, grp in groups.items():
-            first = grp[0]
-            names = [first.name] + list(first.synonyms)
-            cid = next((idx.by_key[matching_key(nm)] for nm in names if matching_key(nm) in idx.by_key), None)
-            if cid is None and first.cas and len(idx.by_cas.get(first.cas, ())) == 1:
-                cid = idx.by_cas[first.cas][0]
-            c = session.get(Compound, cid) if cid is not None else None
-            fields = {f: next((getattr(r, f) for r in grp if getattr(r, f)), "") for f in ("cas", "formula", "inchikey", "smiles", "notes", "series", "key_ions")}
-            if c is not None:
-                bad = [f"{f} {fields[f]} (ours {getattr(c, f)})" for f in ("cas", "formula", "inchikey")
-                       if fields[f] and getattr(c, f) and getattr(c, f) != fields[f]]
-                owners = {idx.by_key[matching_key(nm)] for nm in names if matching_key(nm) in idx.by_key}
-                if len(owners) > 1:
-                    bad.append("its names belong to different compounds here: " + ", ".join(sorted(idx.names[i] for i in owners)))
-                if bad:
-                    rep.conflicts.append(Conflict(c.name, "", "identity differs: " + "; ".join(bad)))
-                    rep.observations_held += len(grp)
-                    continue
-                have = {_sig(o.phase_class, o.ri, o.mode, o.ri_sd, o.n, o.phase.name if o.phase else "", o.source,
-                             o.analyst, o.date) for o in c.observations}
-            else:
-                have = set()
-            fresh = []
-            for r in grp:
-                if _sig(r.phase_class, r.ri, r.mode, r.ri_sd, r.n, r.phase, r.source, r.analyst, r.date) in have:
-                    rep.observations_present += 1
-                else:
-                    fresh.append(r)
-            if not fresh:
-                continue
-            held_classes = set()
-            if c is not None:
-                for cls in sorted({r.phase_class for r in fresh}):
-                    ours = _class_summary(c, cls)
-                    act = [r for r in grp if r.phase_class == cls and not r.retired]
-                    theirs = summarise_observations([r.ri for r in act], [r.n for r in act], [r.ri_sd for r in act],
-                                                    phase_class=cls) if act else None
-                    if ours is not None and theirs is not None:
-                        limit = guard_limit(ours, cls)
-                        if abs(theirs.centre - ours.centre) > limit:
-                            held_classes.add(cls)
-                            rep.conflicts.append(Conflict(
-                                c.name, cls,
-                                f"centres {ours.centre:.1f} (ours, n={ours.count}) and {theirs.centre:.1f} "
-                                f"(theirs, n={theirs.count}) are {theirs.centre - ours.centre:+.1f} apart, "
-                                f"beyond the guard {limit:.1f}", ours.as_dict(), theirs.as_dict()))
-            todo = []
-            for r in fresh:
-                if r.phase_class in held_classes:
-                    rep.observations_held += 1
-                    continue
-                phase_row = None
-                if r.phase:
-                    try:
-                        phase_row = writes.get_phase(session, r.phase, r.phase_class, note=f"added by merge of {shown}")
-                    except ValueError as exc:
-                        rep.conflicts.append(Conflict(c.name if c is not None else first.name, r.phase_class, str(exc)))
-                        rep.observations_held += 1
-                        continue
-                todo.append((r, phase_row))
-            if not todo:
-                continue
-            if c is None:
-                syns = []
-                for nm in first.synonyms:
-                    if matching_key(nm) not in idx.by_key and matching_key(nm) != key:
-                        syns.append(nm)
-                c = writes.create_compound(session, {"name": first.name, **fields}, syns)
-                rep.compounds_created += 1
-                for nm in [first.name] + syns:
-                    idx.by_key[matching_key(nm)] = c.id
-                idx.names[c.id] = c.name
-                if c.cas:
-                    idx.by_cas.setdefault(c.cas, []).append(c.id)
-            else:
-                changes = {f: v for f, v in fields.items() if v and not getattr(c, f)}
-                syns = [nm for nm in names if matching_key(nm) not in idx.by_key]
-                if changes or syns:
-                    writes.update_compound(session, c, changes, syns)
-                    rep.compounds_updated += 1
-                    for nm in syns:
-                        idx.by_key[matching_key(nm)] = c.id
-            for r, phase_row in todo:
-                writes.add_observation(session, c, {
-                    "phase_class": r.phase_class, "ri": r.ri, "mode": r.mode, "ri_sd": r.ri_sd, "n": r.n,
-                    "source": r.source, "analyst": r.analyst, "date": r.date, "retired_reason": r.retired or None,
-                }, phase_row)
-                rep.observations_added += 1
-        if rep.observations_added or rep.compounds_updated:
-            record(session, "merge", f"library:{shown}", None,
-                   {"added": rep.observations_added, "present": rep.observations_present,
-                    "held": rep.observations_held, "conflicts": [x.text() for x in rep.conflicts]})
-            rep.revision = session.info.get("revision")
-        return rep
-
-    report = run_write(engine, work, who=analyst)
-    return report
-
-
-# --------------------------------------------------------------------------- backup
-
-
-@dataclass
-class BackupReport:
-    path: str
-    revision: int
-    compounds: int
-    entries: int  # (compound, class) entries screening would use
-    bytes: int
-
-    def summary(self) -> str:
-        return (f"backed up to {self.path}: revision {self.revision}, {self.compounds} compounds, "
-                f"{self.entries} class entries ({self.bytes} bytes)")
-
-
-def backup(db: str | None, path: str | os.PathLike, *, overwrite: bool = False) -> BackupReport:
-    """A consistent copy of a SQLite library, made with SQLite's online backup API.
-
-    The copy is taken in one step inside one read transaction, so it shows the library at one
-    revision even while other processes write (WAL: they are not blocked). It is written to a
-    temporary file beside ``path``, checked (``PRAGMA integrity_check``), switched to a single
-    self-contained file (rollback journal) and renamed into place. Other backends are refused:
-    use their own dump tool, or ``matcher library export``.
-    """
-    from .atomic import atomic_path
-    from .store.database import open_library
-
-    engine = open_library(db)
-    if engine.dialect.name != "sqlite":
-        raise LibraryError(f"backup copies SQLite libraries only; this one is {engine.dialect.name}: use the "
-                           f"server's dump tool, or: matcher library export -o copy.csv")
-    src_path = engine.url.database
-    if not src_path or src_path == ":memory:":
-        raise LibraryError("an in-memory library cannot be backed up")
-    dest = Path(path)
-    if dest.exists():
-        if os.path.samefile(dest, src_path):
-            raise MatcherError(f"{dest} is the library itself; choose another file")
-        if not overwrite:
-            raise MatcherError(f"{dest} exists; choose another file or use --overwrite")
-    from .store.snapshot_loader import load_snapshot_sqlite
-
-    with atomic_path(dest) as tmp:
-        src = sqlite3.connect(f"file:{src_path}?mode=ro", uri=True, timeout=30.0)
-        out = sqlite3.connect(str(tmp))
-        try:
-            src.backup(out)  # all pages in one step: one consistent snapshot of the library
-            out.execute("PRAGMA journal_mode = DELETE")  # the copy is one self-contained file
-            ok = out.execute("PRAGMA integrity_check").fetchone()[0]
-        except sqlite3.DatabaseError as exc:
-            raise LibraryError(f"cannot back up {src_path}: {exc}") from None
-        finally:
-            out.close()
-            src.close()
-        if ok != "ok":
-            raise LibraryError(f"the copy failed its integrity check: {ok}")
-        snap = load_snapshot_sqlite(str(tmp), source=str(dest))
-    return BackupReport(str(dest), int(snap.revision), len(snap.compounds), snap.size, dest.stat().st_size)
-
-
-__all__ = [
-    "CLOSE_SCORE", "GUARD_SPREADS", "NEW", "Summary", "Match", "AddResult", "Unresolved", "PeakFacts",
-    "Conflict", "MergeReport", "BackupReport", "summarise_observations", "guard_limit", "closeness",
-    "add_confirmed", "read_peak", "confirm_from_results", "history", "retire", "merge", "backup",
-]

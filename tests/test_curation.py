@@ -22,6 +22,8 @@ import numpy as np
 import pytest
 
 from matcher import curation as cu
+from matcher.library_merge import merge
+from matcher.store.backup import backup
 from matcher.classes import DEFAULT_WINDOWS
 from matcher.errors import LibraryError, MatcherError, RefusedChange
 from matcher.snapshot import SPREAD_FLOOR, summarise
@@ -403,7 +405,7 @@ def test_merge_adds_reports_conflicts_and_is_idempotent(library_url, tmp_path):
     cu.add_confirmed(other, "limonene", "polar", 1198.0, source="gc2")        # no polar value here: added
     cu.add_confirmed(other, "sabinene", "nonpolar", 972.0, source="gc2")      # agrees: added
     cu.add_confirmed(other, "myrcene", "nonpolar", 991.0, source="gc2", cas="123-35-3")  # new compound
-    rep = cu.merge(library_url, other)
+    rep = merge(library_url, other)
     assert rep.observations_added == 3 and rep.compounds_created == 1 and rep.observations_held == 1
     assert len(rep.conflicts) == 1
     c = rep.conflicts[0]
@@ -413,7 +415,7 @@ def test_merge_adds_reports_conflicts_and_is_idempotent(library_url, tmp_path):
     assert _class(library_url, "limonene", "polar")["ri"] == 1198.0
     assert show(library_url, "myrcene")["cas"] == "123-35-3"
     once = _export(library_url)
-    again = cu.merge(library_url, other)
+    again = merge(library_url, other)
     assert again.observations_added == 0 and again.observations_present == 3 and len(again.conflicts) == 1
     assert _export(library_url) == once
 
@@ -423,10 +425,10 @@ def test_merge_from_a_library_csv_and_identity_conflicts(library_url, tmp_path):
     f = tmp_path / "gc2.csv"
     f.write_text("name,phase_class,ri,cas\nlimonene,nonpolar,1025,80-56-8\nsabinene,nonpolar,971,3387-41-5\n",
                  encoding="utf-8")
-    rep = cu.merge(library_url, str(f))
+    rep = merge(library_url, str(f))
     assert rep.observations_added == 1 and rep.observations_held == 1
     assert "identity" in rep.conflicts[0].reason and "80-56-8" in rep.conflicts[0].reason
-    assert cu.merge(library_url, str(f)).observations_added == 0
+    assert merge(library_url, str(f)).observations_added == 0
 
 
 # --------------------------------------------------------------------------- backup (SQLite)
@@ -435,7 +437,7 @@ def test_merge_from_a_library_csv_and_identity_conflicts(library_url, tmp_path):
 def _sqlite_only(url):
     if not url.startswith("sqlite"):
         with pytest.raises(LibraryError, match="SQLite libraries only"):
-            cu.backup(url, "/nonexistent/copy.sqlite")
+            backup(url, "/nonexistent/copy.sqlite")
         pytest.skip("backup uses SQLite's online backup API; other backends are refused (checked above)")
 
 
@@ -443,7 +445,7 @@ def test_backup_is_a_faithful_copy(demo_url, tmp_path):
     _sqlite_only(demo_url)
     cu.add_confirmed(demo_url, "limonene", "nonpolar", 1024.0)
     dest = tmp_path / "copy.sqlite"
-    rep = cu.backup(demo_url, dest)
+    rep = backup(demo_url, dest)
     # a single self-contained file (rollback journal), per the SQLite file format's header
     # (https://www.sqlite.org/fileformat.html: bytes 18-19 are 1 for rollback, 2 for WAL)
     with open(dest, "rb") as fh:
@@ -456,15 +458,17 @@ def test_backup_is_a_faithful_copy(demo_url, tmp_path):
 
     assert rep.revision == revision(demo_url) and rep.bytes == dest.stat().st_size
     with pytest.raises(MatcherError, match="exists"):
-        cu.backup(demo_url, dest)
+        backup(demo_url, dest)
     with pytest.raises(MatcherError, match="library itself"):
-        cu.backup(demo_url, demo_url[len("sqlite:///"):], overwrite=True)
-    cu.backup(demo_url, dest, overwrite=True)
+        backup(demo_url, demo_url[len("sqlite:///"):], overwrite=True)
+    backup(demo_url, dest, overwrite=True)
 
 
 _WRITER = r"""
 import sys, time
 from matcher import curation as cu
+from matcher.library_merge import merge
+from matcher.store.backup import backup
 url, tag, count, start = sys.argv[1], sys.argv[2], int(sys.argv[3]), float(sys.argv[4])
 while time.time() < start:
     time.sleep(0.005)
@@ -519,7 +523,7 @@ def test_backup_while_another_process_writes_is_consistent(library_url, tmp_path
     copies = []
     while procs[0].poll() is None and len(copies) < 40:
         dest = tmp_path / f"b{len(copies)}.sqlite"
-        cu.backup(library_url, dest)
+        backup(library_url, dest)
         copies.append(dest)
         time.sleep(0.02)
     procs[0].communicate(timeout=300)

@@ -188,7 +188,7 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..curation import merge
+        from ..library_merge import merge
 
         report = merge(db, other, analyst=analyst)
         if as_json:
@@ -205,6 +205,6 @@ def register(app: typer.Typer) -> None:
         overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace an existing file.")] = False,
         db: DbOption = None,
     ) -> None:
-        from ..curation import backup
+        from ..store.backup import backup
 
         say(backup(db, path, overwrite=overwrite).summary())

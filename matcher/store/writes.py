@@ -198,6 +198,18 @@ def add_observations(session: Session, items: list[tuple[Compound, dict, Phase |
     return ids
 
 
+def synonym_names(session: Session) -> list[tuple[int, str]]:
+    """(compound id, synonym) for every synonym in the library."""
+    return [(s.compound_id, s.name) for s in session.scalars(select(Synonym))]
+
+
+def audit_trail(session: Session, target: str) -> list:
+    """The audit entries of one target (e.g. ``compound:12``), oldest first."""
+    from .models import AuditEntry
+
+    return list(session.scalars(select(AuditEntry).where(AuditEntry.target == target).order_by(AuditEntry.id)))
+
+
 def retire_observation(session: Session, obs_id: int, reason: str) -> Observation:
     """Stop using an observation (the row stays, with the reason); audited."""
     o = session.get(Observation, obs_id)
@@ -213,5 +225,5 @@ def retire_observation(session: Session, obs_id: int, reason: str) -> Observatio
 __all__ = [
     "COMPOUND_FIELDS", "OBSERVATION_FIELDS", "CompoundIndex", "compound_dict", "observation_dict",
     "create_compound", "update_compound", "get_phase", "add_observation", "add_observations", "retire_observation",
-    "phase_key",
+    "phase_key", "synonym_names", "audit_trail",
 ]
