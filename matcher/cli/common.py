@@ -34,3 +34,13 @@ def note(text: str) -> None:
 
 def is_terminal() -> bool:
     return sys.stdin.isatty() and sys.stdout.isatty()
+
+
+def library_group(app: typer.Typer) -> typer.Typer:
+    """The ``library`` command group (added by :mod:`matcher.cli.library_cmds`), for modules that extend it."""
+    for info in app.registered_groups:
+        if info.name == "library" and info.typer_instance is not None:
+            return info.typer_instance
+    lib = typer.Typer(help="Manage the house library.", no_args_is_help=True, rich_markup_mode=None)
+    app.add_typer(lib, name="library")
+    return lib

@@ -6,7 +6,7 @@ from typing import Annotated
 
 import typer
 
-from .common import say
+from .common import say, library_group
 
 EX_COPY = (
     "Example: move the lab's SQLite library to the shared server (password from $PGPASSWORD or ~/.pgpass),\n"
@@ -16,18 +16,10 @@ EX_COPY = (
 )
 
 
-def _library_group(app: typer.Typer) -> typer.Typer:
-    """The ``library`` group added by :mod:`matcher.cli.library_cmds` (registered before this module)."""
-    for info in app.registered_groups:
-        if info.name == "library" and info.typer_instance is not None:
-            return info.typer_instance
-    lib = typer.Typer(help="Manage the house library.", no_args_is_help=True, rich_markup_mode=None)
-    app.add_typer(lib, name="library")
-    return lib
 
 
 def register(app: typer.Typer) -> None:
-    lib = _library_group(app)
+    lib = library_group(app)
 
     @lib.command(
         "copy",

@@ -12,7 +12,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from .common import DbOption, JsonFlag, is_terminal, note, say
+from .common import DbOption, JsonFlag, is_terminal, note, say, library_group
 
 EX_CONFIRM = (
     "Example: peak 11 of this morning's run was confirmed with an authentic standard of gamma-terpinene\n\n"
@@ -45,13 +45,6 @@ Analyst = Annotated[Optional[str], typer.Option("--analyst", help="Who confirmed
 Source = Annotated[Optional[str], typer.Option("--source", help="Where the value comes from (standard, lot, notebook page).")]
 
 
-def _library_group(app: typer.Typer) -> typer.Typer:
-    for info in app.registered_groups:
-        if info.name == "library" and info.typer_instance is not None:
-            return info.typer_instance
-    lib = typer.Typer(help="Manage the house library.", no_args_is_help=True, rich_markup_mode=None)
-    app.add_typer(lib, name="library")
-    return lib
 
 
 def _asker():
@@ -93,7 +86,7 @@ def _short(d: dict | None) -> str:
 
 
 def register(app: typer.Typer) -> None:
-    lib = _library_group(app)
+    lib = library_group(app)
 
     @app.command("confirm", help="Add a peak confirmed with an authentic standard to the library, from a screening output.",
                  epilog=EX_CONFIRM)
