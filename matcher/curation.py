@@ -75,7 +75,6 @@ RI_MAX = 10000.0
 #: What ``ask`` returns to create a new compound.
 NEW = "new"
 
-_GREEK_SHORT = {"alpha": "a", "beta": "b", "gamma": "g", "delta": "d", "epsilon": "e"}
 
 
 # --------------------------------------------------------------------------- small records
@@ -174,12 +173,6 @@ def guard_limit(summary: Summary, phase_class: str) -> float:
     return max(GUARD_SPREADS * summary.spread, DEFAULT_WINDOWS[phase_class])
 
 
-def _short_greek(key: str) -> str:
-    for long, short in _GREEK_SHORT.items():
-        key = key.replace(long, short)
-    return key
-
-
 def closeness(a: str, b: str) -> float:
     """Similarity 0-100 of two names on their matching keys (also with Greek names shortened).
 
@@ -190,10 +183,10 @@ def closeness(a: str, b: str) -> float:
     """
     from rapidfuzz import fuzz
 
-    from .names import matching_key
+    from .names import matching_key, short_greek_key
 
     ka, kb = matching_key(a), matching_key(b)
-    return float(max(fuzz.ratio(ka, kb), fuzz.ratio(_short_greek(ka), _short_greek(kb))))
+    return float(max(fuzz.ratio(ka, kb), fuzz.ratio(short_greek_key(ka), short_greek_key(kb))))
 
 
 def _clean_ri(ri: Any) -> float:

@@ -95,6 +95,21 @@ def display_name(text: str) -> str:
     return unicodedata.normalize("NFC", str(text)).strip()
 
 
+_GREEK_SHORT = {"alpha": "a", "beta": "b", "gamma": "g", "delta": "d", "epsilon": "e"}
+
+
+def short_greek_key(key: str) -> str:
+    """A matching key with Greek letter names shortened to their first letter (``alphapinene`` → ``apinene``),
+    so that the common shorthand ``a-pinene`` meets ``α-pinene``.
+
+    >>> short_greek_key(matching_key("α-Pinene")), short_greek_key(matching_key("a-pinene"))
+    ('apinene', 'apinene')
+    """
+    for long, short in _GREEK_SHORT.items():
+        key = key.replace(long, short)
+    return key
+
+
 def rank(query: str, choices: Sequence[str], limit: int = 10, cutoff: float = 50.0) -> list[tuple[int, float]]:
     """Indices of ``choices`` ranked by similarity to ``query`` (score 0-100, best first).
 
@@ -116,6 +131,10 @@ def rank(query: str, choices: Sequence[str], limit: int = 10, cutoff: float = 50
         best[res[2]] = max(best.get(res[2], 0.0), float(res[1]))
     for res in process.extract(q_key, keys, scorer=fuzz.ratio, limit=None, score_cutoff=cutoff):
         best[res[2]] = max(best.get(res[2], 0.0), float(res[1]))
+    q_short = short_greek_key(q_key)
+    for res in process.extract(q_short, [short_greek_key(k) for k in keys], scorer=fuzz.ratio, limit=None,
+                               score_cutoff=cutoff):
+        best[res[2]] = max(best.get(res[2], 0.0), float(res[1]))
     for i, k in enumerate(keys):
         if k and k == q_key:
             best[i] = 100.0
@@ -123,4 +142,4 @@ def rank(query: str, choices: Sequence[str], limit: int = 10, cutoff: float = 50
     return ordered[:limit]
 
 
-__all__ = ["GREEK", "matching_key", "search_text", "display_name", "rank"]
+__all__ = ["GREEK", "matching_key", "search_text", "display_name", "short_greek_key", "rank"]

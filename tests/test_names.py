@@ -103,3 +103,12 @@ def test_key_is_idempotent_on_search_text(text):
 @given(st.text(max_size=30))
 def test_greek_letters_equal_their_names(text):
     assert matching_key("α" + text) == matching_key("alpha" + text)
+
+
+def test_greek_shorthand_with_a_typo_prefers_the_right_letter():
+    # chemists' shorthand: "a-" for alpha (common practice, no single source)
+    from matcher.names import rank
+
+    choices = ["β-pinene", "α-pinene", "limonene"]
+    assert rank("a-pinen", choices, limit=1)[0][0] == 1
+    assert rank("b-pinene", choices, limit=1)[0][0] == 0
