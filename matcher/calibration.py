@@ -31,7 +31,6 @@ from __future__ import annotations
 
 import json
 import os
-import tempfile
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 
@@ -215,26 +214,11 @@ def calibrate(ladder: Ladder, *, mode: str = "programmed", holdup: str | None = 
 
 
 def atomic_write_text(path: str, text: str) -> None:
-    """Write ``text`` to ``path`` through a temporary file in the same folder and ``os.replace``."""
-    folder = os.path.dirname(os.path.abspath(path))
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=".matcher-", suffix=".tmp", dir=folder)
-    except OSError as exc:
-        raise MatcherError(f"cannot write {path}: {exc.strerror or exc}")
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException as exc:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        if isinstance(exc, OSError):
-            raise MatcherError(f"cannot write {path}: {exc.strerror or exc}")
-        raise
+    """Write ``text`` to ``path`` through a temporary file and a rename (see :mod:`matcher.atomic`)."""
+    from .atomic import atomic_write
+
+    with atomic_write(path, "w", encoding="utf-8", newline="") as fh:
+        fh.write(text)
 
 
 def load_schema(name: str = SCHEMA_FILE) -> dict:
@@ -247,71 +231,15 @@ def load_schema(name: str = SCHEMA_FILE) -> dict:
 def validate(d, *, file: str | None = None, schema: dict | None = None) -> None:
     """Check a document against the calibration schema; the first problem is an :class:`InputError`.
 
-    Uses :mod:`jsonschema` when it is installed, else a built-in checker of the
-    keywords our schemas use (type, const, enum, required, properties,
-    additionalProperties, items, minItems, maxItems, minimum, exclusiveMinimum, minLength).
+    Uses :mod:`jsonschema` (draft 2020-12).
     """
+    import jsonschema
+
     schema = schema or load_schema()
-    try:
-        import jsonschema
-    except ImportError:  # pragma: no cover - jsonschema is in the test extra
-        problem = _check(d, schema, "")
-    else:
-        err = jsonschema.exceptions.best_match(jsonschema.Draft202012Validator(schema).iter_errors(d))
-        problem = None if err is None else f"at {'/'.join(str(p) for p in err.absolute_path) or 'top level'}: {err.message}"
+    err = jsonschema.exceptions.best_match(jsonschema.Draft202012Validator(schema).iter_errors(d))
+    problem = None if err is None else f"at {'/'.join(str(p) for p in err.absolute_path) or 'top level'}: {err.message}"
     if problem:
         raise InputError(f"not a valid calibration file ({problem[:200]})", file=file)
-
-
-_TYPES = {
-    "object": lambda v: isinstance(v, dict),
-    "array": lambda v: isinstance(v, list),
-    "string": lambda v: isinstance(v, str),
-    "boolean": lambda v: isinstance(v, bool),
-    "null": lambda v: v is None,
-    "integer": lambda v: isinstance(v, int) and not isinstance(v, bool),
-    "number": lambda v: isinstance(v, (int, float)) and not isinstance(v, bool),
-}
-
-
-def _check(v, s: dict, at: str) -> str | None:
-    where = at or "top level"
-    if "type" in s:
-        types = s["type"] if isinstance(s["type"], list) else [s["type"]]
-        if not any(_TYPES[t](v) for t in types):
-            return f"at {where}: expected {' or '.join(types)}"
-    if "const" in s and v != s["const"]:
-        return f"at {where}: expected {s['const']!r}"
-    if "enum" in s and v not in s["enum"]:
-        return f"at {where}: {v!r} is not one of {s['enum']}"
-    if isinstance(v, (int, float)) and not isinstance(v, bool):
-        if "minimum" in s and v < s["minimum"]:
-            return f"at {where}: below {s['minimum']}"
-        if "exclusiveMinimum" in s and v <= s["exclusiveMinimum"]:
-            return f"at {where}: not above {s['exclusiveMinimum']}"
-    if isinstance(v, str) and len(v) < s.get("minLength", 0):
-        return f"at {where}: too short"
-    if isinstance(v, dict):
-        for k in s.get("required", []):
-            if k not in v:
-                return f"at {where}: missing {k!r}"
-        props = s.get("properties", {})
-        for k, val in v.items():
-            if k in props:
-                p = _check(val, props[k], f"{at}/{k}" if at else k)
-                if p:
-                    return p
-            elif s.get("additionalProperties", True) is False:
-                return f"at {where}: unexpected {k!r}"
-    if isinstance(v, list):
-        if len(v) < s.get("minItems", 0) or len(v) > s.get("maxItems", len(v)):
-            return f"at {where}: wrong number of items"
-        if "items" in s:
-            for i, item in enumerate(v):
-                p = _check(item, s["items"], f"{at}/{i}" if at else str(i))
-                if p:
-                    return p
-    return None
 
 
 __all__ = ["Calibration", "calibrate", "atomic_write_text", "load_schema", "validate", "MODES"]
