@@ -40,7 +40,7 @@ import numpy as np
 
 from .candidates import Pairs, half_widths, window_pairs
 from .classes import DEFAULT_WINDOWS, PHASE_CLASSES, check_class
-from .evidence import DEFAULT_MEASUREMENT_SD, DEFAULT_PRIOR_IN_LIBRARY, Model, PeakHints, background, score_pairs
+from .evidence import Model, PeakHints, background, score_pairs
 from .snapshot import SPREAD_FLOOR, ClassEntries, LibrarySnapshot, summarise
 
 MAX_QUERIES = 3000  # per class and kind; a seeded sample beyond this

@@ -116,7 +116,7 @@ def _decode(data: bytes, path: str, what: str) -> tuple[str, str]:
         try:
             text = body.decode("utf-8")
         except UnicodeDecodeError:
-            raise InputError(f"not valid UTF-8 although the file starts with a UTF-8 byte-order mark", file=path)
+            raise InputError("not valid UTF-8 although the file starts with a UTF-8 byte-order mark", file=path)
     elif data.startswith(b"\xff\xfe") or data.startswith(b"\xfe\xff"):
         enc = "utf-16-le" if data.startswith(b"\xff\xfe") else "utf-16-be"
         body = data[2:]
@@ -339,7 +339,7 @@ def _load_xlsx(path: str, what: str) -> RawTable:
         if all(not c.strip() for c in rec):
             continue
         if any(c.strip() for c in rec[width:]):
-            raise InputError(f"a value lies right of the last named column", file=path, row=len(rows) + 1, line=i + 1)
+            raise InputError("a value lies right of the last named column", file=path, row=len(rows) + 1, line=i + 1)
         rec = rec[:width] + [""] * (width - len(rec[:width]))
         for j, c in enumerate(rec):
             if len(c) > MAX_CELL:

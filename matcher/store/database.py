@@ -45,7 +45,7 @@ from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
 
 from ..errors import LibraryError
-from .location import mask_secrets, mask_url, resolve
+from .location import mask_secrets, resolve
 from .models import AuditEntry, Base, LibraryState, Phase, SchemaVersion
 
 T = TypeVar("T")

@@ -13,7 +13,6 @@
 
 from __future__ import annotations
 
-import json
 import math
 import re
 from dataclasses import asdict, dataclass
@@ -197,7 +196,6 @@ def check(db: str | None, *, strict: bool = False) -> list[str]:
     deliberate, e.g. a table listing an isomer mixture under two names).
     """
     from sqlalchemy import text
-    from sqlalchemy.orm import Session
 
     from ..cas import normalise_cas
     from ..classes import PHASE_CLASSES

@@ -40,7 +40,7 @@ import csv
 import io
 import math
 import re
-from dataclasses import dataclass, field, replace as _replace
+from dataclasses import dataclass, field
 from datetime import date
 from pathlib import Path
 
