@@ -100,8 +100,8 @@ def _ranks(pairs: Pairs, sc, own_pair: np.ndarray, n: int):
 
 
 def evaluate_class(snapshot: LibrarySnapshot, phase_class: str, *, noise: float = 0.0, window: float | None = None,
-                   measurement_sd: float | None = None, with_mol_ion: bool = False, rng=None) -> dict:
-    """Self-check of one class; see the module doc."""
+                   measurement_sd: float | None = None, rng=None) -> dict:
+    """Self-check of one class (index only, and under ``with_mol_ion`` with the molecular ion); see the module doc."""
     phase_class = check_class(phase_class)
     rng = rng or np.random.default_rng(SEED)
     entries = snapshot.entries(phase_class)
@@ -137,35 +137,38 @@ def evaluate_class(snapshot: LibrarySnapshot, phase_class: str, *, noise: float 
     model = Model(max(noise, 0.1) if measurement_sd is None else measurement_sd, min(max(share, 0.05), 0.95))
     x = obs.ri[loo] + (rng.normal(0, noise, len(loo)) if noise else 0.0)
     w = half_widths(x, phase_class, window)
-    mass = comps.nominal_mass[own] if with_mol_ion else None
-    pairs, sc, ext = _score_queries(entries, comps, bg, model, x, own, new_ri, new_sd, w, mass)
-    rank, top_loo, hit_loo = _ranks(pairs, sc, pairs.entry >= len(entries), len(loo))
-
-    # removal: each compound's centre queried with the compound gone
     rm = np.sort(rng.choice(len(entries), k_rm, replace=False))
     own_rm = entries.compound[rm]
     x_rm = entries.ri[rm] + (rng.normal(0, noise, k_rm) if noise else 0.0)
     w_rm = half_widths(x_rm, phase_class, window)
-    mass_rm = comps.nominal_mass[own_rm] if with_mol_ion else None
-    p_rm, s_rm, _ = _score_queries(entries, comps, bg, model, x_rm, own_rm, np.full(k_rm, np.nan), np.full(k_rm, np.nan), w_rm, mass_rm)
-    top_rm = np.zeros(k_rm)
-    if len(s_rm.probability):
-        np.maximum.at(top_rm, p_rm.peak, s_rm.probability)
-    detected = s_rm.not_in_library >= top_rm
-
-    prob_all = np.concatenate([top_loo, top_rm])
-    correct_all = np.concatenate([hit_loo, np.zeros(k_rm, dtype=bool)])
     n_loo = len(loo)
-    out.update({
-        "queries": {"leave_one_out": int(n_loo), "removed": int(k_rm)},
-        "top1": float(np.mean(rank == 1)) if n_loo else None,
-        "top3": float(np.mean((rank >= 1) & (rank <= 3))) if n_loo else None,
-        "coverage": float(np.mean(rank >= 1)) if n_loo else None,
-        "ece": _ece(prob_all, correct_all),
-        "not_in_library_detection": float(np.mean(detected)),
-        "mean_top_probability_absent": float(np.mean(top_rm)),
-        "confusable_pairs": confusable_pairs(entries, comps, window),
-    })
+
+    def metrics(mass_loo, mass_rm) -> dict:
+        """Rates for one way of querying (index only, or index plus molecular ion)."""
+        pairs, sc, _ = _score_queries(entries, comps, bg, model, x, own, new_ri, new_sd, w, mass_loo)
+        rank, top_loo, hit_loo = _ranks(pairs, sc, pairs.entry >= len(entries), n_loo)
+        # removal: each compound's centre queried with the compound gone
+        p_rm, s_rm, _ = _score_queries(entries, comps, bg, model, x_rm, own_rm, np.full(k_rm, np.nan),
+                                       np.full(k_rm, np.nan), w_rm, mass_rm)
+        top_rm = np.zeros(k_rm)
+        if len(s_rm.probability):
+            np.maximum.at(top_rm, p_rm.peak, s_rm.probability)
+        prob_all = np.concatenate([top_loo, top_rm])
+        correct_all = np.concatenate([hit_loo, np.zeros(k_rm, dtype=bool)])
+        return {
+            "top1": float(np.mean(rank == 1)) if n_loo else None,
+            "top3": float(np.mean((rank >= 1) & (rank <= 3))) if n_loo else None,
+            "coverage": float(np.mean(rank >= 1)) if n_loo else None,
+            "ece": _ece(prob_all, correct_all),
+            "not_in_library_detection": float(np.mean(s_rm.not_in_library >= top_rm)),
+            "mean_top_probability_absent": float(np.mean(top_rm)),
+        }
+
+    out["queries"] = {"leave_one_out": int(n_loo), "removed": int(k_rm)}
+    out.update(metrics(None, None))
+    with_ion = metrics(comps.nominal_mass[own], comps.nominal_mass[own_rm])
+    out["with_mol_ion"] = {k: v for k, v in with_ion.items() if k != "coverage"}
+    out["confusable_pairs"] = confusable_pairs(entries, comps, window)
     return out
 
 
@@ -185,7 +188,7 @@ def confusable_pairs(entries: ClassEntries, compounds, window: float | None = No
     order = np.argsort(gap, kind="stable")[:limit]
     return [{"a": str(compounds.name[comp[a[i]]]), "b": str(compounds.name[comp[b[i]]]),
              "ri_a": round(float(ri[a[i]]), 2), "ri_b": round(float(ri[b[i]]), 2),
-             "gap": round(float(gap[i]), 2), "nominal_mass": int(ma[same][i] if False else compounds.nominal_mass[comp[a[i]]])}
+             "gap": round(float(gap[i]), 2), "nominal_mass": int(compounds.nominal_mass[comp[a[i]]])}
             for i in order]
 
 
@@ -195,11 +198,7 @@ def evaluate(snapshot: LibrarySnapshot, phase_class: str | None = None, *, noise
     classes = [check_class(phase_class)] if phase_class else [c for c in PHASE_CLASSES if len(snapshot.entries(c)) >= 2]
     per = {}
     for c in classes:
-        res = evaluate_class(snapshot, c, noise=noise, window=window, measurement_sd=measurement_sd)
-        res["with_mol_ion"] = {k: v for k, v in evaluate_class(snapshot, c, noise=noise, window=window,
-                                                               measurement_sd=measurement_sd, with_mol_ion=True).items()
-                               if k in ("top1", "top3", "ece", "not_in_library_detection", "mean_top_probability_absent")}
-        per[c] = res
+        per[c] = evaluate_class(snapshot, c, noise=noise, window=window, measurement_sd=measurement_sd)
 
     def pooled(key, kind="leave_one_out"):
         num = den = 0.0
