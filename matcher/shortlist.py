@@ -217,14 +217,16 @@ def shortlist(
 
     ent_k = cat(ent, -1)
     cls_k = cat(cls_arr, -1)
-    home_comp = home.entries.compound
-    nb_comp = neighbour.entries.compound if neighbour is not None else home_comp
-    comp_row = np.where(ent_k < 0, -1, np.where(cls_k == 1, nb_comp[np.clip(ent_k, 0, max(len(nb_comp) - 1, 0))] if len(nb_comp) else -1,
-                                             home_comp[np.clip(ent_k, 0, max(len(home_comp) - 1, 0))] if len(home_comp) else -1))
-    lib_ri = np.where(ent_k < 0, np.nan, np.where(cls_k == 1, _take(neighbour, "ri", ent_k), _take(home, "ri", ent_k)))
-    lib_sd = np.where(ent_k < 0, np.nan, np.where(cls_k == 1, _take(neighbour, "sd", ent_k), _take(home, "sd", ent_k)))
-    lib_n = np.where(ent_k < 0, 0, np.where(cls_k == 1, _take(neighbour, "n", ent_k), _take(home, "n", ent_k))).astype(np.int64)
-    predicted = np.where(ent_k < 0, False, np.where(cls_k == 1, False, _take(home, "predicted", ent_k))).astype(bool)
+
+    def entry_attr(attr: str, fill):
+        """An entry attribute per row, from the home or the neighbour class; ``fill`` for peaks without one."""
+        return np.where(ent_k < 0, fill, np.where(cls_k == 1, _take(neighbour, attr, ent_k), _take(home, attr, ent_k)))
+
+    comp_row = entry_attr("compound", -1).astype(np.int64)
+    lib_ri = entry_attr("ri", np.nan)
+    lib_sd = entry_attr("sd", np.nan)
+    lib_n = entry_attr("n", 0).astype(np.int64)
+    predicted = entry_attr("predicted", False).astype(bool) & (cls_k != 1)
     peak_col = kp[o2]
     comps = home.compounds
     safe_row = np.clip(comp_row, 0, len(comps) - 1) if len(comps) else comp_row
