@@ -21,7 +21,8 @@ import numpy as np
 from . import CAUTION
 from .candidates import window_description
 from .classes import check_class
-from .evidence import DEFAULT_MEASUREMENT_SD, DEFAULT_PRIOR_IN_LIBRARY, Model
+from .evidence import DEFAULT_MEASUREMENT_SD, DEFAULT_PRESENCE, Model
+from .unlisted import UnlistedField, crowding_density
 from .shortlist import PeakInput, Shortlist, neighbour_of, prepare, shortlist
 from .snapshot import LibrarySnapshot
 
@@ -80,12 +81,16 @@ def query(
     fallback: bool = False,
     homologues: bool = False,
     measurement_sd: float | None = None,
-    prior_in_library: float = DEFAULT_PRIOR_IN_LIBRARY,
+    presence: float = DEFAULT_PRESENCE,
+    crowding: str | float | None = None,
 ) -> dict:
     """Ranked shortlist for one index; returns the document ``matcher query --json`` prints.
 
     Candidates' ``probability`` plus ``not_in_library`` sum to 1 over the
-    whole window (``top`` only shortens the list).
+    whole window (``top`` only shortens the list). Without a run the
+    not-in-library alternative uses the crowding prior (``crowding``: a name
+    of :data:`matcher.unlisted.CROWDING` or unlisted peaks per 100 index
+    units) and each listed compound the presence prior ``presence``.
     """
     phase_class = check_class(phase_class)
     ri = float(ri)
@@ -107,7 +112,9 @@ def query(
         hit=None if not hit else np.array([hit], dtype=object),
         hit_score=None if hit_score is None else np.array([float(hit_score)]),
     )
-    sl = shortlist(home, peaks, Model(sd, prior_in_library), window=window, window_percent=window_percent,
+    lam0 = crowding_density(crowding)
+    model = Model(sd, presence=float(presence), unlisted=UnlistedField.flat(lam0))
+    sl = shortlist(home, peaks, model, window=window, window_percent=window_percent,
                    top=top, neighbour=neighbour)
     rows = np.arange(len(sl.columns["peak"]))
     doc = {
@@ -117,7 +124,7 @@ def query(
         "candidates": candidate_records(sl, rows),
         "not_in_library": _f(sl.not_in_library[0], 12),
         "candidates_in_window": int(sl.candidate_count[0]),
-        "model": {"measurement_sd": sd, "prior_in_library": prior_in_library},
+        "model": {"index_scatter": sd, "presence": float(presence), "unlisted_per_100": round(lam0 * 100, 3)},
         "library": {"location": snapshot.source, "revision": snapshot.revision, "entries": len(home.entries)},
         "notes": sl.notes,
         "caution": CAUTION,
