@@ -71,7 +71,7 @@ CLOSE_SCORE = 88.0
 #: Spreads from the centre beyond which an observation is refused (with the class window as minimum).
 GUARD_SPREADS = 3.0
 #: Upper bound of a plausible retention index (as the library CSV reader).
-RI_MAX = 10000.0
+from .limits import MAX_RI as RI_MAX  # noqa: E402  declared once
 #: What ``ask`` returns to create a new compound.
 NEW = "new"
 
@@ -205,7 +205,9 @@ def _clean(name, phase_class, ri, formula, cas, inchikey, date, mode) -> dict:
     from .identifiers import normalise_inchikey
     from .names import display_name, matching_key
 
-    out: dict[str, Any] = {"name": display_name(name or "")}
+    from .limits import check_name
+
+    out: dict[str, Any] = {"name": display_name(check_name(name or " ", "compound name") if str(name or "").strip() else "")}
     if not out["name"] or not matching_key(out["name"]):
         raise MatcherError(f"a compound name with letters or digits is required, got {name!r}")
     out["phase_class"] = check_class(phase_class)
@@ -360,8 +362,13 @@ def add_confirmed(db: str | None, name: str, phase_class: str, ri: float, *, for
     from .store.database import open_library, record, run_write
     from .store import writes
 
+    from .limits import check_name, check_text
+
     if new and as_existing:
         raise MatcherError("give either --new or --as, not both")
+    source, analyst = check_text(source, "source"), check_text(analyst, "analyst name")
+    if as_existing is not None:
+        as_existing = check_name(as_existing, "name given with --as")
     v = _clean(name, phase_class, ri, formula, cas, inchikey, date, mode)
     engine = open_library(db)
 
@@ -512,7 +519,10 @@ def retire(db: str | None, observation_id: int, why: str, *, analyst: str | None
     from .store.models import Observation
     from .store import writes
 
-    why = " ".join(str(why or "").split())
+    from .limits import check_id, check_text
+
+    observation_id = check_id(observation_id, "observation id")
+    why = " ".join(str(check_text(why, "reason") or "").split())
     if not why:
         raise MatcherError("say why the observation is retired (--why TEXT)")
     engine = open_library(db)

@@ -38,9 +38,7 @@ import numpy as np
 
 from .errors import InputError
 
-MAX_RT_MIN = 10_000.0
-MAX_RI = 10_000.0
-MAX_MZ = 5_000
+from .limits import MAX_MZ, MAX_RI, MAX_RT_MIN  # declared once, shared with the command line
 
 #: Header spellings (beyond the canonical name) for each canonical column.
 ALIASES: dict[str, list[str]] = {

@@ -334,9 +334,13 @@ def screen(
     """Screen runs against one class of the house library; see the module doc."""
     from .peaks import read_peaks
 
+    from .limits import check_sd
+
     phase_class = check_class(phase_class)
     if top is not None and top < 1:
         raise MatcherError("--top must be at least 1")
+    if measurement_sd is not None:
+        measurement_sd = check_sd(measurement_sd)
     plan = plan_runs(list(peak_files), calibration, ladder)
     if not plan:
         raise MatcherError("no peak file given")

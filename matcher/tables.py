@@ -58,8 +58,8 @@ if TYPE_CHECKING:  # pragma: no cover
 
 #: Longest cell text echoed back in an error message.
 ECHO_LIMIT = 40
-#: Longest cell accepted, in characters.
-MAX_CELL = 1000
+#: Longest cell accepted, in characters (declared in :mod:`matcher.limits`).
+from .limits import MAX_CELL  # noqa: E402
 
 _DELIMITERS = (",", ";", "\t")
 _SAMPLE_LINES = 50

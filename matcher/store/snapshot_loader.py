@@ -76,16 +76,21 @@ def load_snapshot_sqlite(path: str, source: str | None = None):
 
     from ..errors import LibraryError
 
+    from .probe import connect_readonly, probe_sqlite
+
     source = source or mask_url("sqlite:///" + path)
     if not os.path.isfile(path):
         raise _no_library(source)
     try:
-        con = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=30.0, isolation_level=None)
+        con = connect_readonly(path)
     except sqlite3.Error as exc:
         raise LibraryError(f"cannot open the house library {source}: {exc}") from None
     try:
         con.execute("PRAGMA busy_timeout = 30000")
         con.execute("BEGIN")
+        # inside the read transaction: ours, a known version, intact (foreign or damaged files are refused)
+        if probe_sqlite(path, source=source, check="quick", con=con).state != "library":
+            raise _no_library(source)
         try:
             row = con.execute(SQL_REVISION).fetchone()
         except sqlite3.OperationalError as exc:
