@@ -379,11 +379,18 @@ def add_confirmed(db: str | None, name: str, phase_class: str, ri: float, *, for
         created = c is None
         before = None if created else _class_summary(c, cls)
         forced = False
-        if once and not created and not force:
-            twin = next((o for o in c.observations if once in (o.source or "")), None)
+        if once and not force:  # one peak of one run, in one class, is recorded once (whatever name it gets)
+            from sqlalchemy import select
+
+            from .store.models import Observation
+
+            like = once.replace("\\", "\\\\").replace("%", "\\%").replace("_", "\\_")
+            twin = session.scalars(select(Observation).where(Observation.phase_class == cls,
+                                                             Observation.source.like(f"%{like}%", escape="\\"))
+                                   .order_by(Observation.id).limit(1)).first()
             if twin is not None:
-                raise RefusedChange(f"already recorded as observation {twin.id} of {c.name!r} ({once}); "
-                                    f"nothing written; add --force to record it again")
+                raise RefusedChange(f"peak already recorded as observation {twin.id} of {twin.compound.name!r} "
+                                    f"({once}); nothing written; add --force to record it again")
         if before is not None:
             dev = v["ri"] - before.centre
             limit = guard_limit(before, cls)
@@ -477,10 +484,10 @@ def confirm_from_results(db: str | None, results_path: str | os.PathLike, peak: 
             "ri_measured": facts.ri_measured, "used": ri, "class": facts.phase_class, "run_source": facts.run_source,
             "ladder": facts.ladder, "mode": facts.mode, "calibrated": facts.calibrated, "screened": facts.screened,
             "tool_version": facts.tool_version, "corrected": facts.corrected, "flags": facts.flags,
-            "best_candidate": facts.best, "sidecar": facts.sidecar}
+            "best_candidate": facts.best, "sidecar": facts.sidecar, "run_checksum": facts.checksum or None}
     return add_confirmed(db, name, facts.phase_class, ri, source=text, analyst=analyst, force=force, new=new,
                          as_existing=as_existing, ask=ask, date=facts.date or None, mode=facts.mode,
-                         provenance=prov, once=here)
+                         provenance=prov, once=facts.identity() if facts.checksum else here)
 
 
 # --------------------------------------------------------------------------- history and retiring

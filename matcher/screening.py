@@ -390,6 +390,7 @@ def screen(
             window=window_description(phase_class, window, window_percent),
             table=df, calibration=None if cal is None else cal.to_dict(), correction=correction,
             measurement_sd=model.measurement_sd, notices=notices, peak_count=len(table.peak), run_model=info,
+            checksum=getattr(table, "checksum", ""),
         ))
 
     return ScreenResult(
