@@ -431,7 +431,7 @@ def _column(raw: RawTable, column: str) -> list[str]:
 
 
 def _fmt(x: float) -> str:
-    return f"{x:g}"
+    return str(int(x)) if float(x).is_integer() and abs(x) < 1e15 else f"{x:g}"
 
 
 def numbers(

@@ -187,7 +187,7 @@ def _schema_lock(conn: Connection) -> None:
 
 
 def _where(engine: Engine) -> str:
-    return mask_secrets(engine.url.render_as_string(hide_password=False))
+    return mask_secrets(engine.url.render_as_string(hide_password=True))
 
 
 #: SQLSTATEs of a change refused because the role may only read (42501 insufficient privilege,

@@ -90,7 +90,11 @@ class ParsedUrl:
 
 def _remember(secret: str | None) -> None:
     if secret and len(secret) >= 1:
-        for form in (secret, quote(secret, safe=""), quote(secret), unquote(secret)):
+        from urllib.parse import quote_plus
+
+        # raw, decoded, and the ways libraries percent-encode it (SQLAlchemy keeps spaces and '+')
+        for form in (secret, unquote(secret), quote(secret, safe=""), quote(secret), quote(secret, safe=" +"),
+                     quote_plus(secret), quote(secret, safe=" ")):
             if form:
                 _SECRETS.add(form)
 

@@ -98,7 +98,15 @@ def probe_sqlite(path: str, *, source: str | None = None, check: str = "quick", 
         return _VERIFIED[key]
     for attempt in range(6):
         try:
-            probe = _probe(path, source=source, check=check, con=con)
+            wal_before = os.path.exists(path + "-wal")
+            try:
+                probe = _probe(path, source=source, check=check, con=con, immutable=con is None)
+            except LibraryError:
+                if con is not None or wal_before or not os.path.exists(path + "-wal"):
+                    raise
+                # read as immutable (touching nothing) it looked wrong, but a writer started meanwhile:
+                # make sure with a normal reader (the -wal exists now anyway)
+                probe = _probe(path, source=source, check=check, con=None, immutable=False)
             break
         except _Transient:
             if attempt == 5:
@@ -122,7 +130,36 @@ class _Transient(Exception):
     pass
 
 
-def _probe(path: str, *, source: str | None = None, check: str = "quick", con=None) -> Probe:
+def check_file(path: str, where: str) -> bool:
+    """The checks that need no connection: False when missing; refuses folders, devices, empty and non-SQLite files."""
+    import stat as _stat
+
+    from ..atomic import SQLITE_MAGIC
+
+    try:
+        st = os.stat(path)
+    except FileNotFoundError:
+        return False
+    except OSError as exc:
+        raise LibraryError(f"cannot open the house library {where}: {exc.strerror or exc}") from None
+    if _stat.S_ISDIR(st.st_mode):
+        raise LibraryError(f"{where} is a folder, not a house library file")
+    if not _stat.S_ISREG(st.st_mode):
+        raise LibraryError(f"{where} is not a regular file, so it is not a house library")
+    if st.st_size == 0:
+        raise LibraryError(f"{where} is an empty file (0 bytes), not a house library; nothing was changed "
+                           f"(delete it, or give another path, to create a library)")
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(16)
+    except OSError as exc:
+        raise LibraryError(f"cannot read the house library {where}: {exc.strerror or exc}") from None
+    if head != SQLITE_MAGIC:
+        raise LibraryError(f"{where} is not a SQLite database, so not a house library; nothing was changed")
+    return True
+
+
+def _probe(path: str, *, source: str | None = None, check: str = "quick", con=None, immutable: bool = False) -> Probe:
     """Check, read-only and before anything else, that ``path`` is a house library we can use.
 
     Refused with one :class:`LibraryError` that names the problem (and nothing is
@@ -141,29 +178,16 @@ def _probe(path: str, *, source: str | None = None, check: str = "quick", con=No
     from ..atomic import SQLITE_MAGIC
 
     where = source or path
-    try:
-        st = os.stat(path)
-    except FileNotFoundError:
+    if not check_file(path, where):
         return Probe("missing")
-    except OSError as exc:
-        raise LibraryError(f"cannot open the house library {where}: {exc.strerror or exc}") from None
-    if _stat.S_ISDIR(st.st_mode):
-        raise LibraryError(f"{where} is a folder, not a house library file")
-    if not _stat.S_ISREG(st.st_mode):
-        raise LibraryError(f"{where} is not a regular file, so it is not a house library")
-    if st.st_size == 0:
-        raise LibraryError(f"{where} is an empty file (0 bytes), not a house library; nothing was changed "
-                           f"(delete it, or give another path, to create a library)")
-    try:
-        with open(path, "rb") as fh:
-            head = fh.read(16)
-    except OSError as exc:
-        raise LibraryError(f"cannot read the house library {where}: {exc.strerror or exc}") from None
-    if head != SQLITE_MAGIC:
-        raise LibraryError(f"{where} is not a SQLite database, so not a house library; nothing was changed")
     own = con is None
     try:
-        if own:
+        if own and immutable and not os.path.exists(path + "-wal"):
+            # nothing in a write-ahead log: read the file as immutable, creating no -wal/-shm beside it
+            import sqlite3 as _sq
+
+            con = _sq.connect(sqlite_uri(path, immutable=True), uri=True, isolation_level=None, check_same_thread=False)
+        elif own:
             con = connect_readonly(path, strict=False)
             con.execute("PRAGMA busy_timeout = 30000")
         tables = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}

@@ -76,10 +76,13 @@ def load_snapshot_sqlite(path: str, source: str | None = None):
 
     from ..errors import LibraryError
 
-    from .probe import connect_readonly, probe_sqlite
+    from .probe import check_file, connect_readonly, probe_sqlite
 
     source = source or mask_url("sqlite:///" + path)
-    if not os.path.isfile(path):
+    if not check_file(path, source):  # folders, devices, empty and non-SQLite files are refused by name
+        raise _no_library(source)
+    if not os.path.exists(path + "-wal") and probe_sqlite(path, source=source, check="quick").state != "library":
+        # no write-ahead log: checked as immutable first, so a refused file gets no -wal/-shm beside it
         raise _no_library(source)
     try:
         con = connect_readonly(path)
