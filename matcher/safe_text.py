@@ -30,7 +30,11 @@ because a spreadsheet reads it as that number and runs nothing.
 
 **Web pages**. Every piece of text placed in the HTML report goes through
 :func:`html_text`, which is :func:`html.escape` with ``quote=True``, so that
-text can sit both between tags and inside attribute values.
+text can sit both between tags and inside attribute values; control and
+bidirectional characters are shown escaped first (:func:`terminal_text`).
+
+**Terminals**. :func:`terminal_text` shows control and bidi characters
+escaped; the command line passes everything it prints through it.
 
 >>> html_text('"><img src=x onerror=alert(1)>')
 '&quot;&gt;&lt;img src=x onerror=alert(1)&gt;'
@@ -147,4 +151,4 @@ def html_text(value: Any) -> str:
         return ""
     if isinstance(value, float) and value != value:
         return ""
-    return html.escape(str(value), quote=True)
+    return html.escape(terminal_text(value), quote=True)  # control and bidi characters shown, not obeyed

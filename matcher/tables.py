@@ -355,6 +355,10 @@ def _xlsx_cells(path: str, what: str) -> list[list[str]]:
         ws = wb.worksheets[0] if wb.worksheets else None
         if ws is None:
             raise InputError(f"empty workbook (expected a {what} with a header row on the first sheet)", file=path)
+        declared_rows, declared_cols = ws.max_row or 0, ws.max_column or 0  # the sheet's own <dimension>, if any
+        if declared_rows > MAX_ROWS or declared_rows * declared_cols > MAX_XLSX_CELLS:
+            raise InputError(f"the workbook declares {declared_rows:,} rows x {declared_cols:,} columns; at most "
+                             f"{MAX_ROWS:,} rows and {MAX_XLSX_CELLS:,} cells are read (save the {what} as CSV)", file=path)
         for k, row in enumerate(ws.iter_rows(values_only=True), start=1):
             if k > MAX_ROWS:
                 raise InputError(f"the workbook has more than {MAX_ROWS:,} rows (the most that is read)", file=path)
