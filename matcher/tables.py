@@ -328,6 +328,62 @@ def _xlsx_text(v) -> str:
     return str(v)
 
 
+def _first_sheet(path: str) -> str | None:
+    """The ZIP member of the workbook's first sheet (from workbook.xml and its relationships), or None."""
+    import posixpath
+    import xml.etree.ElementTree as ET
+    import zipfile
+
+    try:
+        with zipfile.ZipFile(path) as z:
+            wb = ET.fromstring(z.read("xl/workbook.xml"))
+            rels = ET.fromstring(z.read("xl/_rels/workbook.xml.rels"))
+    except Exception:  # an unusual layout: openpyxl will say what is wrong
+        return None
+    ns_main = "{http://schemas.openxmlformats.org/spreadsheetml/2006/main}"
+    ns_rel = "{http://schemas.openxmlformats.org/officeDocument/2006/relationships}"
+    first = wb.find(f"{ns_main}sheets/{ns_main}sheet")
+    rid = first.get(f"{ns_rel}id") if first is not None else None
+    for r in rels:
+        if r.get("Id") == rid:
+            target = r.get("Target") or ""
+            return target.lstrip("/") if target.startswith("/") else posixpath.normpath(posixpath.join("xl", target))
+    return None
+
+
+def _count_xlsx_rows(path: str, member: str | None, what: str) -> None:
+    """Count the sheet's ``<row`` and ``<c`` elements in its decompressed XML, in chunks, before parsing:
+    a sheet beyond the row or cell limit is refused in seconds and a few MB, whatever it declares."""
+    import zipfile
+
+    from .limits import MAX_ROWS, MAX_XLSX_CELLS
+
+    if not member:
+        return
+    rows = cells = 0
+    tail = b""
+    with zipfile.ZipFile(path) as z:
+        try:
+            fh = z.open(member.lstrip("/"))
+        except KeyError:
+            return
+        with fh:
+            while True:
+                block = fh.read(1 << 20)
+                if not block:
+                    break
+                data = tail + block
+                rows += data.count(b"<row ") + data.count(b"<row>") - tail.count(b"<row ") - tail.count(b"<row>")
+                cells += data.count(b"<c ") + data.count(b"<c>") - tail.count(b"<c ") - tail.count(b"<c>")
+                tail = data[-5:]
+                if rows > MAX_ROWS:
+                    raise InputError(f"the workbook has more than {MAX_ROWS:,} rows (the most that is read; save the "
+                                     f"{what} as CSV)", file=path)
+                if cells > MAX_XLSX_CELLS:
+                    raise InputError(f"the workbook has more than {MAX_XLSX_CELLS:,} cells (the most that is read; "
+                                     f"save the {what} as CSV)", file=path)
+
+
 def _xlsx_cells(path: str, what: str) -> list[list[str]]:
     """The first sheet's cells as text, streamed (openpyxl read-only) with the row, cell and size limits
     checked as rows arrive, so a huge or bomb-like workbook stops early instead of filling memory."""
@@ -343,6 +399,7 @@ def _xlsx_cells(path: str, what: str) -> list[list[str]]:
     if unpacked > MAX_FILE_BYTES:
         raise InputError(f"the workbook unpacks to {unpacked:,} bytes; at most {MAX_FILE_BYTES:,} are read "
                          f"(save the {what} as CSV)", file=path)
+    _count_xlsx_rows(path, _first_sheet(path), what)  # before openpyxl spends any time on it
     try:
         from openpyxl import load_workbook
 
