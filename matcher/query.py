@@ -92,12 +92,14 @@ def query(
     of :data:`matcher.unlisted.CROWDING` or unlisted peaks per 100 index
     units) and each listed compound the presence prior ``presence``.
     """
-    phase_class = check_class(phase_class)
-    ri = float(ri)
-    if not np.isfinite(ri) or not (0 <= ri <= 10000):
-        from .errors import MatcherError
+    from .limits import check_mol_ion, check_ri, check_sd
 
-        raise MatcherError(f"retention index must be a number between 0 and 10000, got {ri}")
+    phase_class = check_class(phase_class)
+    ri = check_ri(ri, "retention index")
+    if measurement_sd is not None:
+        measurement_sd = check_sd(measurement_sd)
+    if mol_ion is not None:
+        mol_ion = check_mol_ion(mol_ion)
     if snapshot is None:
         from .store.snapshot_loader import load_snapshot
 

@@ -424,12 +424,15 @@ def screen(
     """Screen runs against one class of the house library; see the module doc."""
     from .peaks import read_peaks
 
+    from .limits import check_sd
     from .unlisted import crowding_density
 
     phase_class = check_class(phase_class)
     if top is not None and top < 1:
         raise MatcherError("--top must be at least 1")
     crowding_density(crowding)  # a bad crowding value fails before any file is read
+    if measurement_sd is not None:
+        measurement_sd = check_sd(measurement_sd)
     plan = plan_runs(list(peak_files), calibration, ladder)
     if not plan:
         raise MatcherError("no peak file given")
@@ -480,6 +483,7 @@ def screen(
             window=window_description(phase_class, window, window_percent),
             table=df, calibration=None if cal is None else cal.to_dict(), correction=correction,
             measurement_sd=model.measurement_sd, notices=notices, peak_count=len(table.peak), run_model=info,
+            checksum=getattr(table, "checksum", ""),
         ))
 
     return ScreenResult(

@@ -38,7 +38,9 @@ def register(app: typer.Typer) -> None:
         from ..evaluation import evaluate
         from ..store.snapshot_loader import load_snapshot
 
-        if noise < 0 or noise > 100:
+        import math
+
+        if not math.isfinite(noise) or noise < 0 or noise > 100:
             raise MatcherError("--noise must be between 0 and 100 index units")
         if crowded:
             from ..evaluation import evaluate_crowded_all

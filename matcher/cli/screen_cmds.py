@@ -86,6 +86,14 @@ def register(app: typer.Typer) -> None:
         if report is not None and not report.lower().endswith((".html", ".htm")):
             raise MatcherError(f"--report {report}: the report file must end in .html")
 
+        from ..atomic import guard_outputs
+        from ..writers import sidecar_path
+
+        outputs = [("-o", out)] + ([("-o (its provenance sidecar)", str(sidecar_path(out)))] if suffix == "csv" else [])
+        guard_outputs(outputs + [("--report", report)], db=db,
+                      inputs=[("the peak table", p) for p in peaks] + [("the calibration", c) for c in calibration or []]
+                      + [("the ladder", x) for x in ladder or []] + [("the anchors file", anchors)])
+
         bar = None
         progress = None
         if not quiet and sys.stderr.isatty():
