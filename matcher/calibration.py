@@ -76,6 +76,13 @@ class Calibration:
 
         t = np.asarray(rt_minutes, dtype=np.float64)
         if self.mode == "isothermal":
+            early = np.isfinite(t) & (t <= self.holdup.value)
+            if early.any():
+                first = float(t[early].flat[0])
+                raise MatcherError(
+                    f"retention time {first:g} min is at or before the hold-up time {self.holdup.value:.4g} min "
+                    f"({int(early.sum())} time(s) in all): an isothermal (Kováts) index needs t > tM; "
+                    "remove the unretained peaks or check the hold-up time")
             return kovats_index(t, self.rt, self.index, self.holdup.value)
         return linear_index(t, self.rt, self.index)
 
@@ -164,6 +171,8 @@ def _now() -> str:
 def calibrate(ladder: Ladder, *, mode: str = "programmed", holdup: str | None = None,
               dead_time: float | None = None, marker: float | None = None) -> Calibration:
     """Fit a calibration from a ladder; hard problems raise :class:`MatcherError`."""
+    if dead_time is not None and marker is not None:
+        raise MatcherError("give either --dead-time or --marker, not both: each one sets the hold-up time")
     from . import __version__
 
     if mode not in MODES:

@@ -236,3 +236,20 @@ def test_the_joint_posterior_equals_a_sum_over_all_assignments():
                 marg[p * 3 + c] += wt
     prob, _ = assign(logw, peak, comp, 4)
     np.testing.assert_allclose(prob, marg / z, atol=1e-12)
+
+
+def test_isothermal_time_at_or_before_the_holdup_time_is_refused():
+    """Kováts (Helv. Chim. Acta 41, 1915, 1958): I needs log(tR - tM), undefined for tR <= tM."""
+    from matcher.calibration import calibrate
+    from matcher.errors import MatcherError
+    from matcher.ladder import Ladder
+
+    lad = Ladder("ladder.csv", "alkanes", np.array([2.0, 3.0, 5.0]), np.array([800.0, 900.0, 1000.0]),
+                 ["octane", "nonane", "decane"], np.array([8, 9, 10]), np.array([1, 2, 3]))
+    cal = calibrate(lad, mode="isothermal", dead_time=1.0)
+    with pytest.raises(MatcherError, match="at or before the hold-up time"):
+        cal.convert([0.9, 2.5])
+    with pytest.raises(MatcherError, match="at or before the hold-up time"):
+        cal.convert([1.0])
+    with pytest.raises(MatcherError, match="not both"):
+        calibrate(lad, mode="isothermal", dead_time=1.0, marker=0.9)
