@@ -15,8 +15,11 @@
 * the index scatter of a query beyond the entry's own predictive spread is
   the added noise (a held-out observation comes from the same lab), unless
   ``measurement_sd`` says otherwise;
-* the prior share of in-library answers is the evaluation's own mix of
-  held-out and removed queries;
+* each query is scored as ``matcher query`` scores it: the presence prior
+  and the crowding prior (``crowding``, default ``moderate``) of
+  :mod:`matcher.unlisted`;
+* :func:`evaluate_crowded` is the harder check: half the library removed and
+  everything screened together as one run (``matcher evaluate --crowded``);
 * **expected calibration error** (ECE) of the top probability over both kinds
   of query: the mean gap, in ten equal bins, between the stated top
   probability and the observed hit rate;
@@ -132,12 +135,9 @@ def evaluate_class(snapshot: LibrarySnapshot, phase_class: str, *, noise: float 
         rest = [j for j in rows_of[int(obs.compound[i])] if j != i]
         new_ri[k], new_sd[k], _ = summarise(obs.ri[rest], obs.n[rest], obs.sd[rest], floor)
     # A held-out observation scatters around its entry by the entry's own (predictive) spread;
-    # only the added noise is extra measurement scatter. The prior share in the library is the
-    # evaluation's own mix of held-out (present) and removed (absent) queries.
+    # only the added noise is extra measurement scatter.
     k_rm = min(len(entries), MAX_QUERIES)
-    share = len(loo) / (len(loo) + k_rm)
-    # single queries: the query defaults (presence prior, crowding prior), with the crowding prior
-    # at the class's own density of held-out-or-removed queries, so the mix is what is measured
+    # single queries: the query defaults (presence prior, crowding prior)
     model = Model(max(noise, 0.1) if measurement_sd is None else measurement_sd,
                   unlisted=UnlistedField.flat(crowding_density(crowding)))
     x = obs.ri[loo] + (rng.normal(0, noise, len(loo)) if noise else 0.0)
