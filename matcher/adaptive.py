@@ -34,6 +34,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from .snapshot import MAD_TO_SD  # the MAD-to-sd constant, declared once
+
 ANCHOR_PROBABILITY = 0.9
 LONE_ANCHOR_PROBABILITY = 0.5  # the only candidate in its window needs less
 MIN_ANCHORS = 5
@@ -49,7 +51,7 @@ def fit_correction(ri_measured: np.ndarray, ri_reference: np.ndarray) -> dict:
     y = np.asarray(ri_reference, dtype=float) - x
     a, b, _, _ = theilslopes(y, x)
     resid = y - (a * x + b)
-    scatter = 1.4826 * float(np.median(np.abs(resid - np.median(resid)))) if len(resid) > 2 else float("nan")
+    scatter = MAD_TO_SD * float(np.median(np.abs(resid - np.median(resid)))) if len(resid) > 2 else float("nan")
     return {"method": "theil-sen", "a": float(a), "b": float(b), "residuals": resid, "scatter": scatter}
 
 

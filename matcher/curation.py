@@ -65,13 +65,14 @@ import numpy as np
 from .classes import DEFAULT_WINDOWS, check_class
 from .errors import LibraryError, MatcherError, RefusedChange
 from .results_reader import read_peak
+from .rules import RI_MAX, check_mode
 
 #: Similarity (0-100) of matching keys at or above which a new name counts as close to a library name.
 CLOSE_SCORE = 88.0
 #: Spreads from the centre beyond which an observation is refused (with the class window as minimum).
 GUARD_SPREADS = 3.0
-#: Upper bound of a plausible retention index (as the library CSV reader).
-RI_MAX = 10000.0
+#: Upper bound of a plausible retention index (declared in :mod:`matcher.rules`).
+RI_MAX = RI_MAX
 #: What ``ask`` returns to create a new compound.
 NEW = "new"
 
@@ -226,10 +227,7 @@ def _clean(name, phase_class, ri, formula, cas, inchikey, date, mode) -> dict:
             raise MatcherError(f"not an ISO date (YYYY-MM-DD): {date!r}") from None
     else:
         out["date"] = datetime.now(timezone.utc).date().isoformat()
-    m = (mode or "programmed").strip().lower()
-    if m not in ("programmed", "isothermal"):
-        raise MatcherError(f"mode must be programmed or isothermal, got {mode!r}")
-    out["mode"] = m
+    out["mode"] = check_mode(mode)
     return out
 
 

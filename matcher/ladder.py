@@ -39,10 +39,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import InputError, MatcherError
+from .rules import MAX_RT_MIN  # noqa: F401 - largest accepted retention time, minutes (declared in matcher.rules)
 from .series import SERIES, check_series
 
-#: Largest accepted retention time, minutes (a week-long run is not a GC run).
-MAX_RT_MIN = 10_000.0
 #: Largest accepted chain length.
 MAX_CARBONS = 200
 #: Largest accepted assigned index.

@@ -1,6 +1,6 @@
 """The peak table reader: one run's peaks, with whatever columns the lab exported.
 
-Canonical columns (DESIGN §4): ``peak`` (id), ``rt`` and/or ``ri``; optional
+Canonical columns (docs/formats.md, "Peak table"): ``peak`` (id), ``rt`` and/or ``ri``; optional
 ``mol_ion`` (nominal m/z), ``ions`` (key ions separated by spaces, commas or
 semicolons), ``hit`` (name from the lab's spectral search), ``hit_score``
 (0-100) and ``area``. Header spellings commonly seen in instrument exports
@@ -37,10 +37,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import InputError
-
-MAX_RT_MIN = 10_000.0
-MAX_RI = 10_000.0
-MAX_MZ = 5_000
+from .rules import MAX_MZ, MAX_RT_MIN  # noqa: F401 - limits declared in matcher.rules
+from .rules import RI_MAX as MAX_RI
 
 #: Header spellings (beyond the canonical name) for each canonical column.
 ALIASES: dict[str, list[str]] = {

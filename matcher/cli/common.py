@@ -7,6 +7,11 @@ from typing import Annotated, Optional
 
 import typer
 
+from ..rules import PHASE_CLASSES
+
+#: Help text of every ``--class`` option (the names come from :data:`matcher.rules.PHASE_CLASSES`).
+CLASS_HELP = "Polarity class of the column: " + ", ".join(PHASE_CLASSES) + "."
+
 DbOption = Annotated[
     Optional[str],
     typer.Option(

@@ -50,6 +50,7 @@ from ..errors import InputError, MatcherError
 from ..formula import hill_formula
 from ..identifiers import normalise_inchikey
 from ..names import display_name, matching_key
+from ..rules import MODE_ALIASES, MODES, RI_MAX
 
 REQUIRED = ("name", "phase_class", "ri")
 OPTIONAL = ("cas", "formula", "ri_sd", "n", "mode", "phase", "source", "synonyms", "inchikey", "smiles", "notes")
@@ -80,9 +81,7 @@ ALIASES: dict[str, list[str]] = {
     "retired": ["retired"],
 }
 
-_MODES = {"programmed": "programmed", "temperature-programmed": "programmed", "prog": "programmed",
-          "isothermal": "isothermal", "iso": "isothermal"}
-RI_MAX = 10000.0
+_MODES = {m: m for m in MODES} | MODE_ALIASES
 
 
 @dataclass(frozen=True)
