@@ -78,12 +78,12 @@ class Ladder:
 
 def read_ladder(path, *, series: str | None = None, rt_unit: str | None = None,
                 overrides: dict[str, str] | None = None) -> Ladder:
-    """Read and hard-check a ladder file; see the module docstring."""
+    """Read and hard-check a ladder: a file or a pandas DataFrame (same checks); see the module docstring."""
     from .peaks import time_unit
     from .series import assigned_index, lee_index
-    from .tables import load_table, map_headers, numbers, texts
+    from .tables import as_table, map_headers, numbers, texts
 
-    raw = load_table(path, what="ladder")
+    raw = as_table(path, what="ladder")
     cols = map_headers(raw, ALIASES, overrides)
     if "rt" not in cols:
         raise InputError(f"the ladder has no retention-time column 'rt'; its header has: {', '.join(raw.header)}",

@@ -49,3 +49,16 @@ def library_group(app: typer.Typer) -> typer.Typer:
     lib = typer.Typer(help="Manage the house library.", no_args_is_help=True, rich_markup_mode=None)
     app.add_typer(lib, name="library")
     return lib
+
+
+def parse_map(items: list[str] | None) -> dict[str, str]:
+    """``--map column=header`` options as a dict."""
+    from ..errors import MatcherError
+
+    out: dict[str, str] = {}
+    for item in items or []:
+        if "=" not in item:
+            raise MatcherError(f"--map expects column=header, got {item!r}")
+        k, v = item.split("=", 1)
+        out[k.strip()] = v.strip()
+    return out

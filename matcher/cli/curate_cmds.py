@@ -12,7 +12,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from .common import DbOption, JsonFlag, is_terminal, note, say, library_group
+from .common import CLASS_HELP, DbOption, JsonFlag, is_terminal, note, say, library_group
 
 EX_CONFIRM = (
     "Example: peak 11 of this morning's run was confirmed with an authentic standard of gamma-terpinene\n\n"
@@ -114,7 +114,7 @@ def register(app: typer.Typer) -> None:
                  epilog=EX_ADD)
     def add_cmd(
         name: Annotated[str, typer.Argument(help="Compound name (case, spacing and usual spelling variants are folded).")],
-        phase_class: Annotated[str, typer.Option("--class", help="Phase class: nonpolar, slightly-polar, mid-polar, polar, highly-polar.")],
+        phase_class: Annotated[str, typer.Option("--class", help=CLASS_HELP)],
         ri: Annotated[float, typer.Option("--ri", help="The retention index measured.")],
         formula: Annotated[Optional[str], typer.Option("--formula", help="Molecular formula, e.g. C10H16.")] = None,
         cas: Annotated[Optional[str], typer.Option("--cas", help="CAS Registry Number (check digit verified).")] = None,

@@ -31,13 +31,11 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..errors import MatcherError
         from ..evaluation import evaluate
+        from ..rules import check_noise
         from ..store.snapshot_loader import load_snapshot
 
-        if noise < 0 or noise > 100:
-            raise MatcherError("--noise must be between 0 and 100 index units")
-        report = evaluate(load_snapshot(db), phase_class, noise=noise, window=window)
+        report = evaluate(load_snapshot(db), phase_class, noise=check_noise(noise), window=window)
         if as_json:
             say(json.dumps(report, indent=2, ensure_ascii=False, allow_nan=False, default=lambda v: None))
             return
