@@ -96,17 +96,10 @@ def register(app: typer.Typer) -> None:
     ) -> None:
         import json
 
-        from ..calibration import calibrate
-        from ..holdup import METHODS
-        from ..ladder import read_ladder
-        from ..series import SERIES
+        from ..api import calibrate
 
-        from ..rules import choice
-
-        holdup_ = choice(holdup, METHODS, "--holdup")
-        series_ = choice(series, tuple(SERIES), "--series")
-        lad = read_ladder(ladder, series=series_, rt_unit=rt_unit, overrides=parse_map(mapping))
-        cal = calibrate(lad, mode=mode, holdup=holdup_, dead_time=dead_time, marker=marker)
+        cal = calibrate(ladder, mode=mode, holdup=holdup, dead_time=dead_time, marker=marker, series=series,
+                        rt_unit=rt_unit, header_map=parse_map(mapping))
         cal.save(output)
         if as_json:
             say(json.dumps(cal.to_dict(), indent=2, ensure_ascii=False))

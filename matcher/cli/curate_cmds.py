@@ -104,9 +104,9 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..curation import confirm_from_results
+        from ..api import open_library
 
-        result = confirm_from_results(db, results, peak, name, run=run, source=source, analyst=analyst, force=force,
+        result = open_library(db).confirm(results, peak, name, run=run, source=source, analyst=analyst, force=force,
                                       new=new, as_existing=as_existing, measured=measured, ask=_asker())
         _render_add(result, as_json)
 
@@ -130,9 +130,9 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..curation import add_confirmed
+        from ..api import open_library
 
-        result = add_confirmed(db, name, phase_class, ri, formula=formula, cas=cas, inchikey=inchikey, phase=phase,
+        result = open_library(db).add(name, phase_class, ri, formula=formula, cas=cas, inchikey=inchikey, phase=phase,
                                mode=mode, date=date, source=source, analyst=analyst, force=force, new=new,
                                as_existing=as_existing, ask=_asker())
         _render_add(result, as_json)
@@ -143,10 +143,10 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..curation import history
+        from ..api import open_library
         from ..textable import format_table
 
-        rows = history(db, name)
+        rows = open_library(db).history(name)
         if as_json:
             say(json.dumps(rows, indent=2, ensure_ascii=False))
             return
@@ -162,9 +162,9 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..curation import retire
+        from ..api import open_library
 
-        doc = retire(db, observation, why, analyst=analyst)
+        doc = open_library(db).retire(observation, why, analyst=analyst)
         if as_json:
             say(json.dumps(doc, indent=2, ensure_ascii=False))
             return
@@ -181,9 +181,9 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..library_merge import merge
+        from ..api import open_library
 
-        report = merge(db, other, analyst=analyst)
+        report = open_library(db).merge(other, analyst=analyst)
         if as_json:
             say(json.dumps(report.as_dict(), indent=2, ensure_ascii=False))
             return
@@ -198,6 +198,6 @@ def register(app: typer.Typer) -> None:
         overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace an existing file.")] = False,
         db: DbOption = None,
     ) -> None:
-        from ..store.backup import backup
+        from ..api import open_library
 
-        say(backup(db, path, overwrite=overwrite).summary())
+        say(open_library(db).backup(path, overwrite=overwrite).summary())

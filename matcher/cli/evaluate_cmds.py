@@ -31,11 +31,9 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..evaluation import evaluate
-        from ..rules import check_noise
-        from ..store.snapshot_loader import load_snapshot
+        from ..api import evaluate
 
-        report = evaluate(load_snapshot(db), phase_class, noise=check_noise(noise), window=window)
+        report = evaluate(db, phase_class=phase_class, noise=noise, window=window).to_dict()
         if as_json:
             say(json.dumps(report, indent=2, ensure_ascii=False, allow_nan=False, default=lambda v: None))
             return

@@ -42,9 +42,9 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..query import query
+        from ..api import query
 
-        result = query(ri, phase_class, db=db, window=window, window_percent=window_percent, mol_ion=mol_ion,
+        result = query(ri, phase_class, library=db, window=window, window_percent=window_percent, mol_ion=mol_ion,
                        ions=ions or None, hit=hit, hit_score=hit_score, top=top, fallback=fallback,
                        homologues=homologues, measurement_sd=sd)
         doc = result.to_dict()

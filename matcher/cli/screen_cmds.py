@@ -59,7 +59,7 @@ def register(app: typer.Typer) -> None:
         import sys
 
         from ..rules import check_report_path, check_shortlist_path
-        from ..screening import screen
+        from ..api import screen
         from ..writers import write_results
 
         check_shortlist_path(out)  # before the work: nothing is screened for a file that cannot be written
@@ -78,7 +78,7 @@ def register(app: typer.Typer) -> None:
                 bar.length = max(bar.length, seen[0])
                 bar.update(k)
         try:
-            result = screen(peaks, phase_class, db=db, calibration=calibration, ladder=ladder, mode=mode,
+            result = screen(peaks, phase_class=phase_class, library=db, calibration=calibration, ladder=ladder, mode=mode,
                             dead_time=dead_time, rt_unit=rt_unit, header_map=parse_map(header_map) or None,
                             window=window, window_percent=window_percent, top=top, fallback=fallback,
                             homologues=homologues, adaptive=adaptive, anchors=anchors, measurement_sd=sd,
