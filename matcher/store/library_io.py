@@ -1,9 +1,9 @@
-"""Import and export of the library CSV (DESIGN §4), also ``.xlsx`` on import and export.
+"""Import and export of the library CSV (docs/formats.md, "Library CSV"), also ``.xlsx`` on import and export.
 
 Columns (one row per observation or per literature summary):
 
 * required: ``name``, ``phase_class``, ``ri``
-* optional (DESIGN §4): ``cas``, ``formula``, ``ri_sd``, ``n``, ``mode``
+* optional: ``cas``, ``formula``, ``ri_sd``, ``n``, ``mode``
   (programmed | isothermal, blank = programmed), ``phase``, ``source``,
   ``synonyms`` (separated by ``;``), ``inchikey``, ``smiles``, ``notes``
 * optional, our own: ``series`` (homologous-series label), ``key_ions``
