@@ -9,9 +9,9 @@ import typer
 
 from .common import DbOption, JsonFlag, note, say
 
-HELP = """Manage the house library: retention indices measured on your own columns, per polarity class.
+HELP = "Manage the house library: retention indices measured on your own columns, per polarity class."
 
-Example: start a library from the bundled demo file, then look around
+EX_GROUP = """Example: start a library from the bundled demo file, then look around
 
     matcher library init --db lab.sqlite
 
@@ -35,7 +35,7 @@ EX_CHECK = "Example: exit code 0 when healthy, 1 when a problem is listed\n\n   
 
 
 def register(app: typer.Typer) -> None:
-    lib = typer.Typer(help=HELP, no_args_is_help=True, rich_markup_mode=None)
+    lib = typer.Typer(help=HELP, epilog=EX_GROUP, no_args_is_help=True, rich_markup_mode=None)
     app.add_typer(lib, name="library")
 
     @lib.command("init", help="Create an empty house library (or migrate an older one); seeds the phase catalog.", epilog=EX_INIT)
