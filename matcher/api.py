@@ -276,8 +276,8 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
            header_map: dict[str, str] | None = None, window: float | None = None,
            window_percent: float | None = None, top: int | None = None, fallback: bool = False,
            homologues: bool = False, adaptive: bool = False, anchors: str | os.PathLike | None = None,
-           measurement_sd: float | None = None, labels: Sequence[str] | None = None,
-           progress: Callable[[int], None] | None = None) -> "ScreenResult":
+           measurement_sd: float | None = None, crowding: str | float | None = None, split_peaks: bool = False,
+           labels: Sequence[str] | None = None, progress: Callable[[int], None] | None = None) -> "ScreenResult":
     """Shortlist every peak of one run, or of a batch, against one class of the library.
 
     ``peaks``: a peak table (path, DataFrame or :class:`~matcher.peaks.PeakTable`)
@@ -288,7 +288,10 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
     read once. Returns a :class:`~matcher.results.ScreenResult`: ``.table``
     is one DataFrame of all runs (one row per peak and candidate),
     ``.to_csv/.to_json/.to_xlsx/.to_html`` write the files ``matcher
-    screen`` writes.
+    screen`` writes. ``crowding`` is the prior on compounds not in the library
+    (``sparse``, ``moderate``, ``crowded``, ``dense`` or unlisted peaks per 100
+    index units; the run refines it); ``split_peaks=True`` lets one compound
+    explain several peaks.
     """
     from .screening import screen as _screen
 
@@ -296,13 +299,15 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
                    dead_time=dead_time, rt_unit=rt_unit, header_map=header_map, window=window,
                    window_percent=window_percent, top=top, fallback=fallback, homologues=homologues,
                    adaptive=adaptive, anchors=None if anchors is None else os.fspath(anchors),
-                   measurement_sd=measurement_sd, labels=labels, progress=progress)
+                   measurement_sd=measurement_sd, crowding=crowding, split_peaks=split_peaks, labels=labels,
+                   progress=progress)
 
 
 def query(ri: float, phase_class: str, *, library: Any = None, window: float | None = None,
           window_percent: float | None = None, mol_ion: float | None = None, ions: Any = None,
           hit: str | None = None, hit_score: float | None = None, top: int | None = None,
-          fallback: bool = False, homologues: bool = False, measurement_sd: float | None = None) -> "QueryResult":
+          fallback: bool = False, homologues: bool = False, measurement_sd: float | None = None,
+          crowding: str | float | None = None) -> "QueryResult":
     """Ranked candidates for one retention index; returns a :class:`~matcher.query.QueryResult`.
 
     ``ions`` are key ions (whole m/z: a list or text such as ``"93 136"``);
@@ -315,7 +320,7 @@ def query(ri: float, phase_class: str, *, library: Any = None, window: float | N
 
     return _query(ri, phase_class, **_source(library), window=window, window_percent=window_percent,
                   mol_ion=mol_ion, ions=ions, hit=hit, hit_score=hit_score, top=top, fallback=fallback,
-                  homologues=homologues, measurement_sd=measurement_sd)
+                  homologues=homologues, measurement_sd=measurement_sd, crowding=crowding)
 
 
 @dataclass

@@ -150,20 +150,10 @@ class Calibration:
     @classmethod
     def load(cls, path) -> "Calibration":
         """Read and validate a calibration file; any problem is one :class:`InputError`."""
+        from .reading import load_json
+
         path = str(path)
-        try:
-            with open(path, "rb") as fh:
-                data = fh.read()
-        except FileNotFoundError:
-            raise InputError("calibration file not found", file=path)
-        except OSError as exc:
-            raise InputError(f"cannot read the calibration file ({exc.strerror or exc})", file=path)
-        try:
-            d = json.loads(data.decode("utf-8-sig"))
-        except UnicodeDecodeError:
-            raise InputError("not a calibration file (not UTF-8 JSON text)", file=path)
-        except json.JSONDecodeError as exc:
-            raise InputError(f"not a calibration file (invalid JSON: {exc.msg})", file=path, line=exc.lineno)
+        d = load_json(path, what="calibration file")
         return cls.from_dict(d, file=path)
 
 

@@ -65,14 +65,14 @@ import numpy as np
 from .classes import DEFAULT_WINDOWS, check_class
 from .errors import LibraryError, MatcherError, RefusedChange
 from .results_reader import read_peak
-from .rules import RI_MAX, check_mode
+from .rules import check_mode
 
 #: Similarity (0-100) of matching keys at or above which a new name counts as close to a library name.
 CLOSE_SCORE = 88.0
 #: Spreads from the centre beyond which an observation is refused (with the class window as minimum).
 GUARD_SPREADS = 3.0
-#: Upper bound of a plausible retention index (declared in :mod:`matcher.rules`).
-RI_MAX = RI_MAX
+#: Upper bound of a plausible retention index (as the library CSV reader).
+from .limits import MAX_RI as RI_MAX  # noqa: E402  declared once
 #: What ``ask`` returns to create a new compound.
 NEW = "new"
 
@@ -206,7 +206,9 @@ def _clean(name, phase_class, ri, formula, cas, inchikey, date, mode) -> dict:
     from .identifiers import normalise_inchikey
     from .names import display_name, matching_key
 
-    out: dict[str, Any] = {"name": display_name(name or "")}
+    from .limits import check_name
+
+    out: dict[str, Any] = {"name": display_name(check_name(name or " ", "compound name") if str(name or "").strip() else "")}
     if not out["name"] or not matching_key(out["name"]):
         raise MatcherError(f"a compound name with letters or digits is required, got {name!r}")
     out["phase_class"] = check_class(phase_class)
@@ -358,8 +360,13 @@ def add_confirmed(db: str | None, name: str, phase_class: str, ri: float, *, for
     from .store.database import open_library, record, run_write
     from .store import writes
 
+    from .limits import check_name, check_text
+
     if new and as_existing:
         raise MatcherError("give either --new or --as, not both")
+    source, analyst = check_text(source, "source"), check_text(analyst, "analyst name")
+    if as_existing is not None:
+        as_existing = check_name(as_existing, "name given with --as")
     v = _clean(name, phase_class, ri, formula, cas, inchikey, date, mode)
     engine = open_library(db)
 
@@ -370,11 +377,18 @@ def add_confirmed(db: str | None, name: str, phase_class: str, ri: float, *, for
         created = c is None
         before = None if created else _class_summary(c, cls)
         forced = False
-        if once and not created and not force:
-            twin = next((o for o in c.observations if once in (o.source or "")), None)
+        if once and not force:  # one peak of one run, in one class, is recorded once (whatever name it gets)
+            from sqlalchemy import select
+
+            from .store.models import Observation
+
+            like = once.replace("\\", "\\\\").replace("%", "\\%").replace("_", "\\_")
+            twin = session.scalars(select(Observation).where(Observation.phase_class == cls,
+                                                             Observation.source.like(f"%{like}%", escape="\\"))
+                                   .order_by(Observation.id).limit(1)).first()
             if twin is not None:
-                raise RefusedChange(f"already recorded as observation {twin.id} of {c.name!r} ({once}); "
-                                    f"nothing written; add --force to record it again")
+                raise RefusedChange(f"peak already recorded as observation {twin.id} of {twin.compound.name!r} "
+                                    f"({once}); nothing written; add --force to record it again")
         if before is not None:
             dev = v["ri"] - before.centre
             limit = guard_limit(before, cls)
@@ -468,10 +482,10 @@ def confirm_from_results(db: str | None, results_path: str | os.PathLike, peak: 
             "ri_measured": facts.ri_measured, "used": ri, "class": facts.phase_class, "run_source": facts.run_source,
             "ladder": facts.ladder, "mode": facts.mode, "calibrated": facts.calibrated, "screened": facts.screened,
             "tool_version": facts.tool_version, "corrected": facts.corrected, "flags": facts.flags,
-            "best_candidate": facts.best, "sidecar": facts.sidecar}
+            "best_candidate": facts.best, "sidecar": facts.sidecar, "run_checksum": facts.checksum or None}
     return add_confirmed(db, name, facts.phase_class, ri, source=text, analyst=analyst, force=force, new=new,
                          as_existing=as_existing, ask=ask, date=facts.date or None, mode=facts.mode,
-                         provenance=prov, once=here)
+                         provenance=prov, once=facts.identity() if facts.checksum else here)
 
 
 # --------------------------------------------------------------------------- history and retiring
@@ -510,7 +524,10 @@ def retire(db: str | None, observation_id: int, why: str, *, analyst: str | None
     from .store.models import Observation
     from .store import writes
 
-    why = " ".join(str(why or "").split())
+    from .limits import check_id, check_text
+
+    observation_id = check_id(observation_id, "observation id")
+    why = " ".join(str(check_text(why, "reason") or "").split())
     if not why:
         raise MatcherError("say why the observation is retired (--why TEXT)")
     engine = open_library(db)

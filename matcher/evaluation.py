@@ -40,7 +40,8 @@ import numpy as np
 
 from .candidates import Pairs, half_widths, window_pairs
 from .classes import DEFAULT_WINDOWS, PHASE_CLASSES, check_class
-from .evidence import Model, PeakHints, background, score_pairs
+from .evidence import Model, PeakHints, mass_background, score_pairs, softmax_with_null
+from .unlisted import UnlistedField, crowding_density
 from .snapshot import SPREAD_FLOOR, ClassEntries, LibrarySnapshot, summarise
 
 MAX_QUERIES = 3000  # per class and kind; a seeded sample beyond this
@@ -84,6 +85,7 @@ def _score_queries(entries: ClassEntries, compounds, bg, model, x, own, replace_
     )
     hints = None if mol_ion is None else PeakHints(mol_ion)
     sc = score_pairs(pairs, x, ext, compounds, bg, model, hints)
+    sc.probability, sc.not_in_library = softmax_with_null(sc.logw, pairs.peak, len(x))
     return pairs, sc, ext
 
 
@@ -100,7 +102,7 @@ def _ranks(pairs: Pairs, sc, own_pair: np.ndarray, n: int):
 
 
 def evaluate_class(snapshot: LibrarySnapshot, phase_class: str, *, noise: float = 0.0, window: float | None = None,
-                   measurement_sd: float | None = None, rng=None) -> dict:
+                   measurement_sd: float | None = None, rng=None, crowding=None) -> dict:
     """Self-check of one class (index only, and under ``with_mol_ion`` with the molecular ion); see the module doc."""
     phase_class = check_class(phase_class)
     rng = rng or np.random.default_rng(SEED)
@@ -111,7 +113,7 @@ def evaluate_class(snapshot: LibrarySnapshot, phase_class: str, *, noise: float 
     if len(entries) < 2 or obs is None:
         out["notice"] = "fewer than two entries: nothing to evaluate"
         return out
-    bg = background(entries, comps)
+    bg = mass_background(entries, comps)
     floor = SPREAD_FLOOR[phase_class]
 
     # leave one out
@@ -134,7 +136,10 @@ def evaluate_class(snapshot: LibrarySnapshot, phase_class: str, *, noise: float 
     # evaluation's own mix of held-out (present) and removed (absent) queries.
     k_rm = min(len(entries), MAX_QUERIES)
     share = len(loo) / (len(loo) + k_rm)
-    model = Model(max(noise, 0.1) if measurement_sd is None else measurement_sd, min(max(share, 0.05), 0.95))
+    # single queries: the query defaults (presence prior, crowding prior), with the crowding prior
+    # at the class's own density of held-out-or-removed queries, so the mix is what is measured
+    model = Model(max(noise, 0.1) if measurement_sd is None else measurement_sd,
+                  unlisted=UnlistedField.flat(crowding_density(crowding)))
     x = obs.ri[loo] + (rng.normal(0, noise, len(loo)) if noise else 0.0)
     w = half_widths(x, phase_class, window)
     rm = np.sort(rng.choice(len(entries), k_rm, replace=False))
@@ -222,3 +227,97 @@ def evaluate(snapshot: LibrarySnapshot, phase_class: str | None = None, *, noise
         "classes": per,
         "library": {"location": snapshot.source, "revision": snapshot.revision},
     }
+
+
+#: Calls at or above this probability count as confident in the crowded self-check.
+CONFIDENT_AT = 0.9
+
+
+def _subset_entries(entries: ClassEntries, keep: np.ndarray) -> ClassEntries:
+    return ClassEntries(entries.phase_class, entries.ri[keep], entries.sd[keep], entries.n[keep],
+                        entries.compound[keep], entries.predicted[keep])
+
+
+def evaluate_crowded(snapshot: LibrarySnapshot, phase_class: str, *, offset: float = 0.0, noise: float | None = None,
+                     adaptive: bool = False, with_mol_ion: bool = True, crowding=None, seed: int = SEED) -> dict:
+    """Crowded-sample self-check: every other compound along the index scale is removed from the library,
+    and all of them (kept and removed) are screened together as one run.
+
+    Removed compounds then sit between listed ones, often with the same nominal mass, as unlisted
+    isomers do in a real oil. Each compound gives one peak at its centre plus Gaussian scatter of its
+    entry's own spread (or ``noise`` units) plus ``offset``. Reported: ``confident_precision`` (share of
+    calls at p ≥ :data:`CONFIDENT_AT` that are right), ``confident_calls``, ``listed_first`` (listed
+    compounds ranked first), ``mean_top_probability_removed``, ``max_compound_sum`` (largest sum of one
+    compound's probabilities over the run, at most 1) and ``ece`` (expected calibration error of the top
+    probability, ten bins).
+
+    >>> from matcher.snapshot import CompoundTable, build_snapshot
+    >>> comp = CompoundTable.from_records([{"id": i + 1, "name": f"c{i}", "nominal_mass": 136.0} for i in range(60)])
+    >>> snap = build_snapshot(comp, np.arange(1, 61), np.array(["nonpolar"] * 60), 900.0 + 11.0 * np.arange(60))
+    >>> r = evaluate_crowded(snap, "nonpolar")
+    >>> r["peaks"], r["removed"], r["max_compound_sum"] <= 1.0
+    (60, 30, True)
+    """
+    from .evidence import DEFAULT_MEASUREMENT_SD
+    from .screening import screen_run
+    from .shortlist import PeakInput, prepare
+
+    phase_class = check_class(phase_class)
+    entries = snapshot.entries(phase_class)
+    measured = np.flatnonzero(~entries.predicted)
+    out: dict = {"class": phase_class, "offset": offset, "adaptive": adaptive}
+    if len(measured) < 4:
+        out["notice"] = "fewer than four entries: nothing to evaluate"
+        return out
+    rng = np.random.default_rng(seed)
+    order = measured[np.argsort(entries.ri[measured], kind="stable")]
+    removed_mask = np.zeros(len(entries), dtype=bool)
+    removed_mask[order[1::2]] = True
+    kept = np.zeros(len(entries), dtype=bool)
+    kept[order[0::2]] = True
+    lib = LibrarySnapshot(snapshot.compounds, {phase_class: _subset_entries(entries, kept)})
+    home = prepare(lib, phase_class)
+    sd = entries.sd[order] if noise is None else np.full(len(order), float(noise))
+    x = entries.ri[order] + rng.normal(0.0, 1.0, len(order)) * sd + offset
+    truth = entries.compound[order]
+    is_removed = removed_mask[order]
+    mass = snapshot.compounds.nominal_mass[truth] if with_mol_ion else None
+    sl, _, model, info, corr, _ = screen_run(home, PeakInput(x, mol_ion=mass), DEFAULT_MEASUREMENT_SD[phase_class],
+                                             adaptive=adaptive, crowding=crowding)
+    c = sl.columns
+    top = c["rank"] == 1
+    n = len(x)
+    top_comp = np.full(n, -1)
+    top_p = np.zeros(n)
+    top_comp[c["peak"][top]] = c["compound"][top]
+    top_p[c["peak"][top]] = c["probability"][top]
+    right = (top_comp == truth) & ~is_removed
+    conf = top_p >= CONFIDENT_AT
+    sums = np.bincount(c["compound"][c["compound"] >= 0], weights=c["probability"][c["compound"] >= 0])
+    out.update({
+        "peaks": int(n),
+        "removed": int(is_removed.sum()),
+        "confident_calls": int(conf.sum()),
+        "confident_precision": round(float(right[conf].mean()), 4) if conf.any() else None,
+        "listed_first": round(float(right[~is_removed].mean()), 4),
+        "mean_top_probability_removed": round(float(top_p[is_removed].mean()), 4),
+        "max_compound_sum": round(float(sums.max()), 6) if len(sums) else 0.0,
+        "ece": round(_ece(top_p, right), 4),
+        "index_scatter": round(float(model.measurement_sd), 3),
+        "presence": info.get("presence"),
+        "unlisted_per_100": info.get("unlisted_per_100"),
+        "correction": None if not corr else {"applied": corr["applied"], "a": corr["a"], "b": corr["b"],
+                                             "notice": corr["notice"]},
+    })
+    return out
+
+
+def evaluate_crowded_all(snapshot: LibrarySnapshot, phase_class: str | None = None, *, offset: float = 4.0,
+                         noise: float | None = None, crowding=None) -> dict:
+    """:func:`evaluate_crowded` for one class or every class with at least four entries, plain and adaptive."""
+    classes = [check_class(phase_class)] if phase_class else [c for c in PHASE_CLASSES if len(snapshot.entries(c)) >= 4]
+    per = {c: {"plain": evaluate_crowded(snapshot, c, offset=offset, noise=noise, crowding=crowding),
+               "adaptive": evaluate_crowded(snapshot, c, offset=offset, noise=noise, crowding=crowding, adaptive=True)}
+           for c in classes}
+    return {"mode": "crowded", "offset": offset, "classes": per,
+            "library": {"location": snapshot.source, "revision": snapshot.revision}}

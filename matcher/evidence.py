@@ -11,37 +11,42 @@ library** (*N*). Bayes' rule with
   — the library entry's spread (wider when it rests on few observations,
   see :mod:`matcher.snapshot`) combined with the run's own index scatter
   :math:`\\sigma_m`;
-* index likelihood under *N*: the density of *unlisted* compounds at
-  :math:`x`, taken as the library's own index density smoothed with a
-  Gaussian kernel of :data:`DENSITY_BANDWIDTH` units, mixed with a uniform
-  part (:data:`UNIFORM_SHARE` over :data:`INDEX_SPAN`). Where the library is
-  dense an unlisted compound is also likely, so a lone nearby entry does not
-  win by default;
+* index likelihood under *N*: the intensity :math:`\\lambda_U(x)` of
+  unlisted peaks at x, estimated from the run itself (or the crowding prior
+  for a single query), see :mod:`matcher.unlisted`;
+* prior: each listed compound is present in the sample with probability
+  :math:`\\pi` (estimated from the run, :mod:`matcher.run_model`;
+  :data:`DEFAULT_PRESENCE` for a single query);
 
 gives the weight of evidence of *j* against *N* (natural-log Bayes factor)
 
 .. math::
 
-   \\text{score}_j = \\ln\\phi(x-\\mu_j; s_j) - \\ln\\big[(1-\\beta)\\,g(x) + \\beta M/R\\big]
+   \\text{score}_j = \\ln\\phi(x-\\mu_j; s_j) - \\ln\\lambda_U(x)
    + e^{mol}_j + e^{ions}_j + e^{hit}_j
 
-where :math:`g(x)=\\sum_k K_h(x-\\mu_k)`. The posterior over the candidates
-inside the window and *N* is then a softmax of
-:math:`\\ln\\frac{\\pi}{1-\\pi} + \\text{score}_j + \\ln r_j` against 0
-(:math:`r_j` < 1 for homologue predictions and cross-class entries).
+and the log odds of *j* against *N*,
+:math:`\\ln\\frac{\\pi}{1-\\pi} + \\text{score}_j + \\ln r_j`
+(:math:`r_j` < 1 for homologue predictions and cross-class entries). For
+one peak the posterior over the candidates inside the window and *N* is a
+softmax of these odds against 0; over a run the candidates compete for
+peaks, one compound explaining at most one peak (:mod:`matcher.assignment`).
 
 Mass-spectral hints are likelihood ratios, each treated the same way under
 every hypothesis:
 
 * **molecular ion** m: under *j* with a formula, P(m = M_j) = 1 − ε and a
-  different m has probability ε·q(m); under *N*, m follows q, the smoothed
-  distribution of nominal masses in the class. Hence
-  :math:`e^{mol} = \\ln[(1-\\varepsilon)/q(m)]` on agreement and
+  different m has probability ε·q(m | x); under *N*, m follows q(m | x), how
+  common that nominal mass is among compounds eluting near x
+  (:class:`matcher.unlisted.MassBackground`). Hence
+  :math:`e^{mol} = \\ln[(1-\\varepsilon)/q(m \\mid x)]` on agreement and
   :math:`\\ln\\varepsilon` on disagreement; 0 for an unknown formula.
 * **key ions**: each of the compound's key ions is seen with probability
   p_seen under *j* and p_chance under *N*.
 * **spectral-search hit** naming the candidate (name similarity ≥
-  :data:`HIT_MATCH`): likelihood ratio 1 + HIT_GAIN · score/100.
+  :data:`HIT_MATCH`): likelihood ratio 1 + HIT_GAIN · score/100. A hit that
+  names a compound the library does not hold at all is evidence for *N*:
+  every candidate gets the inverse ratio, 1 / (1 + HIT_GAIN · score/100).
 
 The constants are stated assumptions, not fitted truths; ``matcher evaluate``
 measures how well they serve a given library.
@@ -49,7 +54,7 @@ measures how well they serve a given library.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -57,17 +62,13 @@ from .candidates import Pairs
 from .classes import DEFAULT_WINDOWS
 from .hints import ion_count, ion_overlap
 from .snapshot import ClassEntries, CompoundTable
+from .unlisted import MassBackground, UnlistedField, crowding_density
 
 #: Default index scatter of a measurement (index units), per class: 0.3 × default window.
 DEFAULT_MEASUREMENT_SD: dict[str, float] = {k: 0.3 * v for k, v in DEFAULT_WINDOWS.items()}
-#: Default prior probability that a peak is a compound of the library (single queries).
-DEFAULT_PRIOR_IN_LIBRARY = 0.5
-DENSITY_BANDWIDTH = 25.0  # index units
-UNIFORM_SHARE = 0.2
-INDEX_SPAN = 4000.0  # index units over which the uniform part spreads
+#: Default probability that a listed compound is present in the sample (single queries, short runs).
+DEFAULT_PRESENCE = 0.5
 MASS_ERROR = 0.05  # ε: molecular ion read wrong, absent, or a fragment taken for it
-MASS_PSEUDOCOUNT = 0.5
-MASS_RANGE = 600  # number of nominal masses the pseudocount spreads over
 ION_SEEN = 0.8
 ION_CHANCE = 0.25
 HIT_MATCH = 0.9
@@ -80,62 +81,31 @@ _LOG_SQRT_2PI = 0.5 * np.log(2.0 * np.pi)
 
 @dataclass(frozen=True)
 class Model:
-    """Settings of the evidence model for one run (see module doc)."""
+    """Settings of the evidence model for one run (see module doc).
+
+    ``measurement_sd`` is the run's index scatter σ_m; ``presence`` the
+    probability π that a listed compound is in the sample; ``unlisted`` the
+    intensity of unlisted peaks (:class:`matcher.unlisted.UnlistedField`;
+    ``None`` means the flat default crowding); ``exclusive``: one compound
+    explains at most one peak of the run.
+    """
 
     measurement_sd: float
-    prior_in_library: float = DEFAULT_PRIOR_IN_LIBRARY
+    presence: float = DEFAULT_PRESENCE
+    unlisted: UnlistedField | None = None
+    exclusive: bool = True
 
     def with_(self, **kw) -> "Model":
         return replace(self, **kw)
 
-
-@dataclass(frozen=True)
-class Background:
-    """What "not in library" looks like in one class: index density and mass distribution."""
-
-    grid_start: float
-    grid_step: float
-    density: np.ndarray  # g(x) on the grid: sum of kernels, integrates to M
-    entries: int
-    mass_prob: dict = field(default_factory=dict)  # nominal mass -> q(m)
-    mass_floor: float = 1.0 / MASS_RANGE
-
-    def index_density(self, x: np.ndarray) -> np.ndarray:
-        """(1-β) g(x) + β M / R, the not-in-library index term (in 'entries per unit')."""
-        x = np.asarray(x, dtype=np.float64)
-        pos = (x - self.grid_start) / self.grid_step
-        g = np.interp(pos, np.arange(len(self.density)), self.density, left=0.0, right=0.0)
-        return (1.0 - UNIFORM_SHARE) * g + UNIFORM_SHARE * max(self.entries, 1) / INDEX_SPAN
-
-    def mass_probability(self, m: np.ndarray) -> np.ndarray:
-        m = np.asarray(m, dtype=np.float64)
-        out = np.full(m.shape, self.mass_floor)
-        for mass, q in self.mass_prob.items():
-            out[m == mass] = q
-        return out
+    def field(self) -> UnlistedField:
+        return self.unlisted if self.unlisted is not None else UnlistedField.flat(crowding_density(None))
 
 
-def background(entries: ClassEntries, compounds: CompoundTable) -> Background:
-    """Build the not-in-library background of a class from its entries."""
-    mu = entries.ri[~entries.predicted] if len(entries) else entries.ri
-    m_count = len(mu)
-    step = 1.0
-    if m_count == 0:
-        return Background(0.0, step, np.zeros(1), 0)
-    h = DENSITY_BANDWIDTH
-    start = float(np.floor(mu.min() - 6 * h))
-    stop = float(np.ceil(mu.max() + 6 * h))
-    n = int((stop - start) / step) + 1
-    hist = np.bincount(np.clip(np.round((mu - start) / step).astype(np.int64), 0, n - 1), minlength=n).astype(float)
-    k = np.arange(-int(6 * h / step), int(6 * h / step) + 1) * step
-    kernel = np.exp(-0.5 * (k / h) ** 2) / (h * np.sqrt(2 * np.pi)) * step
-    density = np.convolve(hist, kernel, mode="same") / step
-    masses = compounds.nominal_mass[entries.compound[~entries.predicted]]
-    masses = masses[np.isfinite(masses)]
-    total = len(masses) + MASS_PSEUDOCOUNT * MASS_RANGE
-    vals, counts = np.unique(masses, return_counts=True)
-    mass_prob = {float(v): (c + MASS_PSEUDOCOUNT) / total for v, c in zip(vals, counts)}
-    return Background(start, step, density, m_count, mass_prob, MASS_PSEUDOCOUNT / total)
+def mass_background(entries: ClassEntries, compounds: CompoundTable) -> MassBackground:
+    """q(m | x) of a class from its measured entries (see :mod:`matcher.unlisted`)."""
+    ok = ~entries.predicted
+    return MassBackground(entries.ri[ok], compounds.nominal_mass[entries.compound[ok]])
 
 
 @dataclass
@@ -146,11 +116,12 @@ class PeakHints:
     ion_masks: np.ndarray | None = None  # (P, ION_WORDS) uint64
     hit_similarity: np.ndarray | None = None  # per PAIR, filled by the caller
     hit_score: np.ndarray | None = None  # per peak, 0-100
+    hit_unlisted: np.ndarray | None = None  # per peak: the hit names no compound of the library
 
 
 @dataclass
 class Scored:
-    """Per-pair evidence and posterior; per-peak not-in-library."""
+    """Per-pair evidence and log odds; per-peak unlisted intensity."""
 
     delta: np.ndarray  # library_ri - x
     sd: np.ndarray  # combined spread s_j
@@ -159,11 +130,15 @@ class Scored:
     ev_ions: np.ndarray
     ev_hit: np.ndarray
     score: np.ndarray
-    logw: np.ndarray  # log posterior weight against not-in-library (prior included)
-    probability: np.ndarray
-    not_in_library: np.ndarray  # per peak
+    logw: np.ndarray  # log odds against not-in-library (prior included)
     mass_state: np.ndarray  # per pair: 1 agree, -1 disagree, 0 no formula, -2 no mol ion given
     ions_state: np.ndarray  # per pair: fraction of key ions seen, NaN when not compared
+    unlisted_density: np.ndarray  # per peak: λ_U used
+
+
+def _hit_ratio(score: np.ndarray) -> np.ndarray:
+    sc = np.where(np.isfinite(score), np.clip(score, 0, 100), 70.0)
+    return np.log1p(HIT_GAIN * sc / 100.0)
 
 
 def score_pairs(
@@ -171,22 +146,28 @@ def score_pairs(
     x: np.ndarray,
     entries: ClassEntries,
     compounds: CompoundTable,
-    bg: Background,
+    mass_bg: MassBackground,
     model: Model,
     hints: PeakHints | None = None,
     compound_ion_masks: np.ndarray | None = None,
     prior_factor: np.ndarray | None = None,
     extra_sd: np.ndarray | float = 0.0,
+    unlisted_density: np.ndarray | None = None,
 ) -> Scored:
-    """Score every (peak, entry) pair at once and turn scores into posteriors per peak."""
+    """Score every (peak, entry) pair at once: evidence terms and log odds against not-in-library.
+
+    ``unlisted_density`` is λ_U per peak (from ``model``'s field when not given).
+    """
     p = pairs.peak
     e = pairs.entry
-    xp = np.asarray(x, dtype=np.float64)[p]
+    xall = np.asarray(x, dtype=np.float64)
+    lam = model.field().density(xall) if unlisted_density is None else np.asarray(unlisted_density, float)
+    xp = xall[p]
     mu = entries.ri[e]
     s = np.sqrt(entries.sd[e] ** 2 + model.measurement_sd ** 2 + np.asarray(extra_sd) ** 2)
     delta = mu - xp
     log_phi = -0.5 * (delta / s) ** 2 - np.log(s) - _LOG_SQRT_2PI
-    ev_index = log_phi - np.log(bg.index_density(xp))
+    ev_index = log_phi - np.log(lam[p])
 
     comp = entries.compound[e]
     ev_mol = np.zeros(len(p))
@@ -203,7 +184,7 @@ def score_pairs(
         disagree = known & ~agree
         mass_state = np.where(given, np.where(agree, 1, np.where(disagree, -1, 0)), -2).astype(np.int8)
         if agree.any():
-            ev_mol[agree] = np.log(1.0 - MASS_ERROR) - np.log(bg.mass_probability(m[agree]))
+            ev_mol[agree] = np.log(1.0 - MASS_ERROR) - np.log(mass_bg.probability(m[agree], xp[agree]))
         ev_mol[disagree] = np.log(MASS_ERROR)
         if hints.ion_masks is not None and compound_ion_masks is not None:
             pm = hints.ion_masks[p]
@@ -216,19 +197,20 @@ def score_pairs(
                 k = n_key[both]
                 ev_ions[both] = seen * np.log(ION_SEEN / ION_CHANCE) + (k - seen) * np.log((1 - ION_SEEN) / (1 - ION_CHANCE))
                 ions_state[both] = seen / k
+        sc = hints.hit_score[p] if hints.hit_score is not None else np.full(len(p), np.nan)
         if hints.hit_similarity is not None:
-            sc = hints.hit_score[p] if hints.hit_score is not None else np.full(len(p), np.nan)
-            sc = np.where(np.isfinite(sc), np.clip(sc, 0, 100), 70.0)
             match = hints.hit_similarity >= HIT_MATCH
-            ev_hit[match] = np.log1p(HIT_GAIN * sc[match] / 100.0)
+            ev_hit[match] = _hit_ratio(sc[match])
+        if hints.hit_unlisted is not None:
+            elsewhere = np.asarray(hints.hit_unlisted, dtype=bool)[p]
+            ev_hit[elsewhere] = -_hit_ratio(sc[elsewhere])
 
     score = ev_index + ev_mol + ev_ions + ev_hit
-    pi = float(np.clip(model.prior_in_library, 1e-6, 1 - 1e-6))
+    pi = float(np.clip(model.presence, 1e-6, 1 - 1e-6))
     logw = np.log(pi / (1 - pi)) + score
     if prior_factor is not None:
         logw = logw + np.log(prior_factor)
-    prob, nil = softmax_with_null(logw, p, len(pairs.count))
-    return Scored(delta, s, ev_index, ev_mol, ev_ions, ev_hit, score, logw, prob, nil, mass_state, ions_state)
+    return Scored(delta, s, ev_index, ev_mol, ev_ions, ev_hit, score, logw, mass_state, ions_state, lam)
 
 
 def softmax_with_null(logw: np.ndarray, peak: np.ndarray, n_peaks: int):

@@ -2,7 +2,10 @@
 
 Flags are written semicolon-separated in the ``flags`` column. Candidate
 flags describe one candidate; peak flags are repeated on every row of the
-peak; run flags come from comparing peaks of the same run.
+peak; *lead* flags go on the peak's leading rows only (the first candidate
+and the contenders within :data:`AMBIGUOUS_RATIO` of it, or the row of a peak
+without candidates); run flags come from comparing peaks of the same run and
+go on the leading row.
 
 =================  =======  ===================================================================
 flag               level    rule
@@ -19,14 +22,17 @@ hit-agrees         cand.    the spectral-search hit names this candidate (simila
 cross-class        cand.    found by the fallback in the neighbouring polarity class
 predicted          cand.    a homologue prediction, not a measured library value
 extrapolated       peak     the peak's index lies outside the ladder (computed from the nearest pair)
-ambiguous          peak     the second candidate has at least half the probability of the first
+ambiguous          lead     the second candidate has at least half the probability of the first; on
+                            the first and on every candidate with at least half its probability
+contested          lead     other peaks of the run hold at least 0.2 of this peak's best compound
+                            (one compound explains at most one peak, so they share it)
 likely-unlisted    peak     not_in_library ≥ 0.5
 no-candidate       peak     no library entry inside the window
 repeated-top       run      the same compound ranks first for another peak more than w away
 order-break        run      two ranked-first members of one homologous series elute out of order
-review             peak     any of: ambiguous, likely-unlisted, extrapolated, no-candidate, top
-                            probability < 0.5, or a top candidate that is cross-class, predicted
-                            or mass-mismatch, or a run flag
+review             lead     any of: ambiguous, contested, likely-unlisted, extrapolated, no-candidate,
+                            top probability < 0.5, or a top candidate that is cross-class,
+                            predicted or mass-mismatch, or a run flag
 =================  =======  ===================================================================
 
 >>> combine(np.array([[True, False], [True, True], [False, False]]), ["in-window", "ambiguous"]).tolist()
@@ -42,7 +48,7 @@ import numpy as np
 VOCABULARY: tuple[str, ...] = (
     "in-window", "window-edge", "single-record", "mass-match", "mass-mismatch", "no-formula",
     "ions-agree", "ions-disagree", "hit-agrees", "cross-class", "predicted",
-    "extrapolated", "ambiguous", "likely-unlisted", "no-candidate",
+    "extrapolated", "ambiguous", "contested", "likely-unlisted", "no-candidate",
     "repeated-top", "order-break", "review",
 )
 
@@ -67,7 +73,7 @@ def combine(masks: np.ndarray, names: Sequence[str]) -> np.ndarray:
 
 
 def row_flags(cols: dict, *, window, mass_state, ions_state, hit_agrees, extrapolated, top1, top2,
-              not_in_library, has_candidate) -> np.ndarray:
+              not_in_library, has_candidate, contested=None) -> np.ndarray:
     """Flags of every shortlist row (see the table in the module doc)."""
     n = len(cols["peak"])
     cand = np.asarray(has_candidate, dtype=bool)
@@ -79,7 +85,12 @@ def row_flags(cols: dict, *, window, mass_state, ions_state, hit_agrees, extrapo
         edge = cand & (dev > EDGE_FRACTION * window)
         ions_ok = np.nan_to_num(ions_state, nan=-1.0)
     extrap = np.zeros(n, dtype=bool) if extrapolated is None else np.asarray(extrapolated, dtype=bool)
-    ambiguous = cand & (top2 > 0) & (top2 >= AMBIGUOUS_RATIO * top1)
+    prob = np.asarray(cols["probability"], dtype=float)
+    rank1 = cand & (np.asarray(cols["rank"]) == 1)
+    close_call = cand & (top2 > 0) & (top2 >= AMBIGUOUS_RATIO * top1)
+    ambiguous = close_call & (rank1 | (prob >= AMBIGUOUS_RATIO * top1))
+    lead = ambiguous | rank1 | ~cand
+    contest = np.zeros(n, dtype=bool) if contested is None else (np.asarray(contested, dtype=bool) & rank1)
     unlisted = cand & (not_in_library >= UNLISTED_AT)
     no_cand = ~cand
     mass_mis = cand & (mass_state == -1)
@@ -90,20 +101,25 @@ def row_flags(cols: dict, *, window, mass_state, ions_state, hit_agrees, extrapo
     size = int(peak.max()) + 1 if n else 0
     bad_top = np.zeros(size, dtype=bool)
     bad_top[peak[top_row]] = (cross | pred | mass_mis)[top_row]
-    review = ambiguous | unlisted | extrap | no_cand | (cand & (top1 < REVIEW_BELOW)) | bad_top[peak]
+    contested_peak = np.zeros(size, dtype=bool)
+    contested_peak[peak[contest]] = True
+    review = lead & (close_call | contested_peak[peak] | unlisted | extrap | no_cand | (cand & (top1 < REVIEW_BELOW))
+                     | bad_top[peak])
 
     masks = np.column_stack([
         in_window, edge, cand & ~pred & (np.asarray(cols["library_n"]) == 1),
         cand & (mass_state == 1), mass_mis, cand & (mass_state == 0),
         cand & (ions_ok >= 0.5), cand & (ions_ok >= 0) & (ions_ok < 0.5), cand & hit_agrees,
-        cross, pred, extrap, ambiguous, unlisted, no_cand,
+        cross, pred, extrap, ambiguous, contest, unlisted, no_cand,
         np.zeros(n, bool), np.zeros(n, bool), review,
     ])
     return combine(masks, VOCABULARY)
 
 
 def add_flag(flags: np.ndarray, mask: np.ndarray, name: str, *, review: bool = True) -> np.ndarray:
-    """Append ``name`` (and ``review``) to the flags of the rows in ``mask``, keeping vocabulary order."""
+    """Append ``name`` (and ``review``) to the flags of the rows in ``mask``, keeping vocabulary order.
+
+    Callers pass the leading rows of the peaks concerned (run flags are lead flags)."""
     out = np.asarray(flags, dtype=object).copy()
     idx = np.flatnonzero(mask)
     for i in idx:

@@ -98,3 +98,24 @@ def hit_similarity(
             cache[k] = best / 100.0
         out[i] = cache[k]
     return out
+
+
+def hit_not_in_library(hits: np.ndarray, library_keys: Sequence[str], normalise, threshold: float) -> np.ndarray:
+    """Per peak: the hit names a compound that no library name or synonym matches (similarity < threshold).
+
+    Peaks without a hit get False. One rapidfuzz search over the library's keys per distinct hit.
+    """
+    from rapidfuzz import fuzz, process
+
+    out = np.zeros(len(hits), dtype=bool)
+    keys = list(library_keys)
+    cache: dict[str, bool] = {}
+    for i, h in enumerate(hits):
+        if not h:
+            continue
+        if h not in cache:
+            hk = normalise(h)
+            best = process.extractOne(hk, keys, scorer=fuzz.ratio, score_cutoff=threshold * 100.0) if keys and hk else None
+            cache[h] = bool(hk) and best is None
+        out[i] = cache[h]
+    return out

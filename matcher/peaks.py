@@ -37,8 +37,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import InputError
-from .rules import MAX_MZ, MAX_RT_MIN  # noqa: F401 - limits declared in matcher.rules
-from .rules import RI_MAX as MAX_RI
+
+from .limits import MAX_MZ, MAX_RI, MAX_RT_MIN  # declared once, shared with the command line
 
 #: Header spellings (beyond the canonical name) for each canonical column.
 ALIASES: dict[str, list[str]] = {
@@ -111,9 +111,36 @@ class PeakTable:
     rt_unit_source: str
     columns: dict          # canonical name -> header used
     lines: np.ndarray      # physical line of each peak in the file
+    checksum: str = ""     # SHA-256 of the table's normalised content (see content_checksum)
 
     def __len__(self) -> int:
         return len(self.peak)
+
+
+def content_checksum(peak, rt, ri, mol_ion, ions, hit, hit_score, area) -> str:
+    """SHA-256 (hex) of a peak table's normalised content: ids, times in minutes, indices, hints.
+
+    The same peaks give the same checksum whatever the file's name, format (CSV, TSV,
+    XLSX), delimiter, header spelling or time unit; screening outputs carry it per run so
+    that ``matcher confirm`` recognises one peak confirmed through a copy of its results.
+
+    >>> a = content_checksum(["1"], np.array([5.2]), np.array([np.nan]), np.array([np.nan]), [()], [""],
+    ...                      np.array([np.nan]), np.array([np.nan]))
+    >>> len(a), a == content_checksum(["1"], np.array([5.2]), np.array([np.nan]), np.array([np.nan]), [()], [""],
+    ...                               np.array([np.nan]), np.array([np.nan]))
+    (64, True)
+    """
+    import hashlib
+
+    h = hashlib.sha256(b"matcher peak table v1\0")
+    h.update("\x1f".join(str(p) for p in peak).encode("utf-8", "surrogatepass") + b"\0")
+    for arr in (rt, ri, mol_ion, hit_score, area):
+        a = np.ascontiguousarray(np.asarray(arr, dtype=np.float64))
+        a = np.where(np.isnan(a), np.nan, a)  # one NaN bit pattern
+        h.update(a.tobytes() + b"\0")
+    h.update("\x1f".join(" ".join(map(str, i)) for i in ions).encode() + b"\0")
+    h.update("\x1f".join(str(x) for x in hit).encode("utf-8", "surrogatepass"))
+    return h.hexdigest()
 
 
 def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | None = None) -> PeakTable:
@@ -175,7 +202,9 @@ def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | 
     else:
         ions = [()] * n
 
+    checksum = content_checksum(ids, rt, ri, mol_ion, ions, hit, hit_score, area)
     return PeakTable(
+        checksum=checksum,
         path=raw.path,
         peak=np.array(ids, dtype=object),
         rt=rt, ri=ri, mol_ion=mol_ion, ions=tuple(ions),
@@ -185,4 +214,4 @@ def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | 
     )
 
 
-__all__ = ["PeakTable", "read_peaks", "time_unit", "parse_ions", "ALIASES", "MAX_RT_MIN", "MAX_RI", "MAX_MZ"]
+__all__ = ["PeakTable", "read_peaks", "content_checksum", "time_unit", "parse_ions", "ALIASES", "MAX_RT_MIN", "MAX_RI", "MAX_MZ"]

@@ -32,8 +32,9 @@ import numpy as np
 from . import CAUTION
 from . import rules
 from .candidates import window_description
-from .evidence import DEFAULT_MEASUREMENT_SD, DEFAULT_PRIOR_IN_LIBRARY, Model
+from .evidence import DEFAULT_MEASUREMENT_SD, DEFAULT_PRESENCE, Model
 from .results import candidate_record, plain
+from .unlisted import UnlistedField, crowding_density
 from .shortlist import PeakInput, Shortlist, neighbour_of, prepare, shortlist
 from .snapshot import LibrarySnapshot
 
@@ -118,17 +119,27 @@ def query(
     fallback: bool = False,
     homologues: bool = False,
     measurement_sd: float | None = None,
-    prior_in_library: float = DEFAULT_PRIOR_IN_LIBRARY,
+    presence: float = DEFAULT_PRESENCE,
+    crowding: str | float | None = None,
 ) -> QueryResult:
     """Ranked shortlist for one index against one class of the library; see :class:`QueryResult`.
 
     ``db`` names the library (path or URL; default ``$MATCHER_DB``, then the
-    user data folder); ``snapshot`` gives one already read. Settings are
-    checked by :mod:`matcher.rules` and a bad one raises
-    :class:`~matcher.errors.MatcherError`.
+    user data folder); ``snapshot`` gives one already read. Without a run the
+    not-in-library alternative uses the crowding prior (``crowding``: a name
+    of :data:`matcher.unlisted.CROWDING` or unlisted peaks per 100 index
+    units) and each listed compound the presence prior ``presence``.
+    Settings are checked by :mod:`matcher.rules` (and :mod:`matcher.limits`);
+    a bad one raises :class:`~matcher.errors.MatcherError`.
     """
+    from .limits import check_mol_ion, check_sd
+
     phase_class = rules.check_class(phase_class)
     ri = rules.check_ri(ri)
+    if measurement_sd is not None:
+        measurement_sd = check_sd(measurement_sd)
+    if mol_ion is not None:
+        mol_ion = check_mol_ion(mol_ion)
     window, window_percent = rules.check_window(window, window_percent)
     top = rules.check_top(top)
     ions = rules.check_ions(ions)
@@ -147,7 +158,9 @@ def query(
         hit=None if not hit else np.array([hit], dtype=object),
         hit_score=None if hit_score is None else np.array([hit_score]),
     )
-    sl = shortlist(home, peaks, Model(sd, prior_in_library), window=window, window_percent=window_percent,
+    lam0 = crowding_density(crowding)
+    model = Model(sd, presence=float(presence), unlisted=UnlistedField.flat(lam0))
+    sl = shortlist(home, peaks, model, window=window, window_percent=window_percent,
                    top=top, neighbour=neighbour)
     rows = np.arange(len(sl.columns["peak"]))
     return QueryResult(
@@ -157,7 +170,7 @@ def query(
         candidates=candidate_records(sl, rows),
         not_in_library=plain(sl.not_in_library[0]),
         candidates_in_window=int(sl.candidate_count[0]),
-        model={"measurement_sd": sd, "prior_in_library": prior_in_library},
+        model={"index_scatter": sd, "presence": float(presence), "unlisted_per_100": round(lam0 * 100, 3)},
         library={"location": snapshot.source, "revision": snapshot.revision, "entries": len(home.entries)},
         notes=list(sl.notes),
     )

@@ -136,6 +136,7 @@ class RunResult:
     run_model: dict[str, Any] = field(default_factory=dict)  # fitted in-library share and scatter, see matcher.run_model
     notices: list[str] = field(default_factory=list)
     peak_count: int = 0
+    checksum: str = ""               # SHA-256 of the peak table's normalised content (matcher.peaks.content_checksum)
 
 
 @dataclass

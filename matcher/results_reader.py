@@ -38,6 +38,16 @@ class PeakFacts:
     tool_version: str = ""
     corrected: bool = False
     sidecar: bool = True
+    checksum: str = ""  # SHA-256 of the run's peak table content, when the output records it
+
+    def identity(self) -> str:
+        """The observation's identity: the run's content checksum (else the results file's name) and the peak.
+
+        With the class, it makes a confirmation idempotent: a copy of the results, or the JSON of
+        the same screen, names the same peak of the same run.
+        """
+        run = f"run sha256:{self.checksum[:16]}" if self.checksum else f"{Path(self.results).name}, run {self.run}"
+        return f"[{run} peak {self.peak}]"
 
     @property
     def date(self) -> str:
@@ -50,7 +60,8 @@ class PeakFacts:
                 if self.screened else "",
                 "" if self.sidecar else "no provenance sidecar found"]
         inner = "; ".join(b for b in bits if b)
-        return f"confirmed from {Path(self.results).name}, run {self.run}, peak {self.peak}" + (f" ({inner})" if inner else "")
+        return (f"confirmed from {Path(self.results).name}, run {self.run}, peak {self.peak}" + (f" ({inner})" if inner else "")
+                + (f" {self.identity()}" if self.checksum else ""))
 
 
 def _same_id(a: Any, b: Any) -> bool:
@@ -74,12 +85,9 @@ def _num(text: Any) -> float | None:
 
 
 def _load_json(path: Path, what: str) -> dict:
-    try:
-        doc = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"cannot read {what}: {exc}", file=str(path)) from None
-    except json.JSONDecodeError as exc:
-        raise InputError(f"not valid JSON ({exc.msg})", file=str(path), line=exc.lineno) from None
+    from .reading import load_json
+
+    doc = load_json(path, what=what)
     if not isinstance(doc, dict) or doc.get("format") != "matcher.screen-output":
         raise InputError(f"not a matcher screening output ({what})", file=str(path))
     return doc
@@ -100,7 +108,16 @@ def _run_facts(run_doc: dict | None, doc: dict | None) -> dict:
         "tool_version": str(((doc or {}).get("tool") or {}).get("version") or ""),
         "corrected": bool(corr.get("applied")),
         "class": run_doc.get("class"),
+        "checksum": _checksum(run_doc),
     }
+
+
+def _checksum(run_doc: dict) -> str:
+    c = run_doc.get("checksum")
+    value = c.get("sha256") if isinstance(c, dict) else None
+    if isinstance(value, str) and len(value) == 64 and all(ch in "0123456789abcdef" for ch in value):
+        return value
+    return ""
 
 
 def _pick(found: list, results: str, peak: str, run: str | None, runs_seen: list[str]):
@@ -117,7 +134,36 @@ def _pick(found: list, results: str, peak: str, run: str | None, runs_seen: list
 
 
 def read_peak(results_path: str | os.PathLike, peak: Any, *, run: str | None = None) -> PeakFacts:
-    """The peak's index and its run's facts from a screening CSV (+ sidecar) or JSON output."""
+    """The peak's index and its run's facts from a screening CSV (+ sidecar) or JSON output.
+
+    A hand-edited output (fields of the wrong type, cells longer than
+    :data:`~matcher.limits.MAX_CELL`, deep nesting, huge numbers) is refused with one
+    :class:`InputError` naming the file.
+    """
+    from .limits import MAX_CELL
+
+    try:
+        facts = _read_peak(results_path, peak, run=run)
+    except MatcherError:
+        raise
+    except csv.Error as exc:
+        raise InputError(f"not a screening CSV ({exc})", file=str(results_path)) from None
+    except (AttributeError, TypeError, KeyError, IndexError, ValueError, OverflowError) as exc:
+        raise InputError(f"not a matcher screening output as written by matcher screen (a field has an unexpected "
+                         f"type or value: {type(exc).__name__}); was it edited by hand?", file=str(results_path)) from None
+    for what, value in (("run label", facts.run), ("peak id", facts.peak), ("best candidate", facts.best),
+                        ("flags", ";".join(facts.flags)), ("run source", facts.run_source), ("ladder", facts.ladder)):
+        if len(str(value)) > MAX_CELL:
+            raise InputError(f"the {what} has {len(str(value))} characters (at most {MAX_CELL}); was it edited by hand?",
+                             file=str(results_path))
+    return facts
+
+
+def _read_peak(results_path: str | os.PathLike, peak: Any, *, run: str | None = None) -> PeakFacts:
+    from .limits import MAX_CELL
+
+    if len(str(peak)) > MAX_CELL:
+        raise MatcherError(f"--peak has {len(str(peak))} characters; at most {MAX_CELL} are accepted")
     path = Path(results_path)
     if not path.is_file():
         raise InputError("no such file", file=str(path))
@@ -162,6 +208,8 @@ def read_peak(results_path: str | os.PathLike, peak: Any, *, run: str | None = N
                         found.append((label, k, row))
         except (OSError, UnicodeDecodeError) as exc:
             raise InputError(f"cannot read the screening CSV: {exc}", file=str(path)) from None
+        except csv.Error as exc:
+            raise InputError(f"not a screening CSV ({exc}); was it edited by hand?", file=str(path)) from None
         label, k, row = _pick(found, str(path), str(peak), run, runs_seen)
         rows = [f for f in found if f[0] == label]
         first = rows[0][2]
@@ -183,6 +231,9 @@ def read_peak(results_path: str | os.PathLike, peak: Any, *, run: str | None = N
         raise InputError(f"peak {peak!r} has no retention index", file=str(path))
     if not cls:
         raise InputError(f"the run of peak {peak!r} names no phase class", file=str(path))
+    if not isinstance(cls, str) or len(cls) > MAX_CELL:
+        raise InputError("the phase class of the peak is not a class name; was the file edited by hand?", file=str(path))
+    flags = [str(f) for f in flags]
     facts.pop("class", None)
     return PeakFacts(results=str(path), run=label, peak=str(peak).strip(), ri=ri, ri_measured=ri_measured,
                      phase_class=check_class(cls), flags=flags, best=best, sidecar=sidecar, **facts)

@@ -12,9 +12,9 @@ rule                declared as
 polarity classes    :data:`PHASE_CLASSES` (+ spelling aliases), :func:`check_class`
 oven modes          :data:`MODES`, :func:`check_mode`
 time units          :data:`RT_UNITS`, :func:`check_rt_unit`
-index range         :data:`RI_MIN` .. :data:`RI_MAX` (0-10,000), :func:`check_ri`
-time range          :data:`MAX_RT_MIN` (10,000 min)
-ion m/z             whole numbers 1 .. :data:`MAX_MZ`, :func:`check_ions`
+index range         0 .. :data:`RI_MAX` (10,000), :func:`check_ri` (from :mod:`matcher.limits`)
+time range          :data:`MAX_RT_MIN` (10,000 min, from :mod:`matcher.limits`)
+ion m/z             whole numbers 1 .. :data:`MAX_MZ` (:mod:`matcher.limits`), :func:`check_ions`
 spectral-hit score  :data:`HIT_SCORE_RANGE` (0-100), :func:`check_hit_score`
 candidates kept     top >= 1, :func:`check_top`
 window              > 0 and finite index units, or 0 < percent <= :data:`WINDOW_PERCENT_MAX`,
@@ -24,8 +24,10 @@ output files        :data:`SHORTLIST_SUFFIXES`, :data:`REPORT_SUFFIXES`,
                     :func:`check_shortlist_path`, :func:`check_report_path`
 ==================  ======================================================
 
-The 0-10,000 index range is our own choice, well above the largest indices
-GC reaches; the 10,000-minute time limit likewise (a run of a week).
+Numeric limits shared with the file readers (index and time range, m/z,
+scatter, name length, ids, file sizes) are declared in :mod:`matcher.limits`
+and re-exported here; this module declares the vocabularies and the
+settings of a query or a screen.
 
 >>> check_class("Slightly polar"), check_mode("Isothermal"), check_top(3)
 ('slightly-polar', 'isothermal', 3)
@@ -53,6 +55,9 @@ import re
 from typing import Any, Iterable
 
 from .errors import MatcherError
+from .limits import MAX_MZ, MAX_RT_MIN
+from .limits import MAX_RI as RI_MAX
+from .limits import check_ri as _limits_check_ri
 
 # --------------------------------------------------------------------------- vocabularies
 
@@ -87,13 +92,6 @@ RT_UNIT_ALIASES: dict[str, str] = {"minutes": "min", "m": "min", "sec": "s", "se
 
 # --------------------------------------------------------------------------- limits
 
-#: Lowest and highest retention index accepted anywhere (our own choice).
-RI_MIN: float = 0.0
-RI_MAX: float = 10_000.0
-#: Longest retention time accepted, in minutes (our own choice).
-MAX_RT_MIN: float = 10_000.0
-#: Largest m/z accepted for a molecular ion or a key ion.
-MAX_MZ: int = 5_000
 #: Range of a spectral-search score.
 HIT_SCORE_RANGE: tuple[float, float] = (0.0, 100.0)
 #: Largest window given as a percentage of the index.
@@ -162,14 +160,8 @@ def check_rt_unit(unit: str | None, option: str = "--rt-unit") -> str | None:
 
 
 def check_ri(ri: Any, what: str = "retention index") -> float:
-    """An index within :data:`RI_MIN`-:data:`RI_MAX`."""
-    try:
-        v = float(ri)
-    except (TypeError, ValueError):
-        v = float("nan")
-    if isinstance(ri, bool) or not math.isfinite(v) or not RI_MIN <= v <= RI_MAX:
-        raise MatcherError(f"{what} must be a number between {RI_MIN:g} and {RI_MAX:g}, got {ri!r}")
-    return v
+    """An index within 0-:data:`RI_MAX` (the rule of :func:`matcher.limits.check_ri`)."""
+    return _limits_check_ri(ri, what)
 
 
 def check_top(top: Any) -> int | None:
@@ -272,7 +264,7 @@ def check_report_path(path: Any, option: str = "--report") -> str:
 
 __all__ = [
     "PHASE_CLASSES", "CLASS_ALIASES", "MODES", "MODE_ALIASES", "RT_UNITS", "RT_UNIT_ALIASES",
-    "RI_MIN", "RI_MAX", "MAX_RT_MIN", "MAX_MZ", "HIT_SCORE_RANGE", "WINDOW_PERCENT_MAX", "NOISE_MAX",
+    "RI_MAX", "MAX_RT_MIN", "MAX_MZ", "HIT_SCORE_RANGE", "WINDOW_PERCENT_MAX", "NOISE_MAX",
     "SHORTLIST_SUFFIXES", "REPORT_SUFFIXES",
     "choice", "check_class", "check_mode", "check_rt_unit", "check_ri", "check_top", "check_window",
     "check_ions", "check_hit_score", "check_noise", "check_shortlist_path", "check_report_path",

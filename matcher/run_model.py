@@ -1,121 +1,120 @@
-"""Fitting a run's own model: in-library share and index scatter.
+"""Fitting a run's own model: which listed compounds are present, and how crowded the rest is.
 
-A screened run is a mixture: each peak is either one of the library's
-entries (prior share :math:`\\pi`) or a compound not in the library. With the
-evidence model of :mod:`matcher.evidence`, the marginal likelihood of the
-run's indices and hints is, up to factors that depend on neither parameter,
+A screened run is a mixture along the index scale (see :mod:`matcher.unlisted`):
+listed compound *j* is present with probability :math:`\\pi` and then gives one
+peak; unlisted compounds give peaks with intensity :math:`\\lambda_U(x)`. Both
+are learned from the run by empirical Bayes, an EM iteration over the joint
+posterior of :mod:`matcher.assignment`:
 
-.. math::
+1. with the current :math:`\\pi` and :math:`\\lambda_U`, the joint posterior
+   :math:`P(a_p = j)` and :math:`P_p(U)` of every peak;
+2. :math:`\\pi \\leftarrow (\\sum_{p,j} P(a_p = j) + 1) / (M_{run} + 2)`, the expected
+   share of the listed compounds that elute inside the run's index range
+   (:math:`M_{run}` of them) that were found, with a Beta(2, 2) prior;
+3. :math:`\\lambda_U \\leftarrow` the Gamma–Poisson kernel estimate from the
+   :math:`P_p(U)` (:class:`matcher.unlisted.UnlistedField`), shrunk to the
+   crowding prior and never below its floor;
 
-   \\ell(\\pi, \\sigma_m) = \\sum_p \\ln\\Big[(1-\\pi) + \\pi \\sum_j r_j\\, e^{\\text{score}_{pj}(\\sigma_m)}\\Big]
+until :math:`\\pi` moves by less than 1e-4 (at most :data:`MAX_ITERATIONS`).
+Runs with fewer than :data:`matcher.unlisted.MIN_RUN_PEAKS` peaks keep the
+defaults: the presence prior :data:`matcher.evidence.DEFAULT_PRESENCE` and the
+crowding prior.
 
-(:math:`r_j` the prior factors of predicted or cross-class entries). For a
-fixed scatter :math:`\\sigma_m` the share is found by the EM update
-:math:`\\pi \\leftarrow \\text{mean}_p\\, P(\\text{in library} \\mid p)`;
-the scatter, when it is to be estimated (``--adaptive``), by maximising
-:math:`\\ell` over a logarithmic grid. This is empirical Bayes: the posterior
-probabilities then match the run instead of a fixed assumption, which is
-what makes a "0.9" mean nine times in ten when the run is noisier or
-cleaner than the default, or holds more unlisted compounds.
+The index scatter of the run is *not* fitted here: a mixture cannot tell a
+noisy run from a crowded one. It is estimated only from the confirmed anchors
+of the adaptive correction (:mod:`matcher.adaptive`), never from peaks that
+are probably unlisted.
 
-Worked example: two peaks, one whose evidence sum is 9 and one with none.
-With the Beta(2, 2) prior the objective ln(1 + 8π) + ln(1 − π) + ln π + ln(1 − π)
-is largest where 8/(1 + 8π) + 1/π = 2/(1 − π), at π = 0.4724:
+Worked example: 30 peaks, each exactly on one of 30 listed compounds 40 units
+apart, and nothing else: the run says every listed compound is present and
+nothing unlisted crowds them.
 
->>> s = np.log(np.array([9.0, 1e-12]))
->>> round(in_library_share(s, np.array([0, 1]), 2), 4)
-0.4724
+>>> from matcher.snapshot import CompoundTable, build_snapshot
+>>> ri = 1000.0 + 40 * np.arange(30)
+>>> snap = build_snapshot(CompoundTable.from_records([{"id": i + 1, "name": f"c{i}"} for i in range(30)]),
+...                       np.arange(1, 31), np.array(["nonpolar"] * 30), ri)
+>>> from matcher.evidence import Model, mass_background
+>>> e = snap.entries("nonpolar")
+>>> model, info = fit(ri, e, snap.compounds, mass_background(e, snap.compounds), Model(3.0), np.full(30, 10.0))
+>>> round(model.presence, 2), info["peaks_used"]
+(0.96, 30)
 """
 
 from __future__ import annotations
 
 import numpy as np
 
+from .assignment import assign
 from .candidates import window_pairs
-from .evidence import PREDICTED_PRIOR, Background, Model, score_pairs
+from .evidence import PREDICTED_PRIOR, Model, score_pairs
 from .snapshot import ClassEntries, CompoundTable
+from .unlisted import MIN_RUN_PEAKS, MassBackground, UnlistedField, crowding_density
 
-MIN_PEAKS = 20  # below this the share stays at its default
-SHARE_BOUNDS = (0.05, 0.95)
-SCATTER_GRID = np.geomspace(0.3, 25.0, 36)
-#: Weak priors keep the fit sensible where the run cannot tell the parameters apart
-#: (a dense library with no mass hints): Beta(2, 2) on the share, and a log-normal
-#: on the scatter centred on the class default with a factor-of-2.5 spread.
-SHARE_PRIOR = 2.0
-SCATTER_PRIOR_FACTOR = 2.5
-
-
-def _peak_sums(score: np.ndarray, peak: np.ndarray, n: int) -> tuple[np.ndarray, float]:
-    """log Σ_j exp(score) per peak, computed stably; returns (log-sum, shift)."""
-    if len(score) == 0:
-        return np.full(n, -np.inf), 0.0
-    shift = float(np.max(score))
-    s = np.bincount(peak, weights=np.exp(score - shift), minlength=n)
-    with np.errstate(divide="ignore"):
-        return np.log(s), shift
-
-
-def in_library_share(score: np.ndarray, peak: np.ndarray, n: int, start: float = 0.5, iterations: int = 200) -> float:
-    """EM estimate of the share of peaks that are library compounds."""
-    logs, shift = _peak_sums(score, peak, n)
-    S = np.exp(np.clip(logs + shift, -700, 700))
-    pi = start
-    for _ in range(iterations):
-        post = pi * S / ((1 - pi) + pi * S)
-        a = SHARE_PRIOR - 1.0
-        new = float(np.clip((post.sum() + a) / (len(post) + 2 * a), *SHARE_BOUNDS))
-        if abs(new - pi) < 1e-6:
-            pi = new
-            break
-        pi = new
-    return pi
-
-
-def log_likelihood(score: np.ndarray, peak: np.ndarray, n: int, pi: float) -> float:
-    logs, shift = _peak_sums(score, peak, n)
-    S = np.exp(np.clip(logs + shift, -700, 700))
-    return float(np.sum(np.log((1 - pi) + pi * S)))
+MAX_ITERATIONS = 40
+PRESENCE_BOUNDS = (0.02, 0.98)
 
 
 def fit(
     x: np.ndarray,
     entries: ClassEntries,
     compounds: CompoundTable,
-    bg: Background,
+    mass_bg: MassBackground,
     model: Model,
     half_width: np.ndarray,
     *,
     hints=None,
     compound_ion_masks=None,
-    estimate_scatter: bool = False,
+    crowding: str | float | None = None,
 ) -> tuple[Model, dict]:
-    """The run's model: share (always, for runs of ≥ MIN_PEAKS) and scatter (on request)."""
+    """The run's presence π and unlisted intensity λ_U (see module doc).
+
+    Returns the model (with ``presence`` and ``unlisted`` set) and a dict:
+    ``peaks_used``, ``presence``, ``unlisted_per_100`` (median λ_U over the
+    run's peaks, per 100 index units), ``iterations``, ``own_unlisted`` (each
+    peak's P(U) at the end, used to leave it out of its own estimate) and a
+    ``notice`` when the run is too short to learn from.
+    """
     x = np.asarray(x, dtype=float)
-    n = int(np.isfinite(x).sum())
-    info = {"peaks_used": n, "share_estimated": False, "scatter_estimated": False}
-    if n < MIN_PEAKS or len(entries) == 0:
-        info["notice"] = f"run model left at its defaults (needs at least {MIN_PEAKS} peaks with an index)"
-        return model, info
-    # pairs in a wide window so that the scatter is not truncated by the user's window
-    wide = np.maximum(np.asarray(half_width, float) * 2.0, 3.0 * SCATTER_GRID[-1] if estimate_scatter else 0.0)
-    pairs = window_pairs(entries.ri, x, wide)
+    prior = crowding_density(crowding)
+    ok = np.isfinite(x)
+    n = int(ok.sum())
+    info: dict = {"peaks_used": n, "crowding_prior_per_100": round(prior * 100, 3), "estimated": False}
+    flat = model.with_(unlisted=UnlistedField.flat(prior))
+    if n < MIN_RUN_PEAKS or len(entries) == 0:
+        info["notice"] = (f"presence and crowding left at their priors (the run model needs at least "
+                          f"{MIN_RUN_PEAKS} peaks with an index)")
+        info["presence"] = round(flat.presence, 4)
+        info["unlisted_per_100"] = round(prior * 100, 3)
+        return flat, info
+    xs = np.where(ok, x, -1e9)  # a missing index finds no candidate
+    hw = np.asarray(half_width, float)
+    pairs = window_pairs(entries.ri, xs, np.where(ok, hw, 0.0))
     factor = np.where(entries.predicted[pairs.entry], PREDICTED_PRIOR, 1.0)
-
-    def scores(sd: float) -> np.ndarray:
-        sc = score_pairs(pairs, x, entries, compounds, bg, model.with_(measurement_sd=sd), hints, compound_ion_masks)
-        return sc.score + np.log(factor)
-
-    grid = SCATTER_GRID if estimate_scatter else np.array([model.measurement_sd])
-    best = None
-    for sd in grid:
-        s = scores(float(sd))
-        pi = in_library_share(s, pairs.peak, len(x), start=model.prior_in_library)
-        ll = log_likelihood(s, pairs.peak, len(x), pi)
-        ll += (SHARE_PRIOR - 1.0) * (np.log(pi) + np.log(1 - pi))
-        ll += -0.5 * (np.log(sd / model.measurement_sd) / np.log(SCATTER_PRIOR_FACTOR)) ** 2
-        if best is None or ll > best[0]:
-            best = (ll, float(sd), pi)
-    _, sd, pi = best
-    info.update(share_estimated=True, scatter_estimated=bool(estimate_scatter),
-                prior_in_library=round(pi, 4), measurement_sd=round(sd, 3))
-    return model.with_(measurement_sd=sd, prior_in_library=pi), info
+    base = score_pairs(pairs, xs, entries, compounds, mass_bg, model.with_(presence=0.5), hints, compound_ion_masks,
+                       unlisted_density=np.ones(len(x)))
+    score = base.score + np.log(factor)  # evidence without the λ_U term
+    comp = entries.compound[pairs.entry]
+    measured = ~entries.predicted[pairs.entry]
+    lo, hi = float(x[ok].min() - np.nanmax(hw)), float(x[ok].max() + np.nanmax(hw))
+    in_range = int(np.sum(~entries.predicted & (entries.ri >= lo) & (entries.ri <= hi)))
+    pi = float(model.presence)
+    lam = np.full(len(x), prior)
+    nil = np.ones(len(x))
+    field = UnlistedField.flat(prior)
+    it = 0
+    for it in range(1, MAX_ITERATIONS + 1):
+        logw = np.log(pi / (1 - pi)) + score - np.log(lam[pairs.peak])
+        prob, nil = assign(logw, pairs.peak, comp, len(x), exclusive=model.exclusive)
+        nil = np.where(ok, nil, 0.0)
+        field = UnlistedField.from_run(x, nil, prior)
+        lam = field.density(np.where(ok, x, 0.0), self_weight=nil)
+        found = float(prob[measured].sum())
+        new = float(np.clip((found + 1.0) / (max(in_range, 1) + 2.0), *PRESENCE_BOUNDS))
+        done = abs(new - pi) < 1e-4
+        pi = new
+        if done and it > 2:
+            break
+    info.update(estimated=True, presence=round(pi, 4), iterations=it,
+                unlisted_per_100=round(float(np.median(lam[ok])) * 100, 3), compounds_in_range=in_range,
+                own_unlisted=nil)
+    return model.with_(presence=pi, unlisted=field), info

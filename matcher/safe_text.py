@@ -30,7 +30,11 @@ because a spreadsheet reads it as that number and runs nothing.
 
 **Web pages**. Every piece of text placed in the HTML report goes through
 :func:`html_text`, which is :func:`html.escape` with ``quote=True``, so that
-text can sit both between tags and inside attribute values.
+text can sit both between tags and inside attribute values; control and
+bidirectional characters are shown escaped first (:func:`terminal_text`).
+
+**Terminals**. :func:`terminal_text` shows control and bidi characters
+escaped; the command line passes everything it prints through it.
 
 >>> html_text('"><img src=x onerror=alert(1)>')
 '&quot;&gt;&lt;img src=x onerror=alert(1)&gt;'
@@ -105,10 +109,46 @@ def spreadsheet_text(value: Any) -> Any:
     return value
 
 
+# C0 controls except tab and line feed; DEL and the C1 controls (0x9B is a one-byte CSI on some terminals);
+# bidirectional overrides, embeddings, isolates and marks; the line and paragraph separators.
+_TERMINAL_UNSAFE = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u061c\u200e\u200f\u2028-\u202e\u2066-\u2069]")
+
+
+def _escape_char(m: re.Match) -> str:
+    c = m.group(0)
+    return f"\\x{ord(c):02x}" if ord(c) < 0x20 else f"\\u{ord(c):04x}"
+
+
+def terminal_text(value: Any) -> str:
+    """Text for a terminal: control and bidirectional characters shown escaped, everything else literal.
+
+    Escape sequences (clear screen, window title, hidden hyperlinks, bell) and a
+    right-to-left override in library text would otherwise act on the terminal.
+    C0 controls become ``\\xNN``; DEL, C1 controls and bidi characters ``\\uNNNN``, which is
+    also the JSON spelling of the same character, so ``--json`` output stays valid JSON with
+    the same content. Tab and line feed are kept.
+
+    >>> terminal_text("\x1b]0;pwned\x07limonene\u202e")
+    '\\\\x1b]0;pwned\\\\x07limonene\\\\u202e'
+    >>> terminal_text("α-pinene")
+    'α-pinene'
+    """
+    return _TERMINAL_UNSAFE.sub(_escape_char, str(value))
+
+
+def xml_text(value: str) -> str:
+    """Text with the characters XML 1.0 cannot hold replaced by U+FFFD (visible), otherwise literal.
+
+    >>> xml_text("bad\x1b[2Jname") == "bad\ufffd[2Jname"
+    True
+    """
+    return _XML_ILLEGAL.sub("\ufffd", value)
+
+
 def html_text(value: Any) -> str:
     """Any value as HTML-escaped text (``None`` and NaN become empty), safe in tags and attributes."""
     if value is None:
         return ""
     if isinstance(value, float) and value != value:
         return ""
-    return html.escape(str(value), quote=True)
+    return html.escape(terminal_text(value), quote=True)  # control and bidi characters shown, not obeyed

@@ -21,11 +21,11 @@ import numpy as np
 from . import CAUTION, __version__
 from . import flags as F
 from . import rules as R
-from .adaptive import ANCHOR_PROBABILITY, LONE_ANCHOR_PROBABILITY, MAX_SLOPE, apply_correction, enough_anchors, fit_correction
+from .adaptive import ANCHOR_PROBABILITY, apply_correction
 from .candidates import half_widths, window_description
 from .classes import check_class
 from .errors import InputError, MatcherError
-from .evidence import DEFAULT_MEASUREMENT_SD, DEFAULT_PRIOR_IN_LIBRARY, Model, PeakHints
+from .evidence import DEFAULT_MEASUREMENT_SD, Model, PeakHints
 from .hints import ion_masks
 from .results import DETAIL_COLUMNS, SHORTLIST_COLUMNS, RunResult, ScreenResult
 from .shortlist import PeakInput, PreparedClass, Shortlist, neighbour_of, prepare, shortlist
@@ -126,19 +126,29 @@ def _subset(peaks: PeakInput, idx: np.ndarray) -> PeakInput:
         None if peaks.hit is None else np.asarray(peaks.hit, dtype=object)[idx],
         None if peaks.hit_score is None else np.asarray(peaks.hit_score)[idx],
         None if peaks.extrapolated is None else np.asarray(peaks.extrapolated)[idx],
+        None if peaks.unlisted is None else np.asarray(peaks.unlisted)[idx],
     )
 
 
-def fit_run_model(home: PreparedClass, peaks: PeakInput, model: Model, w: np.ndarray, *, estimate_scatter: bool) -> tuple[Model, dict]:
-    """The run's in-library share (and scatter with ``estimate_scatter``) from its own peaks."""
+def fit_run_model(home: PreparedClass, peaks: PeakInput, model: Model, w: np.ndarray, *,
+                  crowding=None) -> tuple[Model, dict, np.ndarray]:
+    """The run's presence and unlisted intensity from its own peaks (see :mod:`matcher.run_model`).
+
+    Returns (model, info, λ_U per peak with each fitted peak left out of its own estimate)."""
     from .run_model import fit
 
-    idx = np.flatnonzero(np.isfinite(np.asarray(peaks.ri, float)))
+    x = np.asarray(peaks.ri, float)
+    idx = np.flatnonzero(np.isfinite(x))
     if len(idx) > MAX_FIT_PEAKS:
         idx = np.sort(np.random.default_rng(20261201).choice(idx, MAX_FIT_PEAKS, replace=False))
     sub = _subset(peaks, idx)
-    return fit(sub.ri, home.entries, home.compounds, home.background, model, w[idx],
-               hints=_hints_for_fit(sub), compound_ion_masks=home.ion_masks, estimate_scatter=estimate_scatter)
+    model, info = fit(sub.ri, home.entries, home.compounds, home.mass_bg, model, w[idx],
+                      hints=_hints_for_fit(sub), compound_ion_masks=home.ion_masks, crowding=crowding)
+    own = np.zeros(len(x))
+    if "own_unlisted" in info:
+        own[idx] = info.pop("own_unlisted")
+    lam = model.field().density(np.where(np.isfinite(x), x, 0.0), self_weight=own)
+    return model, info, lam
 
 
 def shortlist_chunked(home, peaks: PeakInput, model: Model, *, window, window_percent, top, neighbour,
@@ -170,15 +180,20 @@ def shortlist_chunked(home, peaks: PeakInput, model: Model, *, window, window_pe
 
 
 def select_anchors(sl: Shortlist, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, list[str]]:
-    """Confident matches of a first pass: (peak positions, reference indices, names)."""
+    """Confident calls under the joint model: (peak positions, reference indices, names).
+
+    Ranked first with probability ≥ ANCHOR_PROBABILITY, not ambiguous, contested or mass-mismatched,
+    neither predicted nor cross-class; a compound anchors at most once (its most probable peak).
+    """
     c = sl.columns
-    top = c["rank"] == 1
     flags = c["flags"]
-    alone = sl.candidate_count[c["peak"]] == 1
-    confident = (c["probability"] >= ANCHOR_PROBABILITY) | (alone & (c["probability"] >= LONE_ANCHOR_PROBABILITY))
-    ok = top & confident & ~c["cross_class"] & ~c["predicted"]
-    ok &= ~F.has_flag(flags, "ambiguous") & ~F.has_flag(flags, "mass-mismatch")
+    ok = (c["rank"] == 1) & (c["probability"] >= ANCHOR_PROBABILITY) & ~c["cross_class"] & ~c["predicted"]
+    ok &= ~F.has_flag(flags, "ambiguous") & ~F.has_flag(flags, "mass-mismatch") & ~F.has_flag(flags, "contested")
     rows = np.flatnonzero(ok)
+    if len(rows):
+        order = rows[np.lexsort((-c["probability"][rows], c["compound"][rows]))]
+        first = np.r_[True, c["compound"][order][1:] != c["compound"][order][:-1]]
+        rows = np.sort(order[first])
     return c["peak"][rows], c["library_ri"][rows], [str(v) for v in c["name"][rows]]
 
 
@@ -238,7 +253,7 @@ def run_flags(sl: Shortlist, x: np.ndarray, compounds) -> np.ndarray:
     bad_group = spread > np.maximum.reduceat(w_s, starts)
     sizes = np.diff(np.r_[starts, len(comp_s)])
     bad_peaks = p_s[np.repeat(bad_group, sizes)]
-    repeated = np.isin(c["peak"], bad_peaks)
+    repeated = np.isin(c["peak"], bad_peaks) & (c["rank"] == 1)
     flags = F.add_flag(flags, repeated, "repeated-top")
 
     series = compounds.series[comp]
@@ -254,7 +269,7 @@ def run_flags(sl: Shortlist, x: np.ndarray, compounds) -> np.ndarray:
         for i in inv:
             broken.update((int(peak[o[i]]), int(peak[o[i + 1]])))
     if broken:
-        flags = F.add_flag(flags, np.isin(c["peak"], list(broken)), "order-break")
+        flags = F.add_flag(flags, np.isin(c["peak"], list(broken)) & (c["rank"] == 1), "order-break")
     return flags
 
 
@@ -300,54 +315,127 @@ def _table(sl: Shortlist, label: str, phase_class: str, peak_ids, rt, x, x_raw, 
     return df[list(SHORTLIST_COLUMNS) + list(DETAIL_COLUMNS)]
 
 
+def _with(peaks: PeakInput, x: np.ndarray, lam: np.ndarray) -> PeakInput:
+    return PeakInput(x, peaks.mol_ion, peaks.ions, peaks.hit, peaks.hit_score, peaks.extrapolated, lam)
+
+
+def _shift_profile(home: PreparedClass, peaks: PeakInput, model: Model, w: np.ndarray, lam: np.ndarray) -> float:
+    """Coarse offset of the run: the shift b maximising the run's mixture likelihood (see :mod:`matcher.adaptive`)."""
+    from .adaptive import SHIFT_STEP
+    from .candidates import window_pairs
+    from .evidence import score_pairs
+
+    x = np.asarray(peaks.ri, float)
+    ok = np.isfinite(x)
+    if ok.sum() < MIN_ANCHORS_FOR_SHIFT or not len(home.entries):
+        return 0.0
+    xs = x[ok]
+    reach = float(np.max(w[ok]))
+    pairs = window_pairs(home.entries.ri, xs, w[ok] * 2.0)
+    sub = _subset(peaks, np.flatnonzero(ok))
+    hints = _hints_for_fit(sub)
+    best_b, best_ll = 0.0, -np.inf
+    for b in np.arange(-reach, reach + SHIFT_STEP / 2, SHIFT_STEP):
+        sc = score_pairs(pairs, xs + b, home.entries, home.compounds, home.mass_bg, model, hints, home.ion_masks,
+                         unlisted_density=lam[ok])
+        inside = np.abs(sc.delta) <= w[ok][pairs.peak]
+        lw = np.where(inside, sc.logw, -np.inf)
+        mx = np.maximum(np.full(len(xs), 0.0), _seg_max(lw, pairs.peak, len(xs)))
+        tot = np.bincount(pairs.peak, weights=np.exp(lw - mx[pairs.peak]), minlength=len(xs)) + np.exp(-mx)
+        ll = float(np.sum(mx + np.log(tot)))
+        if ll > best_ll + 1e-9 or (abs(ll - best_ll) <= 1e-9 and abs(b) < abs(best_b)):
+            best_b, best_ll = float(b), ll
+    return best_b
+
+
+MIN_ANCHORS_FOR_SHIFT = 5
+
+
+def _seg_max(v: np.ndarray, g: np.ndarray, n: int) -> np.ndarray:
+    out = np.full(n, -np.inf)
+    if len(v):
+        np.maximum.at(out, g, v)
+    return out
+
+
 def screen_run(home: PreparedClass, peaks: PeakInput, base_sd: float, *, window=None, window_percent=None, top=None,
                neighbour: PreparedClass | None = None, adaptive: bool = False, user_anchors=None,
-               estimate_scatter: bool = True, peak_ids: np.ndarray | None = None, progress=None):
+               estimate_scatter: bool = True, peak_ids: np.ndarray | None = None, progress=None,
+               crowding=None, exclusive: bool = True):
     """Screen one run's peaks (indices already computed); returns
-    (shortlist, corrected indices, model, run-model info, correction or None, notices)."""
+    (shortlist, corrected indices, model, run-model info, correction or None, notices).
+
+    With ``adaptive`` (or ``user_anchors``) the run is corrected as described in
+    :mod:`matcher.adaptive`: a coarse offset from the run's likelihood, anchors
+    confident under the joint model (one per compound), an iterated robust
+    Theil–Sen fit, a plausibility check (slope, offset) with a fall-back to the
+    plain screen, and the run's index scatter from the kept anchors.
+    """
+    from .adaptive import robust_correction, scatter_from_anchors
+
     x_raw = np.asarray(peaks.ri, dtype=float)
     ids = np.arange(1, len(x_raw) + 1).astype(str) if peak_ids is None else np.asarray(peak_ids)
     notices: list[str] = []
     w = half_widths(x_raw, home.phase_class, window, window_percent)
-    model, info = fit_run_model(home, peaks, Model(base_sd, DEFAULT_PRIOR_IN_LIBRARY), w, estimate_scatter=False)
+    base = Model(base_sd, exclusive=exclusive)
+    model, info, lam = fit_run_model(home, peaks, base, w, crowding=crowding)
     correction = None
     x = x_raw
     if adaptive:
         if user_anchors is not None:
             a_pos, a_ref, a_names = user_anchors
             source = "anchors file"
+            shift = 0.0
         else:
-            first = shortlist_chunked(home, peaks, model, window=window, window_percent=window_percent, top=None, neighbour=None)
-            a_pos, a_ref, a_names = select_anchors(first, x_raw)
+            shift = _shift_profile(home, peaks, model, w, lam)
+            xs = x_raw + shift
+            m1, _, lam1 = fit_run_model(home, _with(peaks, xs, None), base, w, crowding=crowding)
+            first = shortlist_chunked(home, _with(peaks, xs, lam1), m1, window=window, window_percent=window_percent,
+                                      top=None, neighbour=None)
+            a_pos, a_ref, a_names = select_anchors(first, xs)
             source = "confident matches"
-        ok, why = enough_anchors(x_raw[a_pos], x_raw)
+        a_pos = np.asarray(a_pos, dtype=np.int64)
+        fit = robust_correction(x_raw[a_pos], np.asarray(a_ref, float), x_raw, w)
         correction = {"applied": False, "method": "theil-sen", "source": source, "a": None, "b": None,
-                      "scatter": None, "notice": why, "anchors": []}
-        if ok:
-            fit = fit_correction(x_raw[a_pos], a_ref)
-            if abs(fit["a"]) > MAX_SLOPE:
-                correction["notice"] = f"adaptive correction refused: fitted slope {fit['a']:.3f} is implausible for run drift"
-            else:
-                x = apply_correction(x_raw, fit)
-                correction.update(applied=True, a=fit["a"], b=fit["b"], scatter=fit["scatter"],
-                                  notice=f"corrected with {len(a_pos)} anchors from {source}")
+                      "scatter": None, "notice": fit["notice"], "anchors": [], "coarse_shift": shift}
+        if fit.get("residuals") is not None:
+            kept = fit["kept"]
             correction["anchors"] = [
                 {"peak": str(ids[p]), "name": n, "ri_measured": float(x_raw[p]), "ri_reference": float(r),
-                 "residual": float(res)}
-                for p, n, r, res in zip(a_pos, a_names, a_ref, fit["residuals"])
+                 "residual": float(res), "kept": bool(k)}
+                for p, n, r, res, k in zip(a_pos, a_names, a_ref, fit["residuals"], kept)
             ]
+        if fit["ok"]:
+            x = apply_correction(x_raw, fit)
+            entry_sd = _anchor_entry_sd(home, a_ref)
+            sd, sd_note = scatter_from_anchors(fit["residuals"][fit["kept"]], entry_sd[fit["kept"]], base_sd) \
+                if estimate_scatter else (base_sd, "")
+            correction.update(applied=True, a=fit["a"], b=fit["b"], scatter=sd,
+                              notice=f"corrected with {int(fit['kept'].sum())} of {len(a_pos)} anchors from {source}"
+                                     + (f"; {sd_note}" if sd_note else ""))
+            base = base.with_(measurement_sd=sd)
+            w = half_widths(x, home.phase_class, window, window_percent)
+            model, info, lam = fit_run_model(home, _with(peaks, x, None), base, w, crowding=crowding)
         notices.append(correction["notice"])
-        peaks = PeakInput(x, peaks.mol_ion, peaks.ions, peaks.hit, peaks.hit_score, peaks.extrapolated)
-        w = half_widths(x, home.phase_class, window, window_percent)
-        model, info = fit_run_model(home, peaks, Model(base_sd, DEFAULT_PRIOR_IN_LIBRARY), w,
-                                    estimate_scatter=estimate_scatter)
     if info.get("notice"):
         notices.append(info["notice"])
-    sl = shortlist_chunked(home, peaks, model, window=window, window_percent=window_percent, top=top,
+    sl = shortlist_chunked(home, _with(peaks, x, lam), model, window=window, window_percent=window_percent, top=top,
                            neighbour=neighbour, progress=progress)
     notices.extend(sl.notes)
     sl.columns["flags"] = run_flags(sl, x, home.compounds)
+    info["index_scatter"] = float(model.measurement_sd)
     return sl, x, model, info, correction, notices
+
+
+def _anchor_entry_sd(home: PreparedClass, ref: np.ndarray) -> np.ndarray:
+    """The library spread of the entries the anchors point at (nearest entry by reference index)."""
+    e = home.entries
+    if not len(e) or not len(ref):
+        return np.zeros(len(ref))
+    i = np.clip(np.searchsorted(e.ri, ref), 0, len(e) - 1)
+    j = np.clip(i - 1, 0, len(e) - 1)
+    k = np.where(np.abs(e.ri[j] - ref) < np.abs(e.ri[i] - ref), j, i)
+    return np.where(np.abs(e.ri[k] - ref) < 1e-6, e.sd[k], 0.0)
 
 
 def screen(
@@ -371,6 +459,8 @@ def screen(
     anchors: str | None = None,
     measurement_sd: float | None = None,
     labels: Sequence[str] | None = None,
+    crowding: str | float | None = None,
+    split_peaks: bool = False,
     progress: Callable[[int], None] | None = None,
 ) -> ScreenResult:
     """Screen runs against one class of the house library; see the module doc.
@@ -382,13 +472,18 @@ def screen(
     run. ``labels`` names the runs (default: the file stem, ``run`` for a
     table in memory). Settings are checked by :mod:`matcher.rules`.
     """
+    from .limits import check_sd
     from .peaks import PeakTable, read_peaks
+    from .unlisted import crowding_density
 
     phase_class = check_class(phase_class)
     top = R.check_top(top)
     window, window_percent = R.check_window(window, window_percent)
     mode = R.check_mode(mode)
     rt_unit = R.check_rt_unit(rt_unit)
+    crowding_density(crowding)  # a bad crowding value fails before any file is read
+    if measurement_sd is not None:
+        measurement_sd = check_sd(measurement_sd)
     plan = plan_runs(peak_files, calibration, ladder, labels)
     if not plan:
         raise MatcherError("no peak file given")
@@ -430,7 +525,8 @@ def screen(
             user_anchors = _anchors_from_file(anchors, label, np.asarray(table.peak), snapshot, home)
         outcome = screen_run(home, peaks, base_sd, window=window, window_percent=window_percent, top=top,
                              neighbour=neighbour, adaptive=adaptive or bool(anchors), user_anchors=user_anchors,
-                             estimate_scatter=measurement_sd is None, peak_ids=np.asarray(table.peak), progress=progress)
+                             estimate_scatter=measurement_sd is None, peak_ids=np.asarray(table.peak), progress=progress,
+                             crowding=crowding, exclusive=not split_peaks)
         sl, x, model, info, correction, notices = outcome
         df = _table(sl, label, phase_class, table.peak, table.rt, x, x_raw, peaks)
         runs.append(RunResult(
@@ -438,6 +534,7 @@ def screen(
             window=window_description(phase_class, window, window_percent),
             table=df, calibration=None if cal is None else cal.to_dict(), correction=correction,
             measurement_sd=model.measurement_sd, notices=notices, peak_count=len(table.peak), run_model=info,
+            checksum=getattr(table, "checksum", ""),
         ))
 
     return ScreenResult(
@@ -449,5 +546,5 @@ def screen(
         caution=CAUTION,
         settings={"class": phase_class, "top": top, "fallback": fallback, "homologues": homologues,
                   "adaptive": adaptive, "anchors": anchors, "window": window, "window_percent": window_percent,
-                  "measurement_sd": measurement_sd},
+                  "measurement_sd": measurement_sd, "crowding": crowding, "split_peaks": split_peaks},
     )

@@ -16,24 +16,18 @@ import numpy as np
 from . import flags as F
 from .candidates import half_widths, window_pairs
 from .classes import NEIGHBOUR_CLASS, check_class
-from .evidence import (
-    CROSS_CLASS_PRIOR,
-    HIT_MATCH,
-    PREDICTED_PRIOR,
-    Background,
-    Model,
-    PeakHints,
-    background,
-    score_pairs,
-    softmax_with_null,
-)
-from .hints import hit_similarity, ion_masks
+from .assignment import assign
+from .evidence import CROSS_CLASS_PRIOR, HIT_MATCH, PREDICTED_PRIOR, Model, PeakHints, mass_background, score_pairs
+from .hints import hit_not_in_library, hit_similarity, ion_masks
+from .unlisted import MassBackground
 from .snapshot import ClassEntries, CompoundTable, LibrarySnapshot, with_entries
 
 #: The fallback looks in the neighbouring class when no candidate reaches this probability.
 FALLBACK_BELOW = 0.2
 #: The fallback window is this many times the home window.
 FALLBACK_WIDEN = 2.0
+#: A peak's best compound is "contested" when other peaks of the run hold at least this much of it.
+CONTESTED_AT = 0.2
 
 
 @dataclass(frozen=True)
@@ -43,10 +37,12 @@ class PreparedClass:
     phase_class: str
     entries: ClassEntries
     compounds: CompoundTable
-    background: Background
+    mass_bg: MassBackground
     ion_masks: np.ndarray
     name_keys: tuple[tuple[str, ...], ...]
     predicted: int = 0
+
+    library_keys: tuple[str, ...] = ()  # every name and synonym key of the measured library's compounds
 
 
 def prepare(snapshot: LibrarySnapshot, phase_class: str, *, homologues: bool = False) -> PreparedClass:
@@ -56,6 +52,7 @@ def prepare(snapshot: LibrarySnapshot, phase_class: str, *, homologues: bool = F
     phase_class = check_class(phase_class)
     entries = snapshot.entries(phase_class)
     compounds = snapshot.compounds
+    n_measured = len(compounds)
     n_pred = 0
     if homologues and len(entries):
         from .homologues import predict
@@ -64,13 +61,18 @@ def prepare(snapshot: LibrarySnapshot, phase_class: str, *, homologues: bool = F
         if len(extra):
             entries = with_entries(LibrarySnapshot(compounds, {phase_class: entries}), phase_class, extra).entries(phase_class)
             n_pred = len(extra)
-    bg = background(entries, compounds)
+    bg = mass_background(entries, compounds)
     masks = ion_masks(compounds.key_ions)
+    from .names import short_greek_key
+
+    # each name and synonym in full and with Greek letter names shortened (a-pinene meets alpha-pinene)
     keys = tuple(
-        tuple(dict.fromkeys(k for k in [matching_key(n)] + [matching_key(s) for s in syn] if k))
+        tuple(dict.fromkeys(v for k in [matching_key(n)] + [matching_key(s) for s in syn] if k
+                            for v in (k, short_greek_key(k))))
         for n, syn in zip(compounds.name, compounds.synonyms)
     )
-    return PreparedClass(phase_class, entries, compounds, bg, masks, keys, n_pred)
+    library = tuple(dict.fromkeys(k for row in keys[:n_measured] for k in row))
+    return PreparedClass(phase_class, entries, compounds, bg, masks, keys, n_pred, library)
 
 
 @dataclass
@@ -83,6 +85,7 @@ class PeakInput:
     hit: np.ndarray | None = None
     hit_score: np.ndarray | None = None
     extrapolated: np.ndarray | None = None
+    unlisted: np.ndarray | None = None  # λ_U per peak (unlisted peaks per index unit); None: the model's field
 
     def __len__(self) -> int:
         return len(self.ri)
@@ -117,11 +120,14 @@ def _hints(peaks: PeakInput, pairs_peak: np.ndarray, pairs_compound: np.ndarray,
         if any(hits.tolist()):
             sim = hit_similarity(hits, pairs_peak, pairs_compound, prep.name_keys, matching_key)
     score = None if peaks.hit_score is None else np.asarray(peaks.hit_score, dtype=float)
-    return PeakHints(mol, masks, sim, score)
+    elsewhere = None
+    if sim is not None:
+        elsewhere = hit_not_in_library(np.asarray(peaks.hit, dtype=object), prep.library_keys, matching_key, HIT_MATCH)
+    return PeakHints(mol, masks, sim, score, elsewhere)
 
 
 def _score_class(prep: PreparedClass, peaks: PeakInput, sel: np.ndarray, w: np.ndarray, model: Model,
-                 bg: Background, extra_sd: float | np.ndarray, prior: float):
+                 bg: MassBackground, extra_sd: float | np.ndarray, prior: float, lam: np.ndarray):
     x = np.asarray(peaks.ri, dtype=float)[sel]
     pairs = window_pairs(prep.entries.ri, x, w[sel])
     sub = PeakInput(
@@ -135,7 +141,8 @@ def _score_class(prep: PreparedClass, peaks: PeakInput, sel: np.ndarray, w: np.n
     hints = _hints(sub, pairs.peak, comp, prep)
     factor = np.where(prep.entries.predicted[pairs.entry], PREDICTED_PRIOR, 1.0) * prior
     esd = extra_sd if np.isscalar(extra_sd) else np.asarray(extra_sd)[sel][pairs.peak]
-    scored = score_pairs(pairs, x, prep.entries, prep.compounds, bg, model, hints, prep.ion_masks, factor, esd)
+    scored = score_pairs(pairs, x, prep.entries, prep.compounds, bg, model, hints, prep.ion_masks, factor, esd,
+                         unlisted_density=lam[sel])
     agrees = np.zeros(len(pairs), dtype=bool) if hints.hit_similarity is None else hints.hit_similarity >= HIT_MATCH
     return pairs, scored, sel[pairs.peak], agrees
 
@@ -162,20 +169,23 @@ def shortlist(
     x = np.asarray(peaks.ri, dtype=float)
     w = half_widths(x, home.phase_class, window, window_percent)
     all_peaks = np.arange(n)
-    pairs, sc, gpeak, hitsim = _score_class(home, peaks, all_peaks, w, model, home.background, 0.0, 1.0)
+    lam = model.field().density(x) if peaks.unlisted is None else np.asarray(peaks.unlisted, dtype=float)
+    pairs, sc, gpeak, hitsim = _score_class(home, peaks, all_peaks, w, model, home.mass_bg, 0.0, 1.0, lam)
     ent = pairs.entry
     cls_arr = np.zeros(len(ent), dtype=np.int8)  # 0 home, 1 neighbour
     logw, delta, sd = sc.logw, sc.delta, sc.sd
     evs = [sc.ev_index, sc.ev_mol_ion, sc.ev_ions, sc.ev_hit, sc.score]
     mstate, istate = sc.mass_state, sc.ions_state
-    prob, nil = sc.probability, sc.not_in_library
+    comp_key = home.entries.compound[ent]
+    prob, nil = assign(logw, gpeak, comp_key, n, exclusive=model.exclusive)
     notes: list[str] = []
     if neighbour is not None and n:
         best = np.zeros(n)
         np.maximum.at(best, gpeak, prob) if len(prob) else None
         need = np.flatnonzero(best < FALLBACK_BELOW)
         if len(need) and len(neighbour.entries):
-            p2, s2, g2, h2 = _score_class(neighbour, peaks, need, w * FALLBACK_WIDEN, model, home.background, w, CROSS_CLASS_PRIOR)
+            p2, s2, g2, h2 = _score_class(neighbour, peaks, need, w * FALLBACK_WIDEN, model, home.mass_bg, w,
+                                          CROSS_CLASS_PRIOR, lam)
             if len(p2):
                 gpeak = np.concatenate([gpeak, g2])
                 ent = np.concatenate([ent, p2.entry])
@@ -187,7 +197,8 @@ def shortlist(
                 mstate = np.concatenate([mstate, s2.mass_state])
                 istate = np.concatenate([istate, s2.ions_state])
                 hitsim = np.concatenate([hitsim, h2])
-                prob, nil = softmax_with_null(logw, gpeak, n)
+                comp_key = np.concatenate([comp_key, neighbour.entries.compound[p2.entry]])
+                prob, nil = assign(logw, gpeak, comp_key, n, exclusive=model.exclusive)
                 notes.append(f"cross-class fallback: {len(np.unique(g2))} peak(s) also searched in {neighbour.phase_class}")
 
     # rank within each peak by probability: one float sort key (peak, then descending probability)
@@ -201,6 +212,11 @@ def shortlist(
         r1, r2 = order[rank_sorted == 1], order[rank_sorted == 2]
         top1[gpeak[r1]] = prob[r1]
         top2[gpeak[r2]] = prob[r2]
+    # how much of each peak's best compound the other peaks of the run hold
+    held = np.bincount(comp_key, weights=prob, minlength=int(comp_key.max()) + 1 if len(comp_key) else 0)
+    elsewhere = np.zeros(n)
+    if len(gpeak):
+        elsewhere[gpeak[r1]] = held[comp_key[r1]] - prob[r1]
     kept = rank_sorted <= top if top else np.ones(len(order), dtype=bool)
     keep = order[kept]  # rows kept, already grouped by peak and ranked
     rank = np.zeros(len(gpeak), dtype=np.int64)
@@ -268,7 +284,9 @@ def shortlist(
         top2=top2[peak_col],
         not_in_library=nil[peak_col],
         has_candidate=count[peak_col] > 0,
+        contested=elsewhere[peak_col] >= CONTESTED_AT,
     )
+    cols["held_elsewhere"] = elsewhere[peak_col]
     return Shortlist(cols, nil, top1, count, w, notes)
 
 

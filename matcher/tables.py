@@ -10,8 +10,9 @@ data row, the physical line and the column.
 What is read, and how (documented behaviour):
 
 * **Encoding**: UTF-8; UTF-8 with a byte-order mark; UTF-16 LE/BE with a
-  byte-order mark; otherwise Latin-1, used only when the bytes are not valid
-  UTF-8. NUL bytes without a UTF-16 byte-order mark, or text that is mostly
+  byte-order mark; otherwise Latin-1, used only when the file holds no UTF-8
+  multi-byte sequence at all (an old Latin-1 export). A UTF-8 file with an
+  invalid byte is refused with its line (nothing is guessed). NUL bytes without a UTF-16 byte-order mark, or text that is mostly
   non-printable, are refused as binary.
 * **Preamble**: leading blank lines and lines starting with ``#`` are skipped
   (and counted, so line numbers stay physical); so are leading one-field
@@ -58,8 +59,8 @@ if TYPE_CHECKING:  # pragma: no cover
 
 #: Longest cell text echoed back in an error message.
 ECHO_LIMIT = 40
-#: Longest cell accepted, in characters.
-MAX_CELL = 1000
+#: Longest cell accepted, in characters (declared in :mod:`matcher.limits`).
+from .limits import MAX_CELL  # noqa: E402
 
 _DELIMITERS = (",", ";", "\t")
 _SAMPLE_LINES = 50
@@ -110,6 +111,10 @@ class RawTable:
 # --------------------------------------------------------------------------- bytes -> text
 
 
+# a well-formed multi-byte UTF-8 sequence (two to four bytes)
+_UTF8_MULTIBYTE = re.compile(rb"[\xc2-\xdf][\x80-\xbf]|[\xe0-\xef][\x80-\xbf]{2}|[\xf0-\xf4][\x80-\xbf]{3}")
+
+
 def _decode(data: bytes, path: str, what: str) -> tuple[str, str]:
     if data.startswith(b"\xef\xbb\xbf"):
         enc, body = "utf-8-sig", data[3:]
@@ -131,8 +136,13 @@ def _decode(data: bytes, path: str, what: str) -> tuple[str, str]:
             raise InputError(f"this is a binary file, not a {what} in text form (NUL bytes found)", file=path)
         try:
             enc, text = "utf-8", data.decode("utf-8")
-        except UnicodeDecodeError:
-            enc, text = "latin-1", data.decode("latin-1")
+        except UnicodeDecodeError as exc:
+            if _UTF8_MULTIBYTE.search(data):
+                line = data.count(b"\n", 0, exc.start) + 1
+                raise InputError(
+                    f"mixed encodings: the file is UTF-8 but byte {exc.start + 1} (0x{data[exc.start]:02x}) is not valid "
+                    f"UTF-8; re-save the whole file as UTF-8 (nothing is guessed)", file=path, line=line) from None
+            enc, text = "latin-1", data.decode("latin-1")  # no UTF-8 sequence at all: a Latin-1 export
     if "\x00" in text:
         raise InputError(f"this is a binary file, not a {what} in text form (NUL characters found)", file=path)
     sample = text[:20000]
@@ -192,16 +202,10 @@ def load_table(path, *, what: str = "table") -> RawTable:
     """
     import pandas as pd
 
+    from .reading import read_bytes
+
     path = str(path)
-    try:
-        with open(path, "rb") as fh:
-            data = fh.read()
-    except FileNotFoundError:
-        raise InputError(f"{what} file not found", file=path)
-    except IsADirectoryError:
-        raise InputError(f"is a folder, not a {what} file", file=path)
-    except OSError as exc:
-        raise InputError(f"cannot read the {what} file ({exc.strerror or exc})", file=path)
+    data = read_bytes(path, what=f"{what} file")
 
     if data.startswith(b"PK\x03\x04"):
         if path.lower().endswith((".xlsx", ".xlsm")):
@@ -312,15 +316,135 @@ def _clean_header(header: list[str], path: str, first_line: int) -> list[str]:
     return out
 
 
+def _xlsx_text(v) -> str:
+    if v is None:
+        return ""
+    if isinstance(v, bool):
+        return "TRUE" if v else "FALSE"
+    if isinstance(v, float) and v.is_integer() and abs(v) < 1e15:
+        return str(int(v))
+    if hasattr(v, "isoformat"):
+        return v.isoformat()
+    return str(v)
+
+
+def _first_sheet(path: str) -> str | None:
+    """The ZIP member of the workbook's first sheet (from workbook.xml and its relationships), or None."""
+    import posixpath
+    import xml.etree.ElementTree as ET
+    import zipfile
+
+    try:
+        with zipfile.ZipFile(path) as z:
+            wb = ET.fromstring(z.read("xl/workbook.xml"))
+            rels = ET.fromstring(z.read("xl/_rels/workbook.xml.rels"))
+    except Exception:  # an unusual layout: openpyxl will say what is wrong
+        return None
+    ns_main = "{http://schemas.openxmlformats.org/spreadsheetml/2006/main}"
+    ns_rel = "{http://schemas.openxmlformats.org/officeDocument/2006/relationships}"
+    first = wb.find(f"{ns_main}sheets/{ns_main}sheet")
+    rid = first.get(f"{ns_rel}id") if first is not None else None
+    for r in rels:
+        if r.get("Id") == rid:
+            target = r.get("Target") or ""
+            return target.lstrip("/") if target.startswith("/") else posixpath.normpath(posixpath.join("xl", target))
+    return None
+
+
+def _count_xlsx_rows(path: str, member: str | None, what: str) -> None:
+    """Count the sheet's ``<row`` and ``<c`` elements in its decompressed XML, in chunks, before parsing:
+    a sheet beyond the row or cell limit is refused in seconds and a few MB, whatever it declares."""
+    import zipfile
+
+    from .limits import MAX_ROWS, MAX_XLSX_CELLS
+
+    if not member:
+        return
+    rows = cells = 0
+    tail = b""
+    with zipfile.ZipFile(path) as z:
+        try:
+            fh = z.open(member.lstrip("/"))
+        except KeyError:
+            return
+        with fh:
+            while True:
+                block = fh.read(1 << 20)
+                if not block:
+                    break
+                data = tail + block
+                rows += data.count(b"<row ") + data.count(b"<row>") - tail.count(b"<row ") - tail.count(b"<row>")
+                cells += data.count(b"<c ") + data.count(b"<c>") - tail.count(b"<c ") - tail.count(b"<c>")
+                tail = data[-5:]
+                if rows > MAX_ROWS:
+                    raise InputError(f"the workbook has more than {MAX_ROWS:,} rows (the most that is read; save the "
+                                     f"{what} as CSV)", file=path)
+                if cells > MAX_XLSX_CELLS:
+                    raise InputError(f"the workbook has more than {MAX_XLSX_CELLS:,} cells (the most that is read; "
+                                     f"save the {what} as CSV)", file=path)
+
+
+def _xlsx_cells(path: str, what: str) -> list[list[str]]:
+    """The first sheet's cells as text, streamed (openpyxl read-only) with the row, cell and size limits
+    checked as rows arrive, so a huge or bomb-like workbook stops early instead of filling memory."""
+    import zipfile
+
+    from .limits import MAX_FILE_BYTES, MAX_ROWS, MAX_XLSX_CELLS
+
+    try:
+        with zipfile.ZipFile(path) as z:
+            unpacked = sum(i.file_size for i in z.infolist())
+    except (zipfile.BadZipFile, OSError, ValueError) as exc:
+        raise InputError(f"cannot read the workbook ({exc})", file=path) from None
+    if unpacked > MAX_FILE_BYTES:
+        raise InputError(f"the workbook unpacks to {unpacked:,} bytes; at most {MAX_FILE_BYTES:,} are read "
+                         f"(save the {what} as CSV)", file=path)
+    _count_xlsx_rows(path, _first_sheet(path), what)  # before openpyxl spends any time on it
+    try:
+        from openpyxl import load_workbook
+
+        wb = load_workbook(path, read_only=True, data_only=True)
+    except Exception as exc:  # openpyxl raises many kinds for damaged workbooks
+        raise InputError(f"cannot read the workbook ({type(exc).__name__}: {exc})", file=path) from None
+    out: list[list[str]] = []
+    n_cells = 0
+    try:
+        ws = wb.worksheets[0] if wb.worksheets else None
+        if ws is None:
+            raise InputError(f"empty workbook (expected a {what} with a header row on the first sheet)", file=path)
+        declared_rows, declared_cols = ws.max_row or 0, ws.max_column or 0  # the sheet's own <dimension>, if any
+        if declared_rows > MAX_ROWS or declared_rows * declared_cols > MAX_XLSX_CELLS:
+            raise InputError(f"the workbook declares {declared_rows:,} rows x {declared_cols:,} columns; at most "
+                             f"{MAX_ROWS:,} rows and {MAX_XLSX_CELLS:,} cells are read (save the {what} as CSV)", file=path)
+        for k, row in enumerate(ws.iter_rows(values_only=True), start=1):
+            if k > MAX_ROWS:
+                raise InputError(f"the workbook has more than {MAX_ROWS:,} rows (the most that is read)", file=path)
+            rec = [_xlsx_text(v) for v in row]
+            while rec and rec[-1] == "":
+                rec.pop()
+            n_cells += len(rec)
+            if n_cells > MAX_XLSX_CELLS:
+                raise InputError(f"the workbook has more than {MAX_XLSX_CELLS:,} cells (the most that is read; "
+                                 f"save the {what} as CSV)", file=path, line=k)
+            for j, c in enumerate(rec):
+                if len(c) > MAX_CELL:
+                    raise InputError(f"a cell of {len(c)} characters (at most {MAX_CELL} are accepted): {echo(c)}",
+                                     file=path, line=k, column=f"(column {j + 1})")
+            out.append(rec)
+    except InputError:
+        raise
+    except Exception as exc:  # a damaged sheet inside a valid ZIP
+        raise InputError(f"cannot read the workbook ({type(exc).__name__}: {exc})", file=path) from None
+    finally:
+        wb.close()
+    width = max((len(r) for r in out), default=0)
+    return [r + [""] * (width - len(r)) for r in out]
+
+
 def _load_xlsx(path: str, what: str) -> RawTable:
     import pandas as pd
 
-    try:
-        sheet = pd.read_excel(path, sheet_name=0, header=None, dtype=str, engine="openpyxl")
-    except Exception as exc:  # openpyxl raises many kinds for damaged workbooks
-        raise InputError(f"cannot read the workbook ({type(exc).__name__}: {exc})", file=path)
-    sheet = sheet.fillna("").astype(str)
-    cells = sheet.values.tolist()
+    cells = _xlsx_cells(path, what)
     skip = 0
     while skip < len(cells) and (
         all(not str(c).strip() for c in cells[skip]) or str(cells[skip][0]).lstrip().startswith("#")
@@ -354,7 +478,8 @@ def _load_xlsx(path: str, what: str) -> RawTable:
 
 # --------------------------------------------------------------------------- columns
 
-_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?|[+-]?(?:nan|inf|infinity)", re.IGNORECASE)
+# ASCII digits only, as on the command line: full-width or other scripts' digits are refused in both places
+_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?|[+-]?(?:nan|inf|infinity)", re.IGNORECASE)
 
 
 def _column(raw: RawTable, column: str) -> list[str]:
@@ -367,7 +492,7 @@ def _column(raw: RawTable, column: str) -> list[str]:
 
 
 def _fmt(x: float) -> str:
-    return f"{x:g}"
+    return str(int(x)) if float(x).is_integer() and abs(x) < 1e15 else f"{x:g}"
 
 
 def numbers(
@@ -409,7 +534,8 @@ def numbers(
                 raise raw.fail("empty cell; a number is required", row=k + 1, column=column)
             continue
         if not _NUMBER.fullmatch(c):
-            raise raw.fail(f"not a number: {echo(c)}", row=k + 1, column=column)
+            hint = " (write digits as ASCII 0-9)" if any(ch.isdigit() and not ch.isascii() for ch in c) else ""
+            raise raw.fail(f"not a number: {echo(c)}{hint}", row=k + 1, column=column)
     filled = [c if c else "nan" for c in cells]
     if n:
         out = np.asarray(filled, dtype=object).astype(np.float64)

@@ -318,6 +318,8 @@ def run_document(run: RunResult, *, with_peaks: bool = True) -> dict[str, Any]:
         "correction": jsonable(run.correction),
         "summary": summarise_table(run.table),
     }
+    if getattr(run, "checksum", ""):
+        doc["checksum"] = {"sha256": str(run.checksum)}  # the peak table's content: one peak, one identity
     if with_peaks:
         doc["peaks"] = _peaks(run.table)
     return doc

@@ -25,7 +25,9 @@ def test_rules_vocabularies_are_the_ones_the_other_modules_use():
 
     assert classes.PHASE_CLASSES is rules.PHASE_CLASSES
     assert calibration.MODES is rules.MODES and models.MODES is rules.MODES
-    assert library_io.RI_MAX == rules.RI_MAX == 10_000.0
+    from matcher import limits
+
+    assert library_io.RI_MAX == rules.RI_MAX == limits.MAX_RI == 10_000.0
     assert set(calibration.FORMULA) == set(rules.MODES)
 
 
@@ -55,7 +57,7 @@ def test_window_top_and_choice_rules():
     with pytest.raises(MatcherError, match="--mode must be one of programmed, isothermal; got 'ramp'"):
         rules.check_mode("ramp")
     assert rules.check_ri(0) == 0.0 and rules.check_ri("10000") == 10000.0
-    with pytest.raises(MatcherError, match="retention index must be a number between 0 and 10000"):
+    with pytest.raises(MatcherError, match="retention index must be a finite index between 0 and 10000"):
         rules.check_ri(-0.1)
     assert rules.check_shortlist_path("a/B.XLSX") == "a/B.XLSX"
     with pytest.raises(MatcherError, match="-o out.tsv: the shortlist file must end in .csv, .json or .xlsx"):
@@ -131,7 +133,8 @@ def test_library_location_rules(monkeypatch, tmp_path):
     assert location.resolve("sqlite:///given.db") == "sqlite:///given.db"      # --db wins over $MATCHER_DB
     monkeypatch.delenv("MATCHER_DB")
     assert location.resolve(None).endswith("library.sqlite")
-    assert location.mask_url("postgresql://u:p%40ss@h/db") == "postgresql://u:***@h/db"
+    masked = location.mask_url("postgresql://u:p%40ss@h/db")
+    assert masked.endswith("://u:***@h/db") and "p%40ss" not in masked and "ss@" not in masked
 
 
 # --------------------------------------------------------------------------- svg_plots

@@ -190,7 +190,13 @@ def test_snapshot_reads_in_few_queries(library_url, demo_csv):
     finally:
         sqlite3.connect = real_connect
     selects = [s for s in statements if s.lstrip().upper().startswith("SELECT")]
-    assert len(selects) == 4, selects
+    # the opening check (probe_sqlite: ours, schema version, revision row) is a fixed handful of
+    # statements on the schema tables; the library itself is read in four SELECTs
+    probe = {"SELECT 1 FROM sqlite_master LIMIT 1", "SELECT name FROM sqlite_master WHERE type = 'table'",
+             "SELECT MAX(version) FROM schema_version", "SELECT COUNT(*) FROM library_state WHERE id = 1"}
+    data = [s for s in selects if s not in probe]
+    assert len(data) == 4, data
+    assert len(selects) - len(data) <= 4, selects
 
 
 def test_query_path_does_not_import_sqlalchemy(library_url, demo_csv):

@@ -35,3 +35,11 @@ def test_export_rows_validate_against_json_schema(library_url, demo_csv):
         validator.validate(r)
     bad = dict(rows[0], cas="7732185")
     assert list(validator.iter_errors(bad))
+
+
+def test_probe_knows_the_latest_schema_version():
+    # the opening check (standard library only) must know the same newest version as the migrations
+    from matcher.store.database import latest_version
+    from matcher.store.probe import KNOWN_VERSION
+
+    assert KNOWN_VERSION == latest_version()

@@ -6,7 +6,7 @@ from typing import Annotated, List, Optional
 
 import typer
 
-from .common import JsonFlag, note, parse_map, say
+from .common import JsonFlag, emit_data, note, parse_map, say
 
 CALIBRATE_EXAMPLE = """\b
 Example (the distillery lab's n-alkane ladder, programmed oven):
@@ -97,7 +97,9 @@ def register(app: typer.Typer) -> None:
         import json
 
         from ..api import calibrate
+        from ..atomic import guard_output
 
+        guard_output(output, inputs=[("the ladder", ladder)], db=None, allow_stream=True)
         cal = calibrate(ladder, mode=mode, holdup=holdup, dead_time=dead_time, marker=marker, series=series,
                         rt_unit=rt_unit, header_map=parse_map(mapping))
         cal.save(output)
@@ -134,12 +136,17 @@ def register(app: typer.Typer) -> None:
 
         if bool(times) == bool(peaks):
             raise MatcherError("give retention times as arguments or --peaks FILE (one of the two)")
+        if output:
+            from ..atomic import guard_output
+
+            guard_output(output, inputs=[("the calibration", calibration), ("the peak table", peaks)], db=None,
+                         allow_stream=True)
         cal = Calibration.load(calibration)
         result = convert_times(cal, times=times, peaks=peaks, rt_unit=rt_unit, overrides=parse_map(mapping))
         text = json.dumps(ri_document(cal, calibration, result), indent=2, ensure_ascii=False) + "\n" if as_json else ri_csv(result)
-        if output:
+        if output and output != "-":
             atomic_write_text(output, text)
             n_ext = int(result["extrapolated"].sum())
             note(f"wrote {len(result['peak'])} indices to {output}" + (f"; {n_ext} extrapolated" if n_ext else ""))
         else:
-            typer.echo(text, nl=False)
+            emit_data(text)

@@ -28,13 +28,29 @@ JsonFlag = Annotated[bool, typer.Option("--json", help="Print JSON for programs 
 
 
 def say(text: str = "") -> None:
-    """Print to standard output."""
-    typer.echo(text)
+    """Print to standard output, control and bidi characters shown escaped (terminal or not)."""
+    from ..safe_text import terminal_text
+
+    typer.echo(terminal_text(text))
 
 
 def note(text: str) -> None:
-    """Print a notice to standard error (keeps stdout clean for data)."""
-    typer.echo(text, err=True)
+    """Print a notice to standard error (keeps stdout clean for data), escaped like :func:`say`."""
+    from ..safe_text import terminal_text
+
+    typer.echo(terminal_text(text), err=True)
+
+
+def emit_data(text: str) -> None:
+    """A data file's text (CSV) on standard output: byte for byte what ``-o FILE`` writes, except on a
+    terminal, where control and bidi characters are shown escaped instead of acting on it."""
+    out = sys.stdout
+    if out.isatty():
+        from ..safe_text import terminal_text
+
+        text = terminal_text(text)
+    out.write(text)
+    out.flush()
 
 
 def is_terminal() -> bool:

@@ -14,6 +14,7 @@ Examples
 
     matcher evaluate                      # every class with entries
     matcher evaluate --class polar --noise 3 --json
+    matcher evaluate --crowded --offset 4   # half the library removed, everything screened as one run
 """
 
 
@@ -28,11 +29,28 @@ def register(app: typer.Typer) -> None:
         phase_class: Annotated[Optional[str], typer.Option("--class", metavar="CLASS", help="Evaluate one class only.")] = None,
         noise: Annotated[float, typer.Option(metavar="UNITS", help="Add Gaussian noise of this many index units to every query.")] = 0.0,
         window: Annotated[Optional[float], typer.Option(metavar="UNITS", help="Half-width of the window (default: the class default).")] = None,
+        crowded: Annotated[bool, typer.Option("--crowded", help="Crowded-sample check: remove every other compound along the index scale and screen all of them together as one run, plain and adaptive.")] = False,
+        offset: Annotated[float, typer.Option(metavar="UNITS", help="With --crowded: shift the whole run by this many index units.")] = 4.0,
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
         from ..api import evaluate
+        from ..errors import MatcherError
+        from ..rules import check_noise
 
+        noise = check_noise(noise)
+        if crowded:
+            from ..evaluation import evaluate_crowded_all
+            from ..store.snapshot_loader import load_snapshot
+
+            if abs(offset) > 100:
+                raise MatcherError("--offset must be between -100 and 100 index units")
+            report = evaluate_crowded_all(load_snapshot(db), phase_class, offset=offset, noise=noise or None)
+            if as_json:
+                say(json.dumps(report, indent=2, ensure_ascii=False, allow_nan=False, default=lambda v: None))
+            else:
+                say(render_crowded(report))
+            return
         report = evaluate(db, phase_class=phase_class, noise=noise, window=window).to_dict()
         if as_json:
             say(json.dumps(report, indent=2, ensure_ascii=False, allow_nan=False, default=lambda v: None))
@@ -66,3 +84,19 @@ def render(report: dict) -> str:
     out.append(f"\nnoise added: {report['noise']:g} index units; queries: {report['queries']['leave_one_out']} held out, "
                f"{report['queries']['removed']} removed")
     return "\n".join(out)
+
+
+def render_crowded(report: dict) -> str:
+    from ..textable import format_table
+
+    rows = []
+    for cls, r in report["classes"].items():
+        for how in ("plain", "adaptive"):
+            e = r[how]
+            if "peaks" not in e:
+                continue
+            rows.append([cls, how, e["peaks"], e["removed"], e["confident_calls"], _pct(e["confident_precision"]),
+                         _pct(e["listed_first"]), f"{e['mean_top_probability_removed']:.3f}", f"{e['ece']:.3f}"])
+    return (format_table(["class", "screen", "peaks", "not listed", "calls p>=0.9", "of them right", "listed first",
+                          "mean p of unlisted", "probability error"], rows, align="llrrrrrrr")
+            + f"\nrun shifted by {report['offset']:+g} index units; every other compound along the scale removed from the library")

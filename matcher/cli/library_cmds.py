@@ -7,7 +7,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from .common import DbOption, JsonFlag, note, say
+from .common import DbOption, JsonFlag, emit_data, note, say
 
 HELP = "Manage the house library: retention indices measured on your own columns, per polarity class."
 
@@ -68,9 +68,9 @@ def register(app: typer.Typer) -> None:
     ) -> None:
         from ..api import open_library
 
-        text = open_library(db).export(output)
-        if output is None:
-            typer.echo(text, nl=False)
+        text = open_library(db).export(None if output == "-" else output)
+        if output is None or output == "-":
+            emit_data(text)
         else:
             note(f"wrote {output}")
 

@@ -81,7 +81,10 @@ def run() -> None:
     try:
         app()
     except MatcherError as exc:
-        typer.echo(f"error: {exc}", err=True)
+        from ..safe_text import terminal_text
+        from ..store.location import mask_secrets
+
+        typer.echo(terminal_text(mask_secrets(f"error: {' '.join(str(exc).split())}")), err=True)
         sys.exit(exc.exit_code)
     except KeyboardInterrupt:
         typer.echo("interrupted; nothing half-written was kept", err=True)
@@ -91,7 +94,9 @@ def run() -> None:
             raise
         from ..store.location import mask_secrets
 
-        msg = mask_secrets(" ".join(f"{type(exc).__name__}: {exc}".split()))
+        from ..safe_text import terminal_text
+
+        msg = terminal_text(mask_secrets(" ".join(f"{type(exc).__name__}: {exc}".split())))
         typer.echo(f"error: unexpected problem ({msg}); set MATCHER_DEBUG=1 to see details", err=True)
         sys.exit(1)
 

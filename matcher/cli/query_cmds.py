@@ -39,6 +39,7 @@ def register(app: typer.Typer) -> None:
         fallback: Annotated[bool, typer.Option("--fallback", help="Also look in the neighbouring class when nothing good is found.")] = False,
         homologues: Annotated[bool, typer.Option("--homologues", help="Propose missing members of homologous series (flagged predicted).")] = False,
         sd: Annotated[Optional[float], typer.Option("--sd", metavar="UNITS", help="Index scatter of your measurement (default: 0.3 x the class window).")] = None,
+        crowding: Annotated[Optional[str], typer.Option("--crowding", metavar="TYPE|N", help="How crowded the sample is with compounds not in the library: sparse, moderate (default), crowded, dense, or unlisted peaks per 100 index units.")] = None,
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
@@ -46,7 +47,7 @@ def register(app: typer.Typer) -> None:
 
         result = query(ri, phase_class, library=db, window=window, window_percent=window_percent, mol_ion=mol_ion,
                        ions=ions or None, hit=hit, hit_score=hit_score, top=top, fallback=fallback,
-                       homologues=homologues, measurement_sd=sd)
+                       homologues=homologues, measurement_sd=sd, crowding=crowding)
         doc = result.to_dict()
         if as_json:
             say(json.dumps(doc, indent=2, ensure_ascii=False))

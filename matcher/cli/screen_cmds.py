@@ -53,18 +53,26 @@ def register(app: typer.Typer) -> None:
         fallback: Annotated[bool, typer.Option("--fallback", help="Look in the neighbouring class for peaks with no good candidate.")] = False,
         homologues: Annotated[bool, typer.Option("--homologues", help="Propose missing members of homologous series (flagged predicted).")] = False,
         sd: Annotated[Optional[float], typer.Option("--sd", metavar="UNITS", help="Index scatter of your runs (default: 0.3 x the class window; estimated with --adaptive).")] = None,
+        crowding: Annotated[Optional[str], typer.Option("--crowding", metavar="TYPE|N", help="How crowded the sample is with compounds not in the library, as a prior: sparse, moderate (default), crowded, dense, or unlisted peaks per 100 index units. The run's own peaks refine it.")] = None,
+        split_peaks: Annotated[bool, typer.Option("--split-peaks", help="Let one compound explain several peaks (split or overloaded peaks); by default a compound explains at most one peak of a run.")] = False,
         quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bar and no summary.")] = False,
         db: DbOption = None,
     ) -> None:
         import sys
 
-        from ..rules import check_report_path, check_shortlist_path
         from ..api import screen
-        from ..writers import write_results
+        from ..atomic import guard_outputs
+        from ..rules import check_report_path, check_shortlist_path
+        from ..writers import sidecar_path, write_results
 
         check_shortlist_path(out)  # before the work: nothing is screened for a file that cannot be written
         if report is not None:
             check_report_path(report)
+        csv_out = out.lower().endswith(".csv")
+        outputs = [("-o", out)] + ([("-o (its provenance sidecar)", str(sidecar_path(out)))] if csv_out else [])
+        guard_outputs(outputs + [("--report", report)], db=db,
+                      inputs=[("the peak table", p) for p in peaks] + [("the calibration", c) for c in calibration or []]
+                      + [("the ladder", x) for x in ladder or []] + [("the anchors file", anchors)])
 
         bar = None
         progress = None
@@ -82,7 +90,7 @@ def register(app: typer.Typer) -> None:
                             dead_time=dead_time, rt_unit=rt_unit, header_map=parse_map(header_map) or None,
                             window=window, window_percent=window_percent, top=top, fallback=fallback,
                             homologues=homologues, adaptive=adaptive, anchors=anchors, measurement_sd=sd,
-                            progress=progress)
+                            crowding=crowding, split_peaks=split_peaks, progress=progress)
         finally:
             if bar is not None:
                 bar.__exit__(None, None, None)

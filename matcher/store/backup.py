@@ -42,7 +42,10 @@ def backup(db: str | None, path: str | os.PathLike, *, overwrite: bool = False) 
     src_path = engine.url.database
     if not src_path or src_path == ":memory:":
         raise LibraryError("an in-memory library cannot be backed up")
+    from ..atomic import guard_output
+
     dest = Path(path)
+    guard_output(dest, db=db, option="backup", allow_sqlite=True)
     if dest.exists():
         if os.path.samefile(dest, src_path):
             raise MatcherError(f"{dest} is the library itself; choose another file")
@@ -50,7 +53,7 @@ def backup(db: str | None, path: str | os.PathLike, *, overwrite: bool = False) 
             raise MatcherError(f"{dest} exists; choose another file or use --overwrite")
     from .snapshot_loader import load_snapshot_sqlite
 
-    with atomic_path(dest) as tmp:
+    with atomic_path(dest, allow_sqlite=True) as tmp:
         src = sqlite3.connect(f"file:{src_path}?mode=ro", uri=True, timeout=30.0)
         out = sqlite3.connect(str(tmp))
         try:

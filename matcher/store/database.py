@@ -35,8 +35,10 @@ migration applied in order, each in its own transaction.
 from __future__ import annotations
 
 import json
+import os
 import time
 from contextlib import contextmanager
+from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from typing import Callable, Iterator, TypeVar
 
@@ -78,8 +80,32 @@ def now() -> str:
 
 _ENGINES: dict[str, Engine] = {}
 
+from .probe import OUR_TABLES, Probe, connect_readonly, is_verified, sqlite_uri  # noqa: E402,F401  (no SQLAlchemy there)
+from .probe import probe_sqlite as _probe_file  # noqa: E402
 
-def _sqlite_setup(engine: Engine) -> None:
+
+def probe_sqlite(path: str, *, source: str | None = None, check: str = "quick") -> Probe:
+    """:func:`matcher.store.probe.probe_sqlite`, first closing this process's pooled connections to
+    the file when a probe connection is needed (a second, short-lived connection closing beside
+    pooled ones could check the WAL out from under them)."""
+    if check == "full" or not is_verified(path):
+        for eng in list(_ENGINES.values()):
+            if _sqlite_file(eng) == path:
+                eng.dispose()
+    return _probe_file(path, source=source, check=check)
+
+
+def _sqlite_file(engine_or_url) -> str | None:
+    from sqlalchemy.engine import make_url
+
+    url = engine_or_url.url if isinstance(engine_or_url, Engine) else make_url(engine_or_url)
+    if url.get_backend_name() != "sqlite":
+        return None
+    path = url.database
+    return path if path and path != ":memory:" else None
+
+
+def _sqlite_setup(engine: Engine, readonly: bool = False) -> None:
     memory = engine.url.database in (None, "", ":memory:")
 
     @event.listens_for(engine, "connect")
@@ -87,7 +113,7 @@ def _sqlite_setup(engine: Engine) -> None:
         dbapi_conn.isolation_level = None  # we emit BEGIN ourselves
         cur = dbapi_conn.cursor()
         cur.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
-        if not memory:
+        if not memory and not readonly:
             cur.execute("PRAGMA journal_mode = WAL")
         cur.execute("PRAGMA foreign_keys = ON")
         cur.close()
@@ -105,16 +131,25 @@ def engine_for(db: str | None = None) -> Engine:
     if eng is not None:
         return eng
     if url.startswith("sqlite"):
-        from sqlalchemy.engine import make_url
-        import os
+        path = _sqlite_file(url)
+        folder = os.path.dirname(os.path.abspath(path)) if path else None
+        readonly = bool(path and os.path.isfile(path)
+                        and (not os.access(path, os.W_OK) or not os.access(folder or ".", os.W_OK)))
+        if readonly:  # a library we may not write: read it without ever trying to (no journal switch, no -shm)
+            import sqlite3
 
-        path = make_url(url).database
-        if path and path != ":memory:":
-            os.makedirs(os.path.dirname(os.path.abspath(path)) or ".", exist_ok=True)
-        eng = create_engine(url, connect_args={"timeout": BUSY_TIMEOUT_MS / 1000})
-        _sqlite_setup(eng)
+            eng = create_engine("sqlite://", creator=lambda p=path: connect_readonly(p))
+        else:
+            eng = create_engine(url, connect_args={"timeout": BUSY_TIMEOUT_MS / 1000})
+        _sqlite_setup(eng, readonly=readonly)
     else:
-        eng = create_engine(url, pool_pre_ping=True)
+        try:
+            eng = create_engine(url, pool_pre_ping=True)
+        except (ImportError, ModuleNotFoundError) as exc:
+            raise LibraryError(f"house library {mask_secrets(url)}: the database driver is not installed ({exc.name}); "
+                               f"install it with: pip install 'matcher[postgres]'") from None
+        except Exception as exc:  # an address SQLAlchemy cannot use
+            raise LibraryError(f"house library {mask_secrets(url)}: unusable address ({mask_secrets(str(exc))})") from None
     _ENGINES[url] = eng
     return eng
 
@@ -152,7 +187,7 @@ def _schema_lock(conn: Connection) -> None:
 
 
 def _where(engine: Engine) -> str:
-    return mask_secrets(engine.url.render_as_string(hide_password=False))
+    return mask_secrets(engine.url.render_as_string(hide_password=True))
 
 
 #: SQLSTATEs of a change refused because the role may only read (42501 insufficient privilege,
@@ -186,8 +221,20 @@ def _wrap(engine: Engine, exc: Exception, *, writing: bool = False) -> LibraryEr
 
 def init_library(db: str | None = None) -> Engine:
     """Create the library (schema, revision row, phase catalog) or migrate an older one; idempotent."""
+    path = _sqlite_file(resolve(db))
+    if path:
+        probe = probe_sqlite(path, source=mask_secrets(resolve(db)), check="quick")
+        if probe.state == "missing":
+            os.makedirs(os.path.dirname(os.path.abspath(path)) or ".", exist_ok=True)
     engine = engine_for(db)
     try:
+        if not path:  # a server: never write our tables into another application's database
+            with engine.connect() as conn:
+                names = set(inspect(conn).get_table_names())
+            if names and "schema_version" not in names:
+                shown = ", ".join(sorted(names)[:6]) + (", ..." if len(names) > 6 else "")
+                raise LibraryError(f"the database {_where(engine)} holds another application's tables ({shown}), "
+                                   f"not a house library; nothing was changed; use an empty database")
         current = schema_version(engine)
         if current is None:
             with _writer(engine).begin() as conn:
@@ -242,15 +289,19 @@ def _seed_phases(engine: Engine) -> None:
             record(s, "add-phase", f"phase:{row.id}", None, {"name": p.name, "class": p.phase_class})
 
 
-def open_library(db: str | None = None) -> Engine:
-    """The engine of an existing, current library; a one-line :class:`LibraryError` otherwise."""
-    engine = engine_for(db)
-    if engine.dialect.name == "sqlite":
-        import os
+def open_library(db: str | None = None, *, check: str = "quick") -> Engine:
+    """The engine of an existing, current library; a one-line :class:`LibraryError` otherwise.
 
-        path = engine.url.database
-        if path and path != ":memory:" and not os.path.isfile(path):
-            raise LibraryError(f"no house library at {_where(engine)}; create one with: matcher library init")
+    A SQLite file is first checked read-only by :func:`probe_sqlite` (``check``: "quick" runs
+    ``PRAGMA quick_check``, "none" skips it, "full" leaves the integrity findings to the caller).
+    """
+    url = resolve(db)
+    path = _sqlite_file(url)
+    if path:
+        probe = probe_sqlite(path, source=mask_secrets(url), check=check)
+        if probe.state != "library":
+            raise LibraryError(f"no house library at {mask_secrets(url)}; create one with: matcher library init")
+    engine = engine_for(db)
     try:
         v = schema_version(engine)
     except DBAPIError as exc:

@@ -204,13 +204,19 @@ def check(db: str | None, *, strict: bool = False) -> list[str]:
     from ..names import matching_key
     from .database import latest_version, open_library, schema_version
 
-    engine = open_library(db)
+    from ..limits import MAX_N, MAX_SD
+    from .database import _sqlite_file, probe_sqlite
+    from .location import mask_secrets, resolve
+
     problems: list[str] = []
+    path = _sqlite_file(resolve(db))
+    if path:  # read-only and first: a damaged file is reported, never written to
+        probe = probe_sqlite(path, source=mask_secrets(resolve(db)), check="full")
+        if probe.integrity:
+            return [f"integrity: {r}" for r in probe.integrity]
+    engine = open_library(db, check="none")
     with engine.connect() as conn:
         if engine.dialect.name == "sqlite":
-            res = [r[0] for r in conn.exec_driver_sql("PRAGMA integrity_check").fetchall()]
-            if res != ["ok"]:
-                problems += [f"integrity: {r}" for r in res[:20]]
             for r in conn.exec_driver_sql("PRAGMA foreign_key_check").fetchall():
                 problems.append(f"foreign key: table {r[0]} row {r[1]} points to a missing row of {r[2]}")
         v = schema_version(engine)
@@ -275,10 +281,10 @@ def check(db: str | None, *, strict: bool = False) -> list[str]:
                 problems.append(f"observation {oid}: index {ri!r} is not a finite non-negative number")
             if mode not in MODES:
                 problems.append(f"observation {oid}: mode {mode!r}")
-            if sd is not None and (not math.isfinite(sd) or sd < 0):
-                problems.append(f"observation {oid}: ri_sd {sd!r}")
-            if n is not None and n < 1:
-                problems.append(f"observation {oid}: n {n!r}")
+            if sd is not None and (not math.isfinite(sd) or sd < 0 or sd > MAX_SD):
+                problems.append(f"observation {oid}: ri_sd {sd!r} (must be 0 to {MAX_SD:g} index units)")
+            if n is not None and not 1 <= n <= MAX_N:
+                problems.append(f"observation {oid}: n {n!r} (must be 1 to {MAX_N})")
     return problems
 
 

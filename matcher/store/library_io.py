@@ -44,13 +44,14 @@ from dataclasses import dataclass, field
 from datetime import date
 from pathlib import Path
 
+from ..limits import MAX_N, MAX_RI, MAX_SD
 from ..cas import normalise_cas
 from ..classes import check_class
 from ..errors import InputError, MatcherError
 from ..formula import hill_formula
 from ..identifiers import normalise_inchikey
 from ..names import display_name, matching_key
-from ..rules import MODE_ALIASES, MODES, RI_MAX
+from ..rules import MODE_ALIASES, MODES
 
 REQUIRED = ("name", "phase_class", "ri")
 OPTIONAL = ("cas", "formula", "ri_sd", "n", "mode", "phase", "source", "synonyms", "inchikey", "smiles", "notes")
@@ -82,6 +83,7 @@ ALIASES: dict[str, list[str]] = {
 }
 
 _MODES = {m: m for m in MODES} | MODE_ALIASES
+RI_MAX = MAX_RI  # declared in matcher.limits
 
 
 @dataclass(frozen=True)
@@ -187,8 +189,10 @@ def read_rows(path: str | Path) -> tuple[list[LibraryRow], list[str]]:
         return texts(raw, cols[c]) if c in cols else [""] * n_rows
 
     ri = numbers(raw, cols["ri"], required=True, minimum=0.0, maximum=RI_MAX)
-    sd = numbers(raw, cols["ri_sd"], required=False, nonnegative=True) if "ri_sd" in cols else np.full(n_rows, np.nan)
-    nn = numbers(raw, cols["n"], required=False, integer=True, minimum=1) if "n" in cols else np.full(n_rows, np.nan)
+    sd = (numbers(raw, cols["ri_sd"], required=False, nonnegative=True, maximum=MAX_SD)
+          if "ri_sd" in cols else np.full(n_rows, np.nan))
+    nn = (numbers(raw, cols["n"], required=False, integer=True, minimum=1, maximum=MAX_N)
+          if "n" in cols else np.full(n_rows, np.nan))
     cells = {c: col_text(c) for c in COLUMNS if c not in ("ri", "ri_sd", "n")}
 
     rows: list[LibraryRow] = []
@@ -482,20 +486,47 @@ def rows_to_csv(rows: list[dict[str, str]]) -> str:
     return buf.getvalue()
 
 
+def _write_xlsx(rows: list[dict], path) -> None:
+    """The library as one sheet: every cell a *text* cell (never a formula), XML-illegal characters as U+FFFD.
+
+    Text stays literal (``=HYPERLINK(...)`` is stored as that text, with the quote-prefix style so
+    that editing the cell does not turn it into a formula), so re-importing the file gives the
+    same library, except for control characters XML cannot hold (shown as U+FFFD).
+    """
+    from openpyxl import Workbook
+    from openpyxl.cell import WriteOnlyCell
+
+    from ..safe_text import xml_text
+
+    wb = Workbook(write_only=True)
+    ws = wb.create_sheet("library")
+    ws.append(list(COLUMNS))
+    for r in rows:
+        cells = []
+        for col in COLUMNS:
+            v = r.get(col, "")
+            cell = WriteOnlyCell(ws, value=xml_text("" if v is None else str(v)))
+            cell.data_type = "s"  # text, whatever it starts with: a spreadsheet never runs it
+            if cell.value and cell.value[:1] in "=+-@":
+                cell.quotePrefix = True
+            cells.append(cell)
+        ws.append(cells)
+    wb.save(path)
+
+
 def export_library(db: str | None, path: str | Path | None = None) -> str:
     """Export the library to ``path`` (``.csv`` or ``.xlsx``, written atomically); returns the CSV text."""
-    from ..atomic import atomic_path, atomic_write
+    from ..atomic import atomic_path, atomic_write, guard_output
 
+    if path is not None:
+        guard_output(path, db=db, allow_stream=True)
     rows = export_rows(db)
     text = rows_to_csv(rows)
     if path is not None:
         path = str(path)
         if path.lower().endswith(".xlsx"):
-            import pandas as pd
-
-            frame = pd.DataFrame(rows, columns=list(COLUMNS), dtype=object)
             with atomic_path(path) as tmp:
-                frame.to_excel(tmp, index=False, engine="openpyxl")
+                _write_xlsx(rows, tmp)
         else:
             with atomic_write(path, newline="") as fh:
                 fh.write(text)

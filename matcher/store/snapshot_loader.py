@@ -76,16 +76,24 @@ def load_snapshot_sqlite(path: str, source: str | None = None):
 
     from ..errors import LibraryError
 
+    from .probe import check_file, connect_readonly, probe_sqlite
+
     source = source or mask_url("sqlite:///" + path)
-    if not os.path.isfile(path):
+    if not check_file(path, source):  # folders, devices, empty and non-SQLite files are refused by name
+        raise _no_library(source)
+    if not os.path.exists(path + "-wal") and probe_sqlite(path, source=source, check="quick").state != "library":
+        # no write-ahead log: checked as immutable first, so a refused file gets no -wal/-shm beside it
         raise _no_library(source)
     try:
-        con = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=30.0, isolation_level=None)
+        con = connect_readonly(path)
     except sqlite3.Error as exc:
         raise LibraryError(f"cannot open the house library {source}: {exc}") from None
     try:
         con.execute("PRAGMA busy_timeout = 30000")
         con.execute("BEGIN")
+        # inside the read transaction: ours, a known version, intact (foreign or damaged files are refused)
+        if probe_sqlite(path, source=source, check="quick", con=con).state != "library":
+            raise _no_library(source)
         try:
             row = con.execute(SQL_REVISION).fetchone()
         except sqlite3.OperationalError as exc:
