@@ -50,6 +50,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from .snapshot import MAD_TO_SD  # the MAD-to-sd constant, declared once
+
 ANCHOR_PROBABILITY = 0.9
 MIN_ANCHORS = 5
 MIN_SPAN = 300.0
@@ -81,7 +83,7 @@ def robust_sd(values: np.ndarray) -> float:
     1.4826
     """
     v = np.asarray(values, dtype=float)
-    return float(1.4826 * np.median(np.abs(v - np.median(v)))) if len(v) else float("nan")
+    return float(MAD_TO_SD * np.median(np.abs(v - np.median(v)))) if len(v) else float("nan")
 
 
 def apply_correction(ri: np.ndarray, fit: dict) -> np.ndarray:

@@ -36,12 +36,12 @@ from datetime import datetime, timezone
 
 import numpy as np
 
-from .errors import InputError, MatcherError
+from .errors import InputError
 from .holdup import HoldUp, resolve_holdup
 from .ladder import Ladder, check_ladder
+from .rules import MODES, check_mode
 from .series import SERIES
 
-MODES = ("programmed", "isothermal")
 FORMULA = {
     "programmed": "linear index, van den Dool & Kratz, J. Chromatogr. 11, 463 (1963)",
     "isothermal": "Kovats index, Helv. Chim. Acta 41, 1915 (1958)",
@@ -175,8 +175,7 @@ def calibrate(ladder: Ladder, *, mode: str = "programmed", holdup: str | None = 
         raise MatcherError("give either --dead-time or --marker, not both: each one sets the hold-up time")
     from . import __version__
 
-    if mode not in MODES:
-        raise MatcherError(f"unknown mode {mode!r}; use programmed or isothermal")
+    mode = check_mode(mode)
     if len(ladder) < 2:
         raise InputError(f"a ladder needs at least two standards; this one has {len(ladder)}", file=ladder.path)
     hold: HoldUp | None = None

@@ -21,7 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .classes import DEFAULT_WINDOWS, check_class
-from .errors import MatcherError
+from .rules import check_window
 
 
 @dataclass(frozen=True)
@@ -71,15 +71,10 @@ def half_widths(
     [10.0, 20.0]
     """
     x = np.asarray(x, dtype=np.float64)
-    if window is not None and window_percent is not None:
-        raise MatcherError("give either --window or --window-percent, not both")
+    window, window_percent = check_window(window, window_percent)
     if window_percent is not None:
-        if not (0 < window_percent <= 20):
-            raise MatcherError(f"--window-percent must be in (0, 20], got {window_percent}")
         return np.abs(x) * (window_percent / 100.0)
-    w = DEFAULT_WINDOWS[check_class(phase_class)] if window is None else float(window)
-    if not (np.isfinite(w) and w > 0):
-        raise MatcherError(f"--window must be a positive number of index units, got {window}")
+    w = DEFAULT_WINDOWS[check_class(phase_class)] if window is None else window
     return np.full(x.shape, w)
 
 

@@ -34,7 +34,40 @@ _FORM = re.compile(r"^(\d{2,7})-(\d{2})-(\d)$")
 
 
 def check_digit(body: str) -> int:
-    """The check digit for the digits before it (hyphens ignored)."""
+    r"""The check digit of a CAS Registry Number from the digits before it [1]_.
+
+    .. math::
+
+        R = \left( \sum_{i=1}^{k} i \cdot d_i \right) \bmod 10
+
+    with :math:`d_1` the digit just left of the check digit, :math:`d_k` the first.
+
+    Parameters
+    ----------
+    body : str
+        The digits before the check digit; hyphens and other non-digits are ignored
+
+    Returns
+    -------
+    R : int
+        The check digit, 0-9
+
+    Examples
+    --------
+    The example CAS itself gives (water, 7732-18-5, from memory of the
+    description cited below): 8·1 + 1·2 + 2·3 + 3·4 + 7·5 + 7·6 = 105 → 5.
+
+    >>> check_digit("7732-18")
+    5
+    >>> check_digit("64-17")        # ethanol, 64-17-5 (common reference value)
+    5
+
+    References
+    ----------
+    .. [1] Chemical Abstracts Service. "CAS Registry Number: Check Digit
+       Verification." CAS, a division of the American Chemical Society,
+       https://www.cas.org (checked from memory, not fetched).
+    """
     digits = [int(c) for c in str(body) if c.isdigit()]
     return sum(i * d for i, d in enumerate(reversed(digits), start=1)) % 10
 

@@ -23,15 +23,9 @@ highly-polar       biscyanopropyl polysiloxane and similar         > 3000       
 
 from __future__ import annotations
 
-from .errors import MatcherError
+from .rules import PHASE_CLASSES, check_class  # the class names and their check are declared in matcher.rules
 
-PHASE_CLASSES: tuple[str, ...] = (
-    "nonpolar",
-    "slightly-polar",
-    "mid-polar",
-    "polar",
-    "highly-polar",
-)
+__all__ = ["PHASE_CLASSES", "check_class", "DEFAULT_WINDOWS", "MCREYNOLDS_SUM_UPPER", "NEIGHBOUR_CLASS", "default_window"]
 
 #: Default half-widths of the index tolerance window (common practice).
 DEFAULT_WINDOWS: dict[str, float] = {
@@ -59,30 +53,6 @@ NEIGHBOUR_CLASS: dict[str, str] = {
     "polar": "highly-polar",
     "highly-polar": "polar",
 }
-
-_ALIASES = {
-    "non-polar": "nonpolar",
-    "apolar": "nonpolar",
-    "semi-polar": "slightly-polar",
-    "slightlypolar": "slightly-polar",
-    "slightly polar": "slightly-polar",
-    "mid polar": "mid-polar",
-    "midpolar": "mid-polar",
-    "intermediate": "mid-polar",
-    "highly polar": "highly-polar",
-    "highlypolar": "highly-polar",
-}
-
-
-def check_class(name: str) -> str:
-    """Return the canonical class name or raise a one-line error listing the valid ones."""
-    key = " ".join(str(name).strip().lower().replace("_", "-").split())
-    key = _ALIASES.get(key, key)
-    if key not in PHASE_CLASSES:
-        raise MatcherError(
-            f"unknown phase class {name!r}; use one of: {', '.join(PHASE_CLASSES)}"
-        )
-    return key
 
 
 def default_window(phase_class: str) -> float:

@@ -65,6 +65,7 @@ import numpy as np
 from .classes import DEFAULT_WINDOWS, check_class
 from .errors import LibraryError, MatcherError, RefusedChange
 from .results_reader import read_peak
+from .rules import check_mode
 
 #: Similarity (0-100) of matching keys at or above which a new name counts as close to a library name.
 CLOSE_SCORE = 88.0
@@ -228,10 +229,7 @@ def _clean(name, phase_class, ri, formula, cas, inchikey, date, mode) -> dict:
             raise MatcherError(f"not an ISO date (YYYY-MM-DD): {date!r}") from None
     else:
         out["date"] = datetime.now(timezone.utc).date().isoformat()
-    m = (mode or "programmed").strip().lower()
-    if m not in ("programmed", "isothermal"):
-        raise MatcherError(f"mode must be programmed or isothermal, got {mode!r}")
-    out["mode"] = m
+    out["mode"] = check_mode(mode)
     return out
 
 

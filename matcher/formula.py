@@ -69,12 +69,48 @@ def parse_formula(text: str) -> dict[str, int]:
 
 
 def nominal_mass(text: str) -> int:
-    """Nominal (integer) molecular mass of a formula."""
+    r"""Nominal (integer) molecular mass of a formula [1]_.
+
+    .. math::
+
+        M_{nom} = \sum_e n_e \, A_e
+
+    with :math:`n_e` the count of element :math:`e` and :math:`A_e` the mass
+    number of its most abundant isotope (:data:`NOMINAL_ISOTOPE_MASS`: C 12,
+    H 1, N 14, O 16, Cl 35, Br 79 ...).
+
+    Parameters
+    ----------
+    text : str
+        Molecular formula, e.g. ``C10H16`` or ``CH3(CH2)4OH``
+
+    Returns
+    -------
+    mass : int
+        Nominal mass, the m/z of the all-light-isotope molecular ion, [Da]
+
+    Examples
+    --------
+    Monoterpene hydrocarbons C10H16 (limonene, the pinenes) show m/z 136, a
+    fact of the trade: 10·12 + 16·1 = 136. Chlorobenzene: 6·12 + 5·1 + 35 = 112.
+
+    >>> nominal_mass("C10H16"), nominal_mass("C6H5Cl"), nominal_mass("C10H18O")
+    (136, 112, 154)
+
+    References
+    ----------
+    .. [1] IUPAC. Compendium of Chemical Terminology (the "Gold Book"),
+       entry "nominal mass"; 2nd ed., Blackwell, 1997 (from memory).
+    """
     return sum(NOMINAL_ISOTOPE_MASS[el] * k for el, k in parse_formula(text).items())
 
 
 def carbon_count(text: str) -> int:
-    """Number of carbon atoms (``-1`` if the formula cannot be parsed)."""
+    """Number of carbon atoms (``-1`` if the formula cannot be parsed).
+
+    >>> carbon_count("C15H24"), carbon_count("not a formula")
+    (15, -1)
+    """
     try:
         return parse_formula(text).get("C", 0)
     except ValueError:

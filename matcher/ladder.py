@@ -39,10 +39,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import InputError, MatcherError
+from .rules import MAX_RT_MIN  # noqa: F401 - largest accepted retention time, minutes (declared in matcher.rules)
 from .series import SERIES, check_series
 
-#: Largest accepted retention time, minutes (a week-long run is not a GC run).
-MAX_RT_MIN = 10_000.0
 #: Largest accepted chain length.
 MAX_CARBONS = 200
 #: Largest accepted assigned index.
@@ -79,12 +78,12 @@ class Ladder:
 
 def read_ladder(path, *, series: str | None = None, rt_unit: str | None = None,
                 overrides: dict[str, str] | None = None) -> Ladder:
-    """Read and hard-check a ladder file; see the module docstring."""
+    """Read and hard-check a ladder: a file or a pandas DataFrame (same checks); see the module docstring."""
     from .peaks import time_unit
     from .series import assigned_index, lee_index
-    from .tables import load_table, map_headers, numbers, texts
+    from .tables import as_table, map_headers, numbers, texts
 
-    raw = load_table(path, what="ladder")
+    raw = as_table(path, what="ladder")
     cols = map_headers(raw, ALIASES, overrides)
     if "rt" not in cols:
         raise InputError(f"the ladder has no retention-time column 'rt'; its header has: {', '.join(raw.header)}",

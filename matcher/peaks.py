@@ -1,6 +1,6 @@
 """The peak table reader: one run's peaks, with whatever columns the lab exported.
 
-Canonical columns (DESIGN §4): ``peak`` (id), ``rt`` and/or ``ri``; optional
+Canonical columns (docs/formats.md, "Peak table"): ``peak`` (id), ``rt`` and/or ``ri``; optional
 ``mol_ion`` (nominal m/z), ``ions`` (key ions separated by spaces, commas or
 semicolons), ``hit`` (name from the lab's spectral search), ``hit_score``
 (0-100) and ``area``. Header spellings commonly seen in instrument exports
@@ -67,10 +67,9 @@ _MINUTES = re.compile(r"\bmin\b|\bmins\b|\bminutes?\b|[\[\(]\s*min\s*[\]\)]", re
 def time_unit(header: str, rt_unit: str | None = None) -> tuple[str, str]:
     """The unit (``'min'`` or ``'s'``) of a time column and how it was decided."""
     if rt_unit is not None:
-        u = str(rt_unit).strip().lower()
-        u = {"min": "min", "minutes": "min", "m": "min", "s": "s", "sec": "s", "seconds": "s"}.get(u)
-        if u is None:
-            raise InputError(f"--rt-unit must be 'min' or 's', got {rt_unit!r}")
+        from .rules import check_rt_unit
+
+        u = check_rt_unit(rt_unit)
         return u, f"option (--rt-unit {u})"
     h = str(header).replace("_", " ")
     if _SECONDS.search(h):
@@ -145,10 +144,13 @@ def content_checksum(peak, rt, ri, mol_ion, ions, hit, hit_score, area) -> str:
 
 
 def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | None = None) -> PeakTable:
-    """Read and check a peak table (CSV, TSV, semicolon CSV or ``.xlsx``)."""
-    from .tables import echo, load_table, map_headers, numbers, texts
+    """Read and check a peak table: a file (CSV, TSV, semicolon CSV or ``.xlsx``) or a pandas DataFrame.
 
-    raw = load_table(path, what="peak table")
+    A DataFrame gets exactly the checks a file gets (see :func:`matcher.tables.from_frame`).
+    """
+    from .tables import as_table, echo, map_headers, numbers, texts
+
+    raw = as_table(path, what="peak table")
     cols = map_headers(raw, ALIASES, overrides)
     if "rt" not in cols and "ri" not in cols:
         raise InputError(

@@ -65,7 +65,11 @@ class Phase:
 
 
 def mcreynolds_sum(x: float, y: float, z: float, u: float, s: float) -> float:
-    """The sum of the five McReynolds constants (finite numbers required)."""
+    """The sum of the five McReynolds constants (finite numbers required), [-].
+
+    >>> mcreynolds_sum(119, 158, 162, 243, 202)
+    884.0
+    """
     vals = [float(v) for v in (x, y, z, u, s)]
     if not all(math.isfinite(v) for v in vals):
         raise MatcherError("McReynolds constants must be five finite numbers")
@@ -73,7 +77,43 @@ def mcreynolds_sum(x: float, y: float, z: float, u: float, s: float) -> float:
 
 
 def classify(x: float, y: float, z: float, u: float, s: float) -> str:
-    """Polarity class of a phase from its five McReynolds constants (see module doc)."""
+    r"""Polarity class of a stationary phase from its five McReynolds constants [1]_.
+
+    .. math::
+
+        \Sigma = x' + y' + z' + u' + s', \qquad \Delta I = I_{phase} - I_{squalane}
+
+    each constant the index difference of one probe (benzene, 1-butanol,
+    2-pentanone, 1-nitropropane, pyridine) between the phase and squalane at
+    120 °C. The class is the first whose upper bound exceeds :math:`\Sigma`:
+    < 250 nonpolar, < 450 slightly-polar, < 1600 mid-polar, < 3000 polar,
+    above highly-polar (common practice, no single source; approximate).
+
+    Parameters
+    ----------
+    x, y, z, u, s : float
+        The McReynolds constants x' y' z' u' s', [-] (index units)
+
+    Returns
+    -------
+    phase_class : str
+        One of :data:`matcher.rules.PHASE_CLASSES`
+
+    Examples
+    --------
+    A 50 % phenyl / 50 % methyl polysiloxane with 119 158 162 243 202
+    (values from memory of McReynolds' table [1]_), Σ 884; a polyethylene
+    glycol with 322 536 368 572 510 (from memory), Σ 2308; squalane, the
+    reference, 0 by definition:
+
+    >>> classify(119, 158, 162, 243, 202), classify(322, 536, 368, 572, 510), classify(0, 0, 0, 0, 0)
+    ('mid-polar', 'polar', 'nonpolar')
+
+    References
+    ----------
+    .. [1] McReynolds, W. O. "Characterization of Some Liquid Phases."
+       Journal of Chromatographic Science 8, no. 12 (1970): 685-91.
+    """
     total = mcreynolds_sum(x, y, z, u, s)
     for cls in PHASE_CLASSES:
         if total < MCREYNOLDS_SUM_UPPER[cls]:
@@ -100,7 +140,11 @@ def catalog() -> tuple[Phase, ...]:
 
 
 def find_phase(name: str) -> Phase | None:
-    """The catalog entry with this name (case and spacing ignored), or None."""
+    """The catalog entry with this name (case and spacing ignored), or None.
+
+    >>> find_phase("  SQUALANE ").phase_class, find_phase("no such phase")
+    ('nonpolar', None)
+    """
     key = " ".join(str(name).lower().split())
     for p in catalog():
         if " ".join(p.name.lower().split()) == key:

@@ -1,68 +1,106 @@
 """One unknown against the house library: the importable form of ``matcher query``.
 
+:func:`query` returns a :class:`QueryResult`: the candidates inside the
+window as records (:func:`matcher.results.candidate_record`, the same record
+the screen JSON uses), their ``not_in_library`` complement, and provenance;
+``to_dict()`` is the document ``matcher query --json`` prints (described in
+``docs/formats.md``). Every setting is checked by :mod:`matcher.rules`.
+
 >>> from matcher.snapshot import CompoundTable, build_snapshot
 >>> snap = build_snapshot(
 ...     CompoundTable.from_records([{"id": 1, "name": "limonene", "formula": "C10H16"},
 ...                                 {"id": 2, "name": "decane", "formula": "C10H22"}]),
 ...     np.array([1, 1, 2]), np.array(["slightly-polar"] * 3), np.array([1029.0, 1031.0, 1000.0]))
 >>> answer = query(1031, "slightly-polar", mol_ion=136, snapshot=snap)
->>> [c["name"] for c in answer["candidates"]]
+>>> [c["name"] for c in answer.candidates]
 ['limonene']
->>> round(sum(c["probability"] for c in answer["candidates"]) + answer["not_in_library"], 9)
+>>> round(sum(c["probability"] for c in answer.candidates) + answer.not_in_library, 9)
 1.0
+>>> query(1031, "slightly-polar", top=0, snapshot=snap)
+Traceback (most recent call last):
+...
+matcher.errors.MatcherError: --top must be at least 1
 """
 
 from __future__ import annotations
 
-from typing import Sequence
+from dataclasses import dataclass, field
+from typing import Any, Sequence
 
 import numpy as np
 
 from . import CAUTION
+from . import rules
 from .candidates import window_description
-from .classes import check_class
 from .evidence import DEFAULT_MEASUREMENT_SD, DEFAULT_PRESENCE, Model
+from .results import candidate_record, plain
 from .unlisted import UnlistedField, crowding_density
 from .shortlist import PeakInput, Shortlist, neighbour_of, prepare, shortlist
 from .snapshot import LibrarySnapshot
 
 
-def _f(v, nd=4):
-    v = float(v)
-    return None if not np.isfinite(v) else round(v, nd) + 0.0  # + 0.0 turns -0.0 into 0.0
-
-
 def candidate_records(sl: Shortlist, rows: np.ndarray) -> list[dict]:
-    """JSON-ready candidate dicts (with an ``evidence`` object) for shortlist rows."""
+    """Candidate records (see :func:`matcher.results.candidate_record`) for shortlist rows with a rank."""
     c = sl.columns
     out = []
     for i in rows:
         if c["rank"][i] == 0:
             continue
-        out.append({
-            "rank": int(c["rank"][i]),
-            "name": str(c["name"][i]),
-            "cas": str(c["cas"][i]) or None,
-            "formula": str(c["formula"][i]) or None,
-            "library_ri": _f(c["library_ri"][i], 2),
-            "delta_ri": _f(c["delta_ri"][i], 2),
-            "score": _f(c["score"][i], 3),
-            "probability": _f(c["probability"][i], 12),
-            "flags": [f for f in str(c["flags"][i]).split(";") if f],
-            "evidence": {
-                "index": _f(c["ev_index"][i], 3),
-                "mol_ion": _f(c["ev_mol_ion"][i], 3),
-                "ions": _f(c["ev_ions"][i], 3),
-                "hit": _f(c["ev_hit"][i], 3),
-                "library_sd": _f(c["library_sd"][i], 3),
-                "library_n": int(c["library_n"][i]),
-                "combined_sd": _f(c["sd"][i], 3),
-                "nominal_mass": _f(c["nominal_mass"][i], 0),
-                "cross_class": bool(c["cross_class"][i]),
-                "predicted": bool(c["predicted"][i]),
-            },
-        })
+        out.append(candidate_record(lambda k, i=i: c[k][i], [f for f in str(c["flags"][i]).split(";") if f]))
     return out
+
+
+@dataclass
+class QueryResult:
+    """The ranked shortlist for one index.
+
+    ``candidates`` are records in rank order (name, library index, deviation,
+    probability, flags, ``evidence`` ...); their probabilities plus
+    ``not_in_library`` sum to 1 over the whole window (``top`` only shortens
+    the list).
+    """
+
+    ri: float
+    phase_class: str
+    window: dict[str, Any]
+    candidates: list[dict[str, Any]]
+    not_in_library: float
+    candidates_in_window: int
+    model: dict[str, Any] = field(default_factory=dict)
+    library: dict[str, Any] = field(default_factory=dict)
+    notes: list[str] = field(default_factory=list)
+    caution: str = CAUTION
+
+    @property
+    def best(self) -> dict[str, Any] | None:
+        """The rank-1 candidate, or ``None`` when nothing lies inside the window."""
+        return self.candidates[0] if self.candidates else None
+
+    @property
+    def table(self):
+        """The candidates as a pandas DataFrame, evidence as ``ev_*`` columns and flags joined by ``;``."""
+        import pandas as pd
+
+        from .results import CANDIDATE_KEYS, EVIDENCE_COLUMNS
+
+        rows = [{**{k: c[k] for k in CANDIDATE_KEYS}, "flags": ";".join(c["flags"]),
+                 **{e: c["evidence"].get(e[3:]) for e in EVIDENCE_COLUMNS}} for c in self.candidates]
+        return pd.DataFrame(rows, columns=list(CANDIDATE_KEYS) + ["flags"] + list(EVIDENCE_COLUMNS))
+
+    def to_dict(self) -> dict[str, Any]:
+        """The document ``matcher query --json`` prints."""
+        return {
+            "ri": self.ri,
+            "class": self.phase_class,
+            "window": dict(self.window),
+            "candidates": [dict(c) for c in self.candidates],
+            "not_in_library": self.not_in_library,
+            "candidates_in_window": self.candidates_in_window,
+            "model": dict(self.model),
+            "library": dict(self.library),
+            "notes": list(self.notes),
+            "caution": self.caution,
+        }
 
 
 def query(
@@ -83,23 +121,29 @@ def query(
     measurement_sd: float | None = None,
     presence: float = DEFAULT_PRESENCE,
     crowding: str | float | None = None,
-) -> dict:
-    """Ranked shortlist for one index; returns the document ``matcher query --json`` prints.
+) -> QueryResult:
+    """Ranked shortlist for one index against one class of the library; see :class:`QueryResult`.
 
-    Candidates' ``probability`` plus ``not_in_library`` sum to 1 over the
-    whole window (``top`` only shortens the list). Without a run the
+    ``db`` names the library (path or URL; default ``$MATCHER_DB``, then the
+    user data folder); ``snapshot`` gives one already read. Without a run the
     not-in-library alternative uses the crowding prior (``crowding``: a name
     of :data:`matcher.unlisted.CROWDING` or unlisted peaks per 100 index
     units) and each listed compound the presence prior ``presence``.
+    Settings are checked by :mod:`matcher.rules` (and :mod:`matcher.limits`);
+    a bad one raises :class:`~matcher.errors.MatcherError`.
     """
-    from .limits import check_mol_ion, check_ri, check_sd
+    from .limits import check_mol_ion, check_sd
 
-    phase_class = check_class(phase_class)
-    ri = check_ri(ri, "retention index")
+    phase_class = rules.check_class(phase_class)
+    ri = rules.check_ri(ri)
     if measurement_sd is not None:
         measurement_sd = check_sd(measurement_sd)
     if mol_ion is not None:
         mol_ion = check_mol_ion(mol_ion)
+    window, window_percent = rules.check_window(window, window_percent)
+    top = rules.check_top(top)
+    ions = rules.check_ions(ions)
+    hit_score = rules.check_hit_score(hit_score)
     if snapshot is None:
         from .store.snapshot_loader import load_snapshot
 
@@ -110,25 +154,23 @@ def query(
     peaks = PeakInput(
         np.array([ri]),
         mol_ion=None if mol_ion is None else np.array([float(mol_ion)]),
-        ions=None if not ions else [tuple(int(i) for i in ions)],
+        ions=None if not ions else [ions],
         hit=None if not hit else np.array([hit], dtype=object),
-        hit_score=None if hit_score is None else np.array([float(hit_score)]),
+        hit_score=None if hit_score is None else np.array([hit_score]),
     )
     lam0 = crowding_density(crowding)
     model = Model(sd, presence=float(presence), unlisted=UnlistedField.flat(lam0))
     sl = shortlist(home, peaks, model, window=window, window_percent=window_percent,
                    top=top, neighbour=neighbour)
     rows = np.arange(len(sl.columns["peak"]))
-    doc = {
-        "ri": ri,
-        "class": phase_class,
-        "window": window_description(phase_class, window, window_percent) | {"half_width": _f(sl.window[0], 3)},
-        "candidates": candidate_records(sl, rows),
-        "not_in_library": _f(sl.not_in_library[0], 12),
-        "candidates_in_window": int(sl.candidate_count[0]),
-        "model": {"index_scatter": sd, "presence": float(presence), "unlisted_per_100": round(lam0 * 100, 3)},
-        "library": {"location": snapshot.source, "revision": snapshot.revision, "entries": len(home.entries)},
-        "notes": sl.notes,
-        "caution": CAUTION,
-    }
-    return doc
+    return QueryResult(
+        ri=ri,
+        phase_class=phase_class,
+        window=window_description(phase_class, window, window_percent) | {"half_width": plain(sl.window[0])},
+        candidates=candidate_records(sl, rows),
+        not_in_library=plain(sl.not_in_library[0]),
+        candidates_in_window=int(sl.candidate_count[0]),
+        model={"index_scatter": sd, "presence": float(presence), "unlisted_per_100": round(lam0 * 100, 3)},
+        library={"location": snapshot.source, "revision": snapshot.revision, "entries": len(home.entries)},
+        notes=list(sl.notes),
+    )

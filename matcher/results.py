@@ -4,7 +4,21 @@ A :class:`ScreenResult` holds one :class:`RunResult` per peak file. Each run's
 ``table`` is a pandas DataFrame with **one row per peak and candidate** (a
 peak with no candidate has one row with an empty ``rank`` and the
 ``no-candidate`` flag). Columns, in order: :data:`SHORTLIST_COLUMNS` (the
-contract of DESIGN.md §4), then :data:`DETAIL_COLUMNS`.
+contract, described in ``docs/formats.md``), then :data:`DETAIL_COLUMNS`.
+
+This module owns the output columns and the one conversion of a shortlist
+row into a candidate record (:func:`candidate_record`), used alike by the
+``matcher query --json`` document, the screen JSON and anything else that
+lists candidates. A :class:`ScreenResult` writes itself
+(:meth:`ScreenResult.to_csv`, ``to_json``, ``to_xlsx``, ``to_html``) and
+shows all runs as one DataFrame (:attr:`ScreenResult.table`).
+
+>>> row = {"rank": 1, "name": "limonene", "cas": "", "formula": "C10H16", "nominal_mass": 136.0,
+...        "library_ri": 1030.0, "library_sd": 1.5, "library_n": 4, "delta_ri": 1.0, "score": 2.5,
+...        "probability": 0.8, "ev_index": 1.2, "ev_mol_ion": 1.3, "ev_ions": 0.0, "ev_hit": 0.0}
+>>> rec = candidate_record(row.get, ["in-window"])
+>>> rec["cas"], rec["nominal_mass"], rec["flags"], rec["evidence"]
+(None, 136, ['in-window'], {'index': 1.2, 'mol_ion': 1.3, 'ions': 0.0, 'hit': 0.0})
 
 Evidence columns hold the natural-log likelihood ratio each hint contributes
 (0 where the hint was absent), so a reader can see why a candidate ranks
@@ -13,10 +27,12 @@ where it does.
 
 from __future__ import annotations
 
+import math
+import os
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Callable, Iterable
 
-#: Contract columns of the shortlist (DESIGN.md §4), in output order.
+#: Contract columns of the shortlist (docs/formats.md, "Screen output"), in output order.
 SHORTLIST_COLUMNS: tuple[str, ...] = (
     "peak", "rt", "ri", "class", "rank", "name", "cas", "library_ri",
     "delta_ri", "score", "probability", "flags",
@@ -37,6 +53,72 @@ DETAIL_COLUMNS: tuple[str, ...] = (
     "ev_ions",          # log LR of the key-ion hint
     "ev_hit",           # log LR of the spectral-search name hint
 )
+
+
+#: The evidence columns (natural-log likelihood ratios against not-in-library); a
+#: candidate record's ``evidence`` object holds them without the ``ev_`` prefix.
+EVIDENCE_COLUMNS: tuple[str, ...] = ("ev_index", "ev_mol_ion", "ev_ions", "ev_hit")
+
+#: Keys of one candidate record (query and screen JSON), in order; then ``flags`` and ``evidence``.
+CANDIDATE_KEYS: tuple[str, ...] = ("rank", "name", "cas", "formula", "nominal_mass", "library_ri", "library_sd",
+                                   "library_n", "delta_ri", "score", "probability")
+
+#: Keys of one peak in the screen JSON, in order; then ``flags`` and ``candidates``.
+PEAK_KEYS: tuple[str, ...] = ("peak", "rt", "ri", "ri_measured", "class", "mol_ion", "hit", "hit_score",
+                              "not_in_library")
+
+_INTEGER_KEYS = ("rank", "library_n", "nominal_mass")
+_TEXT_OR_NONE = ("cas", "formula")
+
+
+def plain(value: Any) -> Any:
+    """A JSON-ready scalar: NumPy scalars unwrapped, NaN/inf and missing values as ``None``, -0.0 as 0.0.
+
+    >>> plain(float("nan")), plain(-0.0), plain("x")
+    (None, 0.0, 'x')
+    """
+    if value is None or isinstance(value, (bool, str)):
+        return value
+    if type(value).__name__ in ("NAType", "NaTType"):
+        return None
+    if hasattr(value, "item") and not isinstance(value, (int, float)):
+        try:
+            value = value.item()  # a NumPy scalar
+        except (TypeError, ValueError):
+            return str(value)
+        if isinstance(value, (bool, str)) or value is None:
+            return value
+    if isinstance(value, int):
+        return int(value)
+    if isinstance(value, float):
+        return float(value) + 0.0 if math.isfinite(value) else None
+    return str(value)
+
+
+def candidate_record(get: Callable[[str], Any], flags: Iterable[str], *,
+                     evidence_columns: Iterable[str] = EVIDENCE_COLUMNS, extra: Iterable[str] = ()) -> dict[str, Any]:
+    """One candidate as a JSON-ready dict, from a shortlist row.
+
+    ``get(column)`` returns the row's value of an output column (for example
+    ``row.get`` of a record, or ``lambda c: columns[c][i]``). Keys:
+    :data:`CANDIDATE_KEYS`, ``flags`` (a list), ``evidence`` (the evidence
+    columns without ``ev_``), then any ``extra`` columns. Empty CAS numbers and
+    formulas become ``None``; ``rank``, ``library_n`` and ``nominal_mass`` are
+    integers.
+    """
+    rec: dict[str, Any] = {}
+    for key in CANDIDATE_KEYS:
+        v = plain(get(key))
+        if key in _TEXT_OR_NONE and v == "":
+            v = None
+        if key in _INTEGER_KEYS and v is not None:
+            v = int(v)
+        rec[key] = v
+    rec["flags"] = list(flags)
+    rec["evidence"] = {c[3:]: plain(get(c)) for c in evidence_columns}
+    for c in extra:
+        rec[c] = plain(get(c))
+    return rec
 
 
 @dataclass
@@ -67,3 +149,61 @@ class ScreenResult:
     tool_version: str
     caution: str
     settings: dict[str, Any] = field(default_factory=dict)  # top, fallback, homologues, adaptive, ...
+
+    # ------------------------------------------------------------------ one table, writers
+    @property
+    def table(self):
+        """All runs' shortlists as one pandas DataFrame (output columns in order, ``run`` tells runs apart)."""
+        from .writers import combined_table
+
+        return combined_table(self)
+
+    def top(self):
+        """The rank-1 row of every peak that has a candidate (a DataFrame)."""
+        t = self.table
+        return t[t["rank"] == 1].reset_index(drop=True)
+
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON document of the screen output (``"content": "shortlist"``)."""
+        from .writers import results_document
+
+        return results_document(self)
+
+    def write(self, path: str | os.PathLike) -> list:
+        """Write the shortlist in the format the suffix names (.csv with its sidecar, .json, .xlsx)."""
+        from .rules import check_shortlist_path
+        from .writers import write_results
+
+        check_shortlist_path(path)
+        return write_results(self, path)
+
+    def to_csv(self, path: str | os.PathLike) -> list:
+        """The shortlist CSV and its provenance sidecar ``path + '.meta.json'``; returns both paths."""
+        from .writers import write_csv
+
+        return write_csv(self, path)
+
+    def to_json(self, path: str | os.PathLike | None = None):
+        """The JSON document written to ``path`` (returns the paths), or as text when no path is given."""
+        from .writers import results_text, write_json
+
+        return results_text(self) if path is None else write_json(self, path)
+
+    def to_xlsx(self, path: str | os.PathLike) -> list:
+        """The workbook (sheets ``shortlist`` and ``runs``)."""
+        from .writers import write_xlsx
+
+        return write_xlsx(self, path)
+
+    def to_html(self, path: str | os.PathLike, *, max_peaks: int = 2000) -> list:
+        """The self-contained HTML report; returns its path."""
+        from pathlib import Path
+
+        from .report_html import write_report
+        from .rules import check_report_path
+
+        check_report_path(path)
+        write_report(self, path, max_peaks=max_peaks)
+        return [Path(path)]
+
+    report = to_html

@@ -50,7 +50,14 @@ def _parse_time_args(times: list[str], rt_unit: str | None) -> np.ndarray:
 
 
 def convert_times(cal, *, times=None, peaks=None, rt_unit: str | None = None, overrides=None) -> dict:
-    """Indices for ``times`` (strings or numbers) or for the peaks of the table at ``peaks``."""
+    """Indices for ``times`` (strings or numbers) or for the peaks of the table ``peaks`` (path or DataFrame)."""
+    from .rules import check_rt_unit
+
+    rt_unit = check_rt_unit(rt_unit)
+    if times is not None and peaks is not None and len(times):
+        from .errors import MatcherError
+
+        raise MatcherError("give retention times as arguments or --peaks FILE (one of the two)")
     if peaks is not None:
         from .peaks import read_peaks
 

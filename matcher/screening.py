@@ -14,12 +14,13 @@ from __future__ import annotations
 import datetime as _dt
 import os
 from dataclasses import dataclass
-from typing import Callable, Sequence
+from typing import Any, Callable, Sequence
 
 import numpy as np
 
 from . import CAUTION, __version__
 from . import flags as F
+from . import rules as R
 from .adaptive import ANCHOR_PROBABILITY, apply_correction
 from .candidates import half_widths, window_description
 from .classes import check_class
@@ -36,40 +37,80 @@ MAX_FIT_PEAKS = 20_000  # peaks used to fit the run model (a seeded sample beyon
 
 @dataclass
 class RunInput:
-    """One run to screen: where its peaks come from and how to turn times into indices."""
+    """One run to screen: its peaks and how to turn times into indices.
 
-    peaks_path: str
-    calibration_path: str | None = None
-    ladder_path: str | None = None
+    ``peaks`` is a peak-table path, a pandas DataFrame or a
+    :class:`~matcher.peaks.PeakTable`; ``calibration`` a saved calibration's
+    path or a :class:`~matcher.calibration.Calibration`; ``ladder`` a ladder
+    path, DataFrame or :class:`~matcher.ladder.Ladder` (fitted here).
+    """
+
+    peaks: Any
+    calibration: Any = None
+    ladder: Any = None
+    label: str | None = None
+
+    @property
+    def peaks_path(self) -> str:  # the name used in messages and outputs
+        return _source_name(self.peaks)
 
 
-def plan_runs(peak_files: Sequence[str], calibration: Sequence[str] | str | None = None,
-              ladder: Sequence[str] | str | None = None) -> list[RunInput]:
-    """Pair peak files with calibrations or ladders: one for all runs, or one per run in order."""
-    cals = [calibration] if isinstance(calibration, str) else list(calibration or [])
-    lads = [ladder] if isinstance(ladder, str) else list(ladder or [])
+def _source_name(item: Any) -> str:
+    if isinstance(item, (str, os.PathLike)):
+        return os.fspath(item)
+    path = getattr(item, "path", None)
+    return str(path) if path else "<DataFrame>"
+
+
+def _as_list(value: Any) -> list:
+    """One item or a sequence of them (a path, a DataFrame and a table count as one item)."""
+    if value is None:
+        return []
+    if isinstance(value, (str, os.PathLike)) or hasattr(value, "iloc") or hasattr(value, "convert") or hasattr(value, "peak") \
+            or hasattr(value, "rt"):
+        return [value]
+    return list(value)
+
+
+def plan_runs(peak_files: Any, calibration: Any = None, ladder: Any = None,
+              labels: Sequence[str] | None = None) -> list[RunInput]:
+    """Pair runs with calibrations or ladders: one for all runs, or one per run in order."""
+    peak_files = _as_list(peak_files)
+    cals = _as_list(calibration)
+    lads = _as_list(ladder)
     if cals and lads:
         raise MatcherError("give either --calibration or --ladder, not both")
     given = cals or lads
     if len(given) not in (0, 1, len(peak_files)):
         raise MatcherError(
             f"{len(given)} calibration/ladder files for {len(peak_files)} runs: give one for all runs or one per run, in the same order")
+    labels = list(labels or [])
+    if labels and len(labels) != len(peak_files):
+        raise MatcherError(f"{len(labels)} labels for {len(peak_files)} runs: give one label per run")
     runs = []
     for k, p in enumerate(peak_files):
         g = given[0] if len(given) == 1 else (given[k] if given else None)
-        runs.append(RunInput(p, g if cals else None, g if lads else None))
+        runs.append(RunInput(p, g if cals else None, g if lads else None, labels[k] if labels else None))
     return runs
 
 
 def _calibrate(run: RunInput, mode: str, dead_time: float | None, rt_unit: str | None):
     from .calibration import Calibration, calibrate
-    from .ladder import read_ladder
+    from .ladder import Ladder, read_ladder
 
-    if run.calibration_path:
-        return Calibration.load(run.calibration_path)
-    if run.ladder_path:
-        return calibrate(read_ladder(run.ladder_path, rt_unit=rt_unit), mode=mode, dead_time=dead_time)
+    if run.calibration is not None:
+        return run.calibration if isinstance(run.calibration, Calibration) else Calibration.load(run.calibration)
+    if run.ladder is not None:
+        lad = run.ladder if isinstance(run.ladder, Ladder) else read_ladder(run.ladder, rt_unit=rt_unit)
+        return calibrate(lad, mode=mode, dead_time=dead_time)
     return None
+
+
+def _label(run: RunInput) -> str:
+    if run.label:
+        return str(run.label)
+    name = _source_name(run.peaks)
+    return "run" if name.startswith("<") else os.path.splitext(os.path.basename(name))[0]
 
 
 def _hints_for_fit(peaks: PeakInput) -> PeakHints:
@@ -398,13 +439,13 @@ def _anchor_entry_sd(home: PreparedClass, ref: np.ndarray) -> np.ndarray:
 
 
 def screen(
-    peak_files: Sequence[str],
+    peak_files: Any,
     phase_class: str,
     *,
     db: str | None = None,
     snapshot: LibrarySnapshot | None = None,
-    calibration: Sequence[str] | str | None = None,
-    ladder: Sequence[str] | str | None = None,
+    calibration: Any = None,
+    ladder: Any = None,
     mode: str = "programmed",
     dead_time: float | None = None,
     rt_unit: str | None = None,
@@ -417,29 +458,39 @@ def screen(
     adaptive: bool = False,
     anchors: str | None = None,
     measurement_sd: float | None = None,
+    labels: Sequence[str] | None = None,
     crowding: str | float | None = None,
     split_peaks: bool = False,
     progress: Callable[[int], None] | None = None,
 ) -> ScreenResult:
-    """Screen runs against one class of the house library; see the module doc."""
-    from .peaks import read_peaks
+    """Screen runs against one class of the house library; see the module doc.
 
+    ``peak_files``: one run or a list of runs, each a peak-table path, a
+    pandas DataFrame or a :class:`~matcher.peaks.PeakTable`. ``calibration``
+    (paths or :class:`~matcher.calibration.Calibration` objects) or
+    ``ladder`` (paths, DataFrames or ladders): one for all runs or one per
+    run. ``labels`` names the runs (default: the file stem, ``run`` for a
+    table in memory). Settings are checked by :mod:`matcher.rules`.
+    """
     from .limits import check_sd
+    from .peaks import PeakTable, read_peaks
     from .unlisted import crowding_density
 
     phase_class = check_class(phase_class)
-    if top is not None and top < 1:
-        raise MatcherError("--top must be at least 1")
+    top = R.check_top(top)
+    window, window_percent = R.check_window(window, window_percent)
+    mode = R.check_mode(mode)
+    rt_unit = R.check_rt_unit(rt_unit)
     crowding_density(crowding)  # a bad crowding value fails before any file is read
     if measurement_sd is not None:
         measurement_sd = check_sd(measurement_sd)
-    plan = plan_runs(list(peak_files), calibration, ladder)
+    plan = plan_runs(peak_files, calibration, ladder, labels)
     if not plan:
         raise MatcherError("no peak file given")
     # read and convert every run before any heavy work, so a bad file fails fast
     loaded = []
     for run in plan:
-        table = read_peaks(run.peaks_path, rt_unit=rt_unit, overrides=header_map)
+        table = run.peaks if isinstance(run.peaks, PeakTable) else read_peaks(run.peaks, rt_unit=rt_unit, overrides=header_map)
         cal = None
         extrap = np.zeros(len(table.peak), dtype=bool)
         if table.has_ri:
@@ -462,7 +513,7 @@ def screen(
     runs: list[RunResult] = []
     labels_seen: dict[str, int] = {}
     for run, table, cal, x_raw, extrap in loaded:
-        label = os.path.splitext(os.path.basename(run.peaks_path))[0]
+        label = _label(run)
         if label in labels_seen:
             labels_seen[label] += 1
             label = f"{label}-{labels_seen[label]}"

@@ -73,6 +73,11 @@ LEE_INDEX: dict[str, float] = {
 
 
 def check_series(key: str) -> Series:
+    """The :class:`Series` for a key (case ignored), or a one-line error naming the keys.
+
+    >>> check_series("FAME").label
+    'saturated straight-chain fatty-acid methyl esters'
+    """
     k = str(key).strip().lower()
     if k not in SERIES:
         raise MatcherError(f"unknown reference series {key!r}; use one of {', '.join(SERIES)}")
@@ -80,12 +85,76 @@ def check_series(key: str) -> Series:
 
 
 def lee_index(name: str) -> float | None:
-    """Lee index of a PAH standard by name (None if it is not one of the four)."""
+    """Lee retention index of a PAH standard by name (None if it is not one of the four) [1]_.
+
+    Parameters
+    ----------
+    name : str
+        Naphthalene, phenanthrene, chrysene or picene (case and spacing ignored)
+
+    Returns
+    -------
+    index : float or None
+        200, 300, 400 or 500, [-]
+
+    Examples
+    --------
+    The four standards as defined in [1]_:
+
+    >>> [lee_index(n) for n in ("naphthalene", "Phenanthrene", "chrysene", "picene", "pyrene")]
+    [200.0, 300.0, 400.0, 500.0, None]
+
+    References
+    ----------
+    .. [1] Lee, M. L., D. L. Vassilaros, C. M. White, and M. Novotny.
+       "Retention Indices for Programmed-Temperature Capillary-Column Gas
+       Chromatography of Polycyclic Aromatic Hydrocarbons." Analytical
+       Chemistry 51, no. 6 (1979): 768-73.
+    """
     return LEE_INDEX.get(" ".join(str(name).lower().split()))
 
 
 def assigned_index(key: str, *, carbons=None, index=None, names=None) -> np.ndarray:
-    """Assigned index of each standard (no validation of values; see :mod:`matcher.ladder`)."""
+    r"""Assigned index of each standard of a reference series (values not validated; see :mod:`matcher.ladder`).
+
+    .. math::
+
+        I = 100 \, n_C \;\text{(n-alkanes [1]_; FAMEs as ECL × 100 [2]_)}, \qquad
+        I = I_{Lee} \;\text{(PAHs [3]_)}
+
+    Parameters
+    ----------
+    key : str
+        ``alkanes``, ``fame``, ``pah`` or ``custom``
+    carbons : array-like, optional
+        Chain lengths (alkanes, fame), [-]
+    index : array-like, optional
+        Assigned indices given directly (any series), [-]
+    names : sequence of str, optional
+        Standard names (pah)
+
+    Returns
+    -------
+    index : numpy.ndarray
+        Assigned index of each standard, [-]
+
+    Examples
+    --------
+    By definition an n-alkane with n carbons has index 100 n on every phase [1]_;
+    methyl hexadecanoate has ECL 16.00 [2]_:
+
+    >>> assigned_index("alkanes", carbons=[8, 9, 12]).tolist(), assigned_index("fame", carbons=[16]).tolist()
+    ([800.0, 900.0, 1200.0], [1600.0])
+
+    References
+    ----------
+    .. [1] Kováts, E. Helvetica Chimica Acta 41 (1958): 1915-32.
+    .. [2] Miwa, T. K., K. L. Mikolajczak, F. R. Earle, and I. A. Wolff.
+       "Gas Chromatographic Characterization of Fatty Acids. Identification
+       Constants for Mono- and Dicarboxylic Methyl Esters." Analytical
+       Chemistry 32, no. 13 (1960): 1739-42.
+    .. [3] Lee, M. L., et al. Analytical Chemistry 51 (1979): 768-73.
+    """
     s = check_series(key)
     if index is not None:
         return np.asarray(index, dtype=np.float64)

@@ -56,7 +56,8 @@ from .classes import DEFAULT_WINDOWS, PHASE_CLASSES
 #: Per-class floor of the library spread (index units): 0.15 × the default window.
 SPREAD_FLOOR: dict[str, float] = {k: 0.15 * v for k, v in DEFAULT_WINDOWS.items()}
 
-_MAD_TO_SD = 1.4826  # consistency constant of the MAD for a normal distribution
+#: Consistency constant of the median absolute deviation for a normal distribution (1 / Φ⁻¹(3/4)).
+MAD_TO_SD = 1.4826
 
 
 @dataclass(frozen=True)
@@ -190,7 +191,7 @@ def summarise(
     sd = np.asarray(sd, dtype=float)
     total = float(n.sum())
     centre = _weighted_median(ri, n)
-    between = _MAD_TO_SD * _weighted_median(np.abs(ri - centre), n) if len(ri) > 1 else 0.0
+    between = MAD_TO_SD * _weighted_median(np.abs(ri - centre), n) if len(ri) > 1 else 0.0
     known = ~np.isnan(sd) & (n > 1)
     within = 0.0
     if known.any():

@@ -658,4 +658,59 @@ def map_headers(
     return result
 
 
-__all__ = ["RawTable", "load_table", "numbers", "texts", "map_headers", "normalize_header", "strip_units", "echo"]
+__all__ = ["RawTable", "load_table", "numbers", "texts", "map_headers", "normalize_header", "strip_units", "echo",
+           "from_frame", "as_table"]
+
+
+# --------------------------------------------------------------------------- tables already in memory
+
+#: How an in-memory table is named in messages when it has no name of its own.
+FRAME_NAME = "<DataFrame>"
+
+
+def _cell_text(value) -> str:
+    """One in-memory cell as the text a file would hold (missing values as empty cells)."""
+    if value is None or isinstance(value, str):
+        return value or ""
+    if type(value).__name__ in ("NAType", "NaTType"):
+        return ""
+    if isinstance(value, (list, tuple)):
+        return " ".join(_cell_text(v) for v in value)
+    if hasattr(value, "item") and not isinstance(value, (int, float)):
+        value = value.item()  # a NumPy scalar
+    if isinstance(value, float):
+        if value != value:
+            return ""
+        return repr(value) if not value.is_integer() else str(int(value)) if abs(value) < 1e15 else repr(value)
+    return str(value)
+
+
+def from_frame(frame: "pd.DataFrame", *, name: str = FRAME_NAME) -> RawTable:
+    """A pandas DataFrame as a :class:`RawTable`, so every reader accepts tables already in memory.
+
+    Cells become the text a CSV would hold (NaN and ``None`` empty, whole
+    floats without ``.0``, lists of ions joined by spaces); the readers then
+    apply exactly the checks they apply to a file, and messages name the data
+    row (from 1) and column of the frame.
+
+    >>> import pandas as pd
+    >>> raw = from_frame(pd.DataFrame({"peak": [1, 2], "RT (min)": [5.25, float("nan")]}))
+    >>> raw.header, raw.frame["RT (min)"].tolist(), numbers(raw, "RT (min)", required=False).tolist()
+    (['peak', 'RT (min)'], ['5.25', ''], [5.25, nan])
+    """
+    import pandas as pd
+
+    header = _clean_header([str(c) for c in frame.columns], name, 1)
+    data = {h: [_cell_text(v) for v in frame[c].tolist()] for h, c in zip(header, frame.columns)}
+    cells = pd.DataFrame(data, columns=header, dtype=object) if len(frame) else pd.DataFrame(
+        {h: pd.Series([], dtype=object) for h in header})
+    return RawTable(path=name, frame=cells, header=header, first_line=1, lines=list(range(2, len(frame) + 2)))
+
+
+def as_table(source, *, what: str = "table") -> RawTable:
+    """A :class:`RawTable` from a file path, a pandas DataFrame or a :class:`RawTable`."""
+    if isinstance(source, RawTable):
+        return source
+    if hasattr(source, "columns") and hasattr(source, "iloc"):
+        return from_frame(source)
+    return load_table(source, what=what)

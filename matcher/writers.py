@@ -67,13 +67,15 @@ import pandas as pd
 
 from .atomic import atomic_write
 from .errors import MatcherError
-from .results import DETAIL_COLUMNS, SHORTLIST_COLUMNS, RunResult, ScreenResult
+from .results import (DETAIL_COLUMNS, EVIDENCE_COLUMNS, PEAK_KEYS, SHORTLIST_COLUMNS, RunResult, ScreenResult,
+                      candidate_record)
+from .rules import SHORTLIST_SUFFIXES
 from .run_summary import split_flags, summarise_table
 from .safe_text import neutralise, spreadsheet_text
 from .store.location import mask_secrets, mask_url
 
-#: Output suffixes and what they hold.
-OUTPUT_TYPES: dict[str, str] = {".csv": "CSV table", ".json": "JSON document", ".xlsx": "Excel workbook"}
+#: Output suffixes (:data:`matcher.rules.SHORTLIST_SUFFIXES`) and what they hold.
+OUTPUT_TYPES: dict[str, str] = dict(zip(SHORTLIST_SUFFIXES, ("CSV table", "JSON document", "Excel workbook")))
 
 #: Name and version of the output document format (JSON and CSV sidecar).
 FORMAT_NAME = "matcher.screen-output"
@@ -91,9 +93,6 @@ PROBABILITY_COLUMNS = ("probability", "not_in_library")
 PROBABILITY_DECIMALS = 6
 EXCEL_MAX_ROWS = 1_048_576
 
-_CANDIDATE_KEYS = ("rank", "name", "cas", "formula", "nominal_mass", "library_ri", "library_sd",
-                   "library_n", "delta_ri", "score", "probability")
-_PEAK_KEYS = ("peak", "rt", "ri", "ri_measured", "class", "mol_ion", "hit", "hit_score", "not_in_library")
 
 
 # --------------------------------------------------------------------------- tables
@@ -274,7 +273,7 @@ def _peaks(table: pd.DataFrame) -> list[dict[str, Any]]:
     if table is None or len(table) == 0:
         return []
     records = table.to_dict("records")
-    ev_cols = [c for c in table.columns if c.startswith("ev_")]
+    ev_cols = list(EVIDENCE_COLUMNS) + [c for c in table.columns if c.startswith("ev_") and c not in EVIDENCE_COLUMNS]
     extra = [c for c in table.columns if c not in output_columns() and c not in ev_cols]
     order: list[Any] = []
     groups: dict[Any, list[dict]] = {}
@@ -289,16 +288,13 @@ def _peaks(table: pd.DataFrame) -> list[dict[str, Any]]:
     for key in order:
         rows = groups[key]
         first = rows[0]
-        peak = {k: jsonable(first.get(k)) for k in _PEAK_KEYS}
+        peak = {k: jsonable(first.get(k)) for k in PEAK_KEYS}
         flag_lists = [split_flags(r.get("flags")) for r in rows]
         candidates = []
         for rec, flags in zip(rows, flag_lists):
             if jsonable(rec.get("rank")) is None:
                 continue
-            cand = {k: jsonable(rec.get(k)) for k in _CANDIDATE_KEYS}
-            cand["rank"] = int(cand["rank"])
-            cand["flags"] = flags
-            cand["evidence"] = {c[3:]: jsonable(rec.get(c)) for c in ev_cols}
+            cand = candidate_record(rec.get, flags, evidence_columns=ev_cols)
             for c in extra:
                 cand[c] = jsonable(rec.get(c))
             candidates.append(cand)
@@ -393,9 +389,14 @@ def write_csv(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
     return [path, side]
 
 
+def results_text(result: ScreenResult) -> str:
+    """The nested JSON document as text (what :func:`write_json` writes)."""
+    return _dump(results_document(result))
+
+
 def write_json(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
     """The nested JSON document."""
-    text = _dump(results_document(result))
+    text = results_text(result)
     with atomic_write(path) as fh:
         fh.write(text)
     return [Path(path)]

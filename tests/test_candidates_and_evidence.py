@@ -10,11 +10,17 @@ from hypothesis import strategies as st
 from matcher.candidates import half_widths, window_pairs
 from matcher.classes import DEFAULT_WINDOWS, PHASE_CLASSES
 from matcher.evidence import Model
-from matcher.query import query
+from matcher.query import query as _query
 from matcher.shortlist import PeakInput, prepare, shortlist
 from matcher.snapshot import CompoundTable, build_snapshot
 
 from engine_helpers import synthetic_snapshot
+
+
+def query(*args, **kwargs) -> dict:
+    """The ``matcher query --json`` document (``QueryResult.to_dict()``)."""
+    return _query(*args, **kwargs).to_dict()
+
 
 finite = st.floats(min_value=0, max_value=5000, allow_nan=False)
 
@@ -26,13 +32,16 @@ def test_window_pairs_equal_brute_force(lib, peaks, w):
     x = np.array(peaks, dtype=float)
     pairs = window_pairs(lib, x, np.full(len(x), w))
     got = sorted(zip(pairs.peak.tolist(), pairs.entry.tolist()))
-    want = sorted((p, k) for p in range(len(x)) for k in range(len(lib)) if abs(x[p] - lib[k]) <= w)
+    # the window is x - w <= ri <= x + w, computed as written (|x - ri| <= w can round the other way at the edge,
+    # e.g. x = 1.0, w = 0.7, ri = 0.3)
+    inside = lambda p, k: x[p] - w <= lib[k] <= x[p] + w  # noqa: E731
+    want = sorted((p, k) for p in range(len(x)) for k in range(len(lib)) if inside(p, k))
     assert got == want
-    assert pairs.count.tolist() == [sum(1 for k in range(len(lib)) if abs(x[p] - lib[k]) <= w) for p in range(len(x))]
+    assert pairs.count.tolist() == [sum(1 for k in range(len(lib)) if inside(p, k)) for p in range(len(x))]
 
 
 def test_default_windows_are_the_documented_common_practice():
-    # Common practice, no single source (DESIGN §2): ±10 non-polar and slightly polar,
+    # Common practice, no single source (README, polarity-class table; docs/formats.md): ±10 non-polar and slightly polar,
     # ±15 mid-polar, ±20 polar, ±25 highly polar.
     assert DEFAULT_WINDOWS == {"nonpolar": 10, "slightly-polar": 10, "mid-polar": 15, "polar": 20, "highly-polar": 25}
     assert half_widths(np.array([1500.0]), "mid-polar").tolist() == [15.0]

@@ -124,11 +124,25 @@ def test_screen_adaptive_reports_its_fit(lib, tmp_path):
     assert "correction" in json.dumps(doc)
 
 
-def test_evaluate_json_reports_top1_and_top3(lib):
-    res = runner.invoke(app, ["evaluate", "--json", "--db", lib])
+def test_evaluate_json_reports_top1_and_top3(tmp_path):
+    # n-alkanes lie 100 index units apart on every phase (Kovats 1958, by definition of the index), ten times
+    # the non-polar window: every held-out observation must come back first, and a removed alkane must be
+    # answered "not in library". Two observations per alkane (invented, 1 unit apart) give 6 held-out queries.
+    db = str(tmp_path / "alkanes.sqlite")
+    src = tmp_path / "alkanes.csv"
+    src.write_text("name,phase_class,ri,formula\n" + "".join(
+        f"{n},nonpolar,{ri},{f}\n" for n, f, base in (("decane", "C10H22", 1000), ("undecane", "C11H24", 1100),
+                                                     ("dodecane", "C12H26", 1200)) for ri in (base, base + 1)),
+        encoding="utf-8")
+    assert runner.invoke(app, ["library", "init", "--db", db]).exit_code == 0
+    assert runner.invoke(app, ["library", "import", str(src), "--db", db]).exit_code == 0
+    res = runner.invoke(app, ["evaluate", "--json", "--db", db])
     assert res.exit_code == 0, res.output
     doc = json.loads(res.output)
-    assert 0.0 <= doc["top1"] <= doc["top3"] <= 1.0
+    assert doc["queries"] == {"leave_one_out": 6, "removed": 3}
+    assert doc["top1"] == 1.0 and doc["top3"] == 1.0 and doc["coverage"] == 1.0
+    assert doc["not_in_library_detection"] == 1.0 and doc["mean_top_probability_absent"] == 0.0
+    assert doc["classes"]["nonpolar"]["confusable_pairs"] == []
 
 
 def test_demo_from_an_unrelated_folder(tmp_path):

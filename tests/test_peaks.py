@@ -7,7 +7,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from matcher.errors import InputError
+from matcher.errors import InputError, MatcherError
 from matcher.peaks import read_peaks, time_unit
 
 
@@ -88,7 +88,7 @@ def test_time_unit_rules():
     assert time_unit("Retention time (s)")[0] == "s"
     assert time_unit("time sec")[0] == "s"
     assert time_unit("RT min")[0] == "min"
-    with pytest.raises(InputError):
+    with pytest.raises(MatcherError, match="--rt-unit must be one of min, s; got 'hours'"):
         time_unit("rt", "hours")
 
 

@@ -16,11 +16,16 @@ import numpy as np
 import pytest
 
 from matcher.evidence import Model
-from matcher.query import query
+from matcher.query import query as _query
 from matcher.screening import screen_run
 from matcher.shortlist import PeakInput, prepare
 
 from engine_helpers import oils_snapshot, top_of
+
+
+def query(*args, **kwargs) -> dict:
+    """The ``matcher query --json`` document (``QueryResult.to_dict()``)."""
+    return _query(*args, **kwargs).to_dict()
 
 
 @pytest.fixture(scope="module")

@@ -78,7 +78,7 @@ def test_import_export_on_server_equals_sqlite(pg_database, tmp_path, demo_csv):
         assert rep.observations_added > 700 and rep.compounds_created > 100
     a, b = export_library(lite), export_library(pg)
     assert a == b
-    # export -> import (replace) -> export on the server is byte-identical (DESIGN §4)
+    # export -> import (replace) -> export on the server is byte-identical (docs/formats.md, "Library CSV")
     exp = tmp_path / "exp.csv"
     exp.write_text(b, encoding="utf-8")
     import_library(pg, exp, replace=True)

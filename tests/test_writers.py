@@ -49,7 +49,7 @@ def test_csv_has_contract_columns_in_order_and_reads_back(tmp_path):
         header = next(csv.reader(fh))
     assert header == CONTRACT
     assert header[:12] == ["peak", "rt", "ri", "class", "rank", "name", "cas", "library_ri",
-                           "delta_ri", "score", "probability", "flags"]  # DESIGN.md §4
+                           "delta_ri", "score", "probability", "flags"]  # docs/formats.md, "Screen output"
     for kwargs in ({"comment": "#"}, {}):
         frame = pd.read_csv(out, **kwargs)
         assert list(frame.columns) == CONTRACT
@@ -69,7 +69,7 @@ def test_csv_values(tmp_path):
     # a peak with no candidate: one row, empty rank, the flag for it
     p4 = frame[frame["peak"] == "P4"]
     assert len(p4) == 1 and pd.isna(p4["rank"].iloc[0]) and "no-candidate" in p4["flags"].iloc[0].split(";")
-    # listed probabilities of a peak never add up to more than 1 (DESIGN.md §4)
+    # listed probabilities of a peak never add up to more than 1 (docs/formats.md, "Screen output")
     sums = frame.groupby(["run", "peak"])["probability"].sum()
     assert (sums <= 1.0).all()
     text = out.read_text(encoding="utf-8")

@@ -6,7 +6,7 @@ from typing import Annotated, List, Optional
 
 import typer
 
-from .common import JsonFlag, emit_data, note, say
+from .common import JsonFlag, emit_data, note, parse_map, say
 
 CALIBRATE_EXAMPLE = """\b
 Example (the distillery lab's n-alkane ladder, programmed oven):
@@ -29,29 +29,6 @@ Example: convert three times, or a whole peak table to a CSV file
 Output columns: peak, rt, ri, extrapolated (true for times outside the ladder,
 computed from the nearest pair of standards).
 """
-
-
-def _parse_map(items: list[str] | None) -> dict[str, str]:
-    from ..errors import MatcherError
-
-    out: dict[str, str] = {}
-    for item in items or []:
-        if "=" not in item:
-            raise MatcherError(f"--map wants column=header, got {item!r}")
-        k, v = item.split("=", 1)
-        out[k.strip()] = v.strip()
-    return out
-
-
-def _choice(value: str | None, allowed: tuple[str, ...], option: str) -> str | None:
-    from ..errors import MatcherError
-
-    if value is None:
-        return None
-    v = value.strip().lower()
-    if v not in allowed:
-        raise MatcherError(f"{option} must be one of {', '.join(allowed)}; got {value!r}")
-    return v
 
 
 def qc_table(cal) -> str:
@@ -119,20 +96,12 @@ def register(app: typer.Typer) -> None:
     ) -> None:
         import json
 
-        from ..calibration import calibrate
-        from ..holdup import METHODS
-        from ..ladder import read_ladder
-        from ..series import SERIES
-
+        from ..api import calibrate
         from ..atomic import guard_output
 
         guard_output(output, inputs=[("the ladder", ladder)], db=None, allow_stream=True)
-        mode_ = _choice(mode, ("programmed", "isothermal"), "--mode")
-        holdup_ = _choice(holdup, METHODS, "--holdup")
-        series_ = _choice(series, tuple(SERIES), "--series")
-        unit = _choice(rt_unit, ("min", "s"), "--rt-unit")
-        lad = read_ladder(ladder, series=series_, rt_unit=unit, overrides=_parse_map(mapping))
-        cal = calibrate(lad, mode=mode_, holdup=holdup_, dead_time=dead_time, marker=marker)
+        cal = calibrate(ladder, mode=mode, holdup=holdup, dead_time=dead_time, marker=marker, series=series,
+                        rt_unit=rt_unit, header_map=parse_map(mapping))
         cal.save(output)
         if as_json:
             say(json.dumps(cal.to_dict(), indent=2, ensure_ascii=False))
@@ -165,7 +134,6 @@ def register(app: typer.Typer) -> None:
         from ..errors import MatcherError
         from ..retention import convert_times, ri_csv, ri_document
 
-        unit = _choice(rt_unit, ("min", "s"), "--rt-unit")
         if bool(times) == bool(peaks):
             raise MatcherError("give retention times as arguments or --peaks FILE (one of the two)")
         if output:
@@ -174,7 +142,7 @@ def register(app: typer.Typer) -> None:
             guard_output(output, inputs=[("the calibration", calibration), ("the peak table", peaks)], db=None,
                          allow_stream=True)
         cal = Calibration.load(calibration)
-        result = convert_times(cal, times=times, peaks=peaks, rt_unit=unit, overrides=_parse_map(mapping))
+        result = convert_times(cal, times=times, peaks=peaks, rt_unit=rt_unit, overrides=parse_map(mapping))
         text = json.dumps(ri_document(cal, calibration, result), indent=2, ensure_ascii=False) + "\n" if as_json else ri_csv(result)
         if output and output != "-":
             atomic_write_text(output, text)

@@ -7,6 +7,11 @@ from typing import Annotated, Optional
 
 import typer
 
+from ..rules import PHASE_CLASSES
+
+#: Help text of every ``--class`` option (the names come from :data:`matcher.rules.PHASE_CLASSES`).
+CLASS_HELP = "Polarity class of the column: " + ", ".join(PHASE_CLASSES) + "."
+
 DbOption = Annotated[
     Optional[str],
     typer.Option(
@@ -60,3 +65,16 @@ def library_group(app: typer.Typer) -> typer.Typer:
     lib = typer.Typer(help="Manage the house library.", no_args_is_help=True, rich_markup_mode=None)
     app.add_typer(lib, name="library")
     return lib
+
+
+def parse_map(items: list[str] | None) -> dict[str, str]:
+    """``--map column=header`` options as a dict."""
+    from ..errors import MatcherError
+
+    out: dict[str, str] = {}
+    for item in items or []:
+        if "=" not in item:
+            raise MatcherError(f"--map expects column=header, got {item!r}")
+        k, v = item.split("=", 1)
+        out[k.strip()] = v.strip()
+    return out

@@ -33,6 +33,6 @@ def register(app: typer.Typer) -> None:
         dst: Annotated[str, typer.Argument(metavar="DST", help="Destination library: a file path (SQLite) or an SQLAlchemy URL.")],
         replace: Annotated[bool, typer.Option("--replace", help="Overwrite a destination that already holds a library.")] = False,
     ) -> None:
-        from ..store.copying import copy_library
+        from ..api import open_library
 
-        say(copy_library(src, dst, replace=replace).summary())
+        say(open_library(src).copy_to(dst, replace=replace).summary())

@@ -12,7 +12,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from .common import DbOption, JsonFlag, is_terminal, note, say, library_group
+from .common import CLASS_HELP, DbOption, JsonFlag, is_terminal, note, say, library_group
 
 EX_CONFIRM = (
     "Example: peak 11 of this morning's run was confirmed with an authentic standard of gamma-terpinene\n\n"
@@ -104,9 +104,9 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..curation import confirm_from_results
+        from ..api import open_library
 
-        result = confirm_from_results(db, results, peak, name, run=run, source=source, analyst=analyst, force=force,
+        result = open_library(db).confirm(results, peak, name, run=run, source=source, analyst=analyst, force=force,
                                       new=new, as_existing=as_existing, measured=measured, ask=_asker())
         _render_add(result, as_json)
 
@@ -114,7 +114,7 @@ def register(app: typer.Typer) -> None:
                  epilog=EX_ADD)
     def add_cmd(
         name: Annotated[str, typer.Argument(help="Compound name (case, spacing and usual spelling variants are folded).")],
-        phase_class: Annotated[str, typer.Option("--class", help="Phase class: nonpolar, slightly-polar, mid-polar, polar, highly-polar.")],
+        phase_class: Annotated[str, typer.Option("--class", help=CLASS_HELP)],
         ri: Annotated[float, typer.Option("--ri", help="The retention index measured.")],
         formula: Annotated[Optional[str], typer.Option("--formula", help="Molecular formula, e.g. C10H16.")] = None,
         cas: Annotated[Optional[str], typer.Option("--cas", help="CAS Registry Number (check digit verified).")] = None,
@@ -130,9 +130,9 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..curation import add_confirmed
+        from ..api import open_library
 
-        result = add_confirmed(db, name, phase_class, ri, formula=formula, cas=cas, inchikey=inchikey, phase=phase,
+        result = open_library(db).add(name, phase_class, ri, formula=formula, cas=cas, inchikey=inchikey, phase=phase,
                                mode=mode, date=date, source=source, analyst=analyst, force=force, new=new,
                                as_existing=as_existing, ask=_asker())
         _render_add(result, as_json)
@@ -143,10 +143,10 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..curation import history
+        from ..api import open_library
         from ..textable import format_table
 
-        rows = history(db, name)
+        rows = open_library(db).history(name)
         if as_json:
             say(json.dumps(rows, indent=2, ensure_ascii=False))
             return
@@ -162,9 +162,9 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..curation import retire
+        from ..api import open_library
 
-        doc = retire(db, observation, why, analyst=analyst)
+        doc = open_library(db).retire(observation, why, analyst=analyst)
         if as_json:
             say(json.dumps(doc, indent=2, ensure_ascii=False))
             return
@@ -181,9 +181,9 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..library_merge import merge
+        from ..api import open_library
 
-        report = merge(db, other, analyst=analyst)
+        report = open_library(db).merge(other, analyst=analyst)
         if as_json:
             say(json.dumps(report.as_dict(), indent=2, ensure_ascii=False))
             return
@@ -198,6 +198,6 @@ def register(app: typer.Typer) -> None:
         overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace an existing file.")] = False,
         db: DbOption = None,
     ) -> None:
-        from ..store.backup import backup
+        from ..api import open_library
 
-        say(backup(db, path, overwrite=overwrite).summary())
+        say(open_library(db).backup(path, overwrite=overwrite).summary())

@@ -34,16 +34,14 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
+        from ..api import evaluate
         from ..errors import MatcherError
-        from ..evaluation import evaluate
-        from ..store.snapshot_loader import load_snapshot
+        from ..rules import check_noise
 
-        import math
-
-        if not math.isfinite(noise) or noise < 0 or noise > 100:
-            raise MatcherError("--noise must be between 0 and 100 index units")
+        noise = check_noise(noise)
         if crowded:
             from ..evaluation import evaluate_crowded_all
+            from ..store.snapshot_loader import load_snapshot
 
             if abs(offset) > 100:
                 raise MatcherError("--offset must be between -100 and 100 index units")
@@ -53,7 +51,7 @@ def register(app: typer.Typer) -> None:
             else:
                 say(render_crowded(report))
             return
-        report = evaluate(load_snapshot(db), phase_class, noise=noise, window=window)
+        report = evaluate(db, phase_class=phase_class, noise=noise, window=window).to_dict()
         if as_json:
             say(json.dumps(report, indent=2, ensure_ascii=False, allow_nan=False, default=lambda v: None))
             return

@@ -9,9 +9,9 @@ import typer
 
 from .common import DbOption, JsonFlag, emit_data, note, say
 
-HELP = """Manage the house library: retention indices measured on your own columns, per polarity class.
+HELP = "Manage the house library: retention indices measured on your own columns, per polarity class."
 
-Example: start a library from the bundled demo file, then look around
+EX_GROUP = """Example: start a library from the bundled demo file, then look around
 
     matcher library init --db lab.sqlite
 
@@ -35,16 +35,16 @@ EX_CHECK = "Example: exit code 0 when healthy, 1 when a problem is listed\n\n   
 
 
 def register(app: typer.Typer) -> None:
-    lib = typer.Typer(help=HELP, no_args_is_help=True, rich_markup_mode=None)
+    lib = typer.Typer(help=HELP, epilog=EX_GROUP, no_args_is_help=True, rich_markup_mode=None)
     app.add_typer(lib, name="library")
 
     @lib.command("init", help="Create an empty house library (or migrate an older one); seeds the phase catalog.", epilog=EX_INIT)
     def init_cmd(db: DbOption = None) -> None:
-        from ..store.database import init_library, revision
-        from ..store.location import mask_url, resolve
+        from ..api import open_library
 
-        engine = init_library(db)
-        say(f"house library ready at {mask_url(resolve(db))} (revision {revision(engine)})")
+        lib = open_library(db)
+        rev = lib.init()
+        say(f"house library ready at {lib.location} (revision {rev})")
 
     @lib.command("import", help="Import a library CSV or XLSX: every row is checked first; a refused file changes nothing.", epilog=EX_IMPORT)
     def import_cmd(
@@ -54,9 +54,9 @@ def register(app: typer.Typer) -> None:
         analyst: Annotated[Optional[str], typer.Option("--analyst", help="Who is importing (for the audit log; default: your login).")] = None,
         db: DbOption = None,
     ) -> None:
-        from ..store.library_io import import_library
+        from ..api import open_library
 
-        report = import_library(db, file, replace=replace, who=analyst, dry_run=dry_run)
+        report = open_library(db).import_file(file, replace=replace, dry_run=dry_run, analyst=analyst)
         if report.ignored_columns:
             note(f"note: columns not used: {', '.join(report.ignored_columns)}")
         say(("dry run, nothing written: " if dry_run else "") + report.summary())
@@ -66,9 +66,9 @@ def register(app: typer.Typer) -> None:
         output: Annotated[Optional[str], typer.Option("-o", "--output", help="File to write (.csv or .xlsx); default: standard output.")] = None,
         db: DbOption = None,
     ) -> None:
-        from ..store.library_io import export_library
+        from ..api import open_library
 
-        text = export_library(db, None if output == "-" else output)
+        text = open_library(db).export(None if output == "-" else output)
         if output is None or output == "-":
             emit_data(text)
         else:
@@ -81,10 +81,10 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..store.inspect import find
+        from ..api import open_library
         from ..textable import format_table
 
-        hits = find(db, text, limit)
+        hits = open_library(db).find(text, limit=limit)
         if as_json:
             say(json.dumps([h.as_dict() for h in hits], indent=2, ensure_ascii=False))
             return
@@ -100,9 +100,9 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..store.inspect import show
+        from ..api import open_library
 
-        doc = show(db, name)
+        doc = open_library(db).show(name)
         if as_json:
             say(json.dumps(doc, indent=2, ensure_ascii=False))
             return
@@ -110,10 +110,10 @@ def register(app: typer.Typer) -> None:
 
     @lib.command("stats", help="Entries per class and how densely they cover the index range.", epilog=EX_STATS)
     def stats_cmd(db: DbOption = None, as_json: JsonFlag = False) -> None:
-        from ..store.inspect import stats
+        from ..api import open_library
         from ..textable import format_table
 
-        doc = stats(db)
+        doc = open_library(db).stats()
         if as_json:
             say(json.dumps(doc, indent=2, ensure_ascii=False))
             return
@@ -129,11 +129,11 @@ def register(app: typer.Typer) -> None:
         strict: Annotated[bool, typer.Option("--strict", help="Also list CAS numbers shared by two compounds.")] = False,
         db: DbOption = None,
     ) -> None:
-        from ..store.inspect import check
-        from ..store.location import mask_url, resolve
+        from ..api import open_library
 
-        problems = check(db, strict=strict)
-        where = mask_url(resolve(db))
+        lib = open_library(db)
+        problems = lib.check(strict=strict)
+        where = lib.location
         if problems:
             for p in problems:
                 say(f"problem: {p}")

@@ -27,6 +27,11 @@ app = typer.Typer(
         "add compounds you confirmed with a standard.\n\n" + CAUTION
     ),
     context_settings={"help_option_names": ["-h", "--help"]},
+    epilog=(
+        "Example: the whole workflow on the bundled demo (invented numbers)\n\n"
+        "    matcher demo --out demo-output\n\n"
+        "    matcher screen run.csv --ladder alkanes.csv --class slightly-polar -o shortlist.csv --report run.html"
+    ),
 )
 
 

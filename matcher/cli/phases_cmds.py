@@ -20,6 +20,7 @@ EX_CLASSIFY = (
 
 def register(app: typer.Typer) -> None:
     grp = typer.Typer(help="Stationary phases: generic compositions, polarity classes and McReynolds constants.",
+                      epilog="Example:\n\n    matcher phases list\n\n    matcher phases classify 119 158 162 243 202",
                       no_args_is_help=True, rich_markup_mode=None)
     app.add_typer(grp, name="phases")
 

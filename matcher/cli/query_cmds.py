@@ -8,7 +8,7 @@ from typing import Annotated, List, Optional
 import typer
 
 from .. import CAUTION
-from .common import DbOption, JsonFlag, say
+from .common import CLASS_HELP, DbOption, JsonFlag, say
 
 EXAMPLE = """
 Example: a peak at index 1031 on a 5 % phenyl column with molecular ion 136
@@ -28,7 +28,7 @@ def register(app: typer.Typer) -> None:
     )
     def query_cmd(
         ri: Annotated[float, typer.Argument(metavar="RI", help="Retention index of the unknown.")],
-        phase_class: Annotated[str, typer.Option("--class", metavar="CLASS", help="Polarity class of the column: nonpolar, slightly-polar, mid-polar, polar, highly-polar.")],
+        phase_class: Annotated[str, typer.Option("--class", metavar="CLASS", help=CLASS_HELP)],
         window: Annotated[Optional[float], typer.Option(metavar="UNITS", help="Half-width of the window in index units (default: the class default).")] = None,
         window_percent: Annotated[Optional[float], typer.Option("--window-percent", metavar="PCT", help="Half-width as a percentage of the index instead.")] = None,
         mol_ion: Annotated[Optional[float], typer.Option("--mol-ion", metavar="M/Z", help="Nominal m/z of the molecular ion.")] = None,
@@ -43,23 +43,12 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..errors import MatcherError
-        from ..query import query
+        from ..api import query
 
-        ion_list: list[int] = []
-        for chunk in ions or []:
-            for tok in chunk.replace(";", " ").replace(",", " ").split():
-                try:
-                    ion_list.append(int(round(float(tok))))
-                except ValueError:
-                    raise MatcherError(f"--ions: not an m/z value: {tok!r}") from None
-        if top is not None and top < 1:
-            raise MatcherError("--top must be at least 1")
-        if hit_score is not None and not (0 <= hit_score <= 100):
-            raise MatcherError("--hit-score must be between 0 and 100")
-        doc = query(ri, phase_class, db=db, window=window, window_percent=window_percent, mol_ion=mol_ion,
-                    ions=ion_list or None, hit=hit, hit_score=hit_score, top=top, fallback=fallback,
-                    homologues=homologues, measurement_sd=sd, crowding=crowding)
+        result = query(ri, phase_class, library=db, window=window, window_percent=window_percent, mol_ion=mol_ion,
+                       ions=ions or None, hit=hit, hit_score=hit_score, top=top, fallback=fallback,
+                       homologues=homologues, measurement_sd=sd, crowding=crowding)
+        doc = result.to_dict()
         if as_json:
             say(json.dumps(doc, indent=2, ensure_ascii=False))
             return

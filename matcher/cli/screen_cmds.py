@@ -7,7 +7,7 @@ from typing import Annotated, List, Optional
 import typer
 
 from .. import CAUTION
-from .common import DbOption, note, say
+from .common import CLASS_HELP, DbOption, note, parse_map, say
 
 EXAMPLE = """
 Examples
@@ -27,18 +27,6 @@ Examples
 """
 
 
-def _parse_map(items: list[str] | None) -> dict[str, str]:
-    from ..errors import MatcherError
-
-    out: dict[str, str] = {}
-    for item in items or []:
-        if "=" not in item:
-            raise MatcherError(f"--map expects column=header, got {item!r}")
-        k, v = item.split("=", 1)
-        out[k.strip()] = v.strip()
-    return out
-
-
 def register(app: typer.Typer) -> None:
     @app.command(
         "screen",
@@ -48,7 +36,7 @@ def register(app: typer.Typer) -> None:
     )
     def screen_cmd(
         peaks: Annotated[List[str], typer.Argument(metavar="PEAKS.csv...", help="Peak table(s): CSV, TSV or XLSX; one per run.")],
-        phase_class: Annotated[str, typer.Option("--class", metavar="CLASS", help="Polarity class of the column: nonpolar, slightly-polar, mid-polar, polar, highly-polar.")],
+        phase_class: Annotated[str, typer.Option("--class", metavar="CLASS", help=CLASS_HELP)],
         out: Annotated[str, typer.Option("-o", "--out", metavar="OUT", help="Shortlist file: .csv, .json or .xlsx.")],
         calibration: Annotated[Optional[List[str]], typer.Option("--calibration", metavar="CAL.json", help="Saved calibration (from 'matcher calibrate'); once for all runs or once per run.")] = None,
         ladder: Annotated[Optional[List[str]], typer.Option("--ladder", metavar="LADDER.csv", help="Ladder CSV to calibrate with; once for all runs or once per run.")] = None,
@@ -72,24 +60,16 @@ def register(app: typer.Typer) -> None:
     ) -> None:
         import sys
 
-        from ..errors import MatcherError
-        from ..screening import screen
-        from ..writers import write_results
-
-        if rt_unit is not None and rt_unit not in ("min", "s"):
-            raise MatcherError("--rt-unit must be min or s")
-        if mode not in ("programmed", "isothermal"):
-            raise MatcherError("--mode must be programmed or isothermal")
-        suffix = out.lower().rsplit(".", 1)[-1] if "." in out else ""
-        if suffix not in ("csv", "json", "xlsx"):
-            raise MatcherError(f"-o {out}: the shortlist file must end in .csv, .json or .xlsx")
-        if report is not None and not report.lower().endswith((".html", ".htm")):
-            raise MatcherError(f"--report {report}: the report file must end in .html")
-
+        from ..api import screen
         from ..atomic import guard_outputs
-        from ..writers import sidecar_path
+        from ..rules import check_report_path, check_shortlist_path
+        from ..writers import sidecar_path, write_results
 
-        outputs = [("-o", out)] + ([("-o (its provenance sidecar)", str(sidecar_path(out)))] if suffix == "csv" else [])
+        check_shortlist_path(out)  # before the work: nothing is screened for a file that cannot be written
+        if report is not None:
+            check_report_path(report)
+        csv_out = out.lower().endswith(".csv")
+        outputs = [("-o", out)] + ([("-o (its provenance sidecar)", str(sidecar_path(out)))] if csv_out else [])
         guard_outputs(outputs + [("--report", report)], db=db,
                       inputs=[("the peak table", p) for p in peaks] + [("the calibration", c) for c in calibration or []]
                       + [("the ladder", x) for x in ladder or []] + [("the anchors file", anchors)])
@@ -106,8 +86,8 @@ def register(app: typer.Typer) -> None:
                 bar.length = max(bar.length, seen[0])
                 bar.update(k)
         try:
-            result = screen(peaks, phase_class, db=db, calibration=calibration, ladder=ladder, mode=mode,
-                            dead_time=dead_time, rt_unit=rt_unit, header_map=_parse_map(header_map) or None,
+            result = screen(peaks, phase_class=phase_class, library=db, calibration=calibration, ladder=ladder, mode=mode,
+                            dead_time=dead_time, rt_unit=rt_unit, header_map=parse_map(header_map) or None,
                             window=window, window_percent=window_percent, top=top, fallback=fallback,
                             homologues=homologues, adaptive=adaptive, anchors=anchors, measurement_sd=sd,
                             crowding=crowding, split_peaks=split_peaks, progress=progress)

@@ -198,7 +198,7 @@ def check(db: str | None, *, strict: bool = False) -> list[str]:
     from sqlalchemy import text
 
     from ..cas import normalise_cas
-    from ..classes import PHASE_CLASSES
+    from ..rules import MODES, PHASE_CLASSES
     from ..formula import hill_formula, nominal_mass
     from ..identifiers import is_inchikey
     from ..names import matching_key
@@ -279,7 +279,7 @@ def check(db: str | None, *, strict: bool = False) -> list[str]:
                 problems.append(f"observation {oid}: unknown phase class {cls!r}")
             if ri is None or not math.isfinite(ri) or ri < 0:
                 problems.append(f"observation {oid}: index {ri!r} is not a finite non-negative number")
-            if mode not in ("programmed", "isothermal"):
+            if mode not in MODES:
                 problems.append(f"observation {oid}: mode {mode!r}")
             if sd is not None and (not math.isfinite(sd) or sd < 0 or sd > MAX_SD):
                 problems.append(f"observation {oid}: ri_sd {sd!r} (must be 0 to {MAX_SD:g} index units)")

@@ -1,9 +1,9 @@
-"""Import and export of the library CSV (DESIGN §4), also ``.xlsx`` on import and export.
+"""Import and export of the library CSV (docs/formats.md, "Library CSV"), also ``.xlsx`` on import and export.
 
 Columns (one row per observation or per literature summary):
 
 * required: ``name``, ``phase_class``, ``ri``
-* optional (DESIGN §4): ``cas``, ``formula``, ``ri_sd``, ``n``, ``mode``
+* optional: ``cas``, ``formula``, ``ri_sd``, ``n``, ``mode``
   (programmed | isothermal, blank = programmed), ``phase``, ``source``,
   ``synonyms`` (separated by ``;``), ``inchikey``, ``smiles``, ``notes``
 * optional, our own: ``series`` (homologous-series label), ``key_ions``
@@ -51,6 +51,7 @@ from ..errors import InputError, MatcherError
 from ..formula import hill_formula
 from ..identifiers import normalise_inchikey
 from ..names import display_name, matching_key
+from ..rules import MODE_ALIASES, MODES
 
 REQUIRED = ("name", "phase_class", "ri")
 OPTIONAL = ("cas", "formula", "ri_sd", "n", "mode", "phase", "source", "synonyms", "inchikey", "smiles", "notes")
@@ -81,8 +82,7 @@ ALIASES: dict[str, list[str]] = {
     "retired": ["retired"],
 }
 
-_MODES = {"programmed": "programmed", "temperature-programmed": "programmed", "prog": "programmed",
-          "isothermal": "isothermal", "iso": "isothermal"}
+_MODES = {m: m for m in MODES} | MODE_ALIASES
 RI_MAX = MAX_RI  # declared in matcher.limits
 
 

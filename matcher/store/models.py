@@ -42,9 +42,7 @@ from sqlalchemy import (
 )
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
 
-from ..classes import PHASE_CLASSES
-
-MODES = ("programmed", "isothermal")
+from ..rules import MODES, PHASE_CLASSES
 
 _CLASS_CHECK = "phase_class IN (" + ", ".join(f"'{c}'" for c in PHASE_CLASSES) + ")"
 
@@ -112,7 +110,7 @@ class Observation(Base):
     __tablename__ = "observations"
     __table_args__ = (
         CheckConstraint(_CLASS_CHECK, name="ck_observations_class"),
-        CheckConstraint("mode IN ('programmed', 'isothermal')", name="ck_observations_mode"),
+        CheckConstraint("mode IN (" + ", ".join(f"'{m}'" for m in MODES) + ")", name="ck_observations_mode"),
         CheckConstraint("n IS NULL OR n >= 1", name="ck_observations_n"),
         CheckConstraint("ri_sd IS NULL OR ri_sd >= 0", name="ck_observations_sd"),
         Index("ix_observations_active_class", "active", "phase_class"),

@@ -1,0 +1,372 @@
+"""The public Python interface: everything a command does, from Python.
+
+Import these from the top-level package (``import matcher``); they load
+lazily, so ``import matcher`` stays cheap.
+
+=========================  ============================================  ==========================
+function                   does                                          returns
+=========================  ============================================  ==========================
+``open_library(db)``       the house library (path, URL, ``$MATCHER_DB``  :class:`Library`
+                           or the user data folder)
+``calibrate(ladder)``      fit and check a ladder (path or DataFrame)    :class:`~matcher.calibration.Calibration`
+``read_peaks(path)``       read and check a peak table                   :class:`~matcher.peaks.PeakTable`
+``screen(peaks, ...)``     shortlist every peak of one run or a batch    :class:`~matcher.results.ScreenResult`
+``query(ri, cls, ...)``    shortlist one index                           :class:`~matcher.query.QueryResult`
+``evaluate(...)``          self-check of the library                     :class:`Evaluation`
+=========================  ============================================  ==========================
+
+Settings are keyword-only; ``library=`` takes a :class:`Library`, a path or
+URL, or a :class:`~matcher.snapshot.LibrarySnapshot` already read (``None``:
+``$MATCHER_DB``, else the user data folder). Every problem a user can fix
+raises :class:`~matcher.errors.MatcherError` (its subclasses
+``InputError`` and ``LibraryError`` say more) with the one-line message the
+command line prints.
+
+>>> import matcher, pandas as pd
+>>> ladder = pd.DataFrame({"rt": [4.0, 6.0, 8.0], "carbons": [9, 10, 11]})   # invented times
+>>> cal = matcher.calibrate(ladder)
+>>> cal.convert([5.0])[0].tolist()
+[950.0]
+>>> matcher.query(1031, "slightly-polar", top=0, library=_tiny_snapshot())
+Traceback (most recent call last):
+...
+matcher.errors.MatcherError: --top must be at least 1
+>>> result = matcher.query(1031, "slightly-polar", mol_ion=136, library=_tiny_snapshot())
+>>> result.best["name"], result.best["flags"][:1]
+('limonene', ['in-window'])
+
+Results are tentative (putative) identifications; confirmation needs an
+authentic reference standard under the lab's validated method, and local
+regulations and accredited practice prevail.
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any, Callable, Sequence
+
+from .errors import MatcherError
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .calibration import Calibration
+    from .peaks import PeakTable
+    from .query import QueryResult
+    from .results import ScreenResult
+    from .snapshot import LibrarySnapshot
+
+
+# --------------------------------------------------------------------------- the library handle
+
+class Library:
+    """The house library: one SQLite file or a database server, with its curation and inspection.
+
+    ``db`` is a file path (SQLite) or an SQLAlchemy URL; ``None`` means
+    ``$MATCHER_DB``, else ``library.sqlite`` in the user data folder (see
+    :mod:`matcher.store.location`). Opening does not touch the database; the
+    first operation does, and a missing or outdated library raises
+    :class:`~matcher.errors.LibraryError`. Methods mirror ``matcher library
+    ...`` and return what those commands render.
+    """
+
+    def __init__(self, db: str | os.PathLike | None = None) -> None:
+        self.db = None if db is None else os.fspath(db)
+
+    # ------------------------------------------------------------------ where
+    @property
+    def url(self) -> str:
+        """The SQLAlchemy URL the library resolves to (may hold a password: do not print it)."""
+        from .store.location import resolve
+
+        return resolve(self.db)
+
+    @property
+    def location(self) -> str:
+        """The resolved address with any password shown as ``***``."""
+        from .store.location import mask_url
+
+        return mask_url(self.url)
+
+    def __repr__(self) -> str:
+        return f"Library({self.location!r})"
+
+    # ------------------------------------------------------------------ create, read
+    def init(self) -> int:
+        """Create the library (or migrate an older one); returns its revision."""
+        from .store.database import init_library, revision
+
+        return revision(init_library(self.db))
+
+    def snapshot(self) -> "LibrarySnapshot":
+        """The whole library read once, as screening and queries use it (pass it as ``library=`` to reuse)."""
+        from .store.snapshot_loader import load_snapshot
+
+        return load_snapshot(self.db)
+
+    def find(self, text: str, *, limit: int = 10) -> list:
+        """Compounds whose names, synonyms, CAS numbers or formulas resemble ``text`` (typo tolerant)."""
+        from .store.inspect import find
+
+        return find(self.db, text, limit)
+
+    def show(self, name: str) -> dict:
+        """One compound: identity, per-class centre/spread/count and every observation."""
+        from .store.inspect import show
+
+        return show(self.db, name)
+
+    def history(self, name: str) -> list[dict]:
+        """The audit trail of one compound."""
+        from .curation import history
+
+        return history(self.db, name)
+
+    def stats(self) -> dict:
+        """Entries per class and how densely they cover the index range."""
+        from .store.inspect import stats
+
+        return stats(self.db)
+
+    def check(self, *, strict: bool = False) -> list[str]:
+        """Integrity problems (an empty list when healthy)."""
+        from .store.inspect import check
+
+        return check(self.db, strict=strict)
+
+    def export(self, path: str | os.PathLike | None = None) -> str:
+        """The library as library-CSV text, also written to ``path`` (``.csv`` or ``.xlsx``) when given."""
+        from .store.library_io import export_library
+
+        return export_library(self.db, None if path is None else os.fspath(path))
+
+    # ------------------------------------------------------------------ change
+    def import_file(self, path: str | os.PathLike, *, replace: bool = False, dry_run: bool = False,
+                    analyst: str | None = None):
+        """Import a library CSV/XLSX: every row checked first, then one transaction (``matcher library import``)."""
+        from .store.library_io import import_library
+
+        return import_library(self.db, os.fspath(path), replace=replace, who=analyst, dry_run=dry_run)
+
+    def add(self, name: str, phase_class: str, ri: float, *, formula: str | None = None, cas: str | None = None,
+            inchikey: str | None = None, phase: str | None = None, mode: str = "programmed", date: str | None = None,
+            source: str | None = None, analyst: str | None = None, force: bool = False, new: bool = False,
+            as_existing: str | None = None, ask: Callable | None = None):
+        """Add one confirmed retention index (name resolution and outlier guard as ``matcher library add``)."""
+        from .curation import add_confirmed
+
+        return add_confirmed(self.db, name, phase_class, ri, formula=formula, cas=cas, inchikey=inchikey, phase=phase,
+                             mode=mode, date=date, source=source, analyst=analyst, force=force, new=new,
+                             as_existing=as_existing, ask=ask)
+
+    def confirm(self, results: str | os.PathLike, peak: Any, name: str, *, run: str | None = None,
+                source: str | None = None, analyst: str | None = None, force: bool = False, new: bool = False,
+                as_existing: str | None = None, measured: bool = False, ask: Callable | None = None):
+        """Add a peak of a screening output confirmed with a standard (``matcher confirm``)."""
+        from .curation import confirm_from_results
+
+        return confirm_from_results(self.db, results, peak, name, run=run, source=source, analyst=analyst,
+                                    force=force, new=new, as_existing=as_existing, measured=measured, ask=ask)
+
+    def retire(self, observation: int, why: str, *, analyst: str | None = None) -> dict:
+        """Stop using an observation (the row stays, with the reason)."""
+        from .curation import retire
+
+        return retire(self.db, observation, why, analyst=analyst)
+
+    def merge(self, other: "Library | str | os.PathLike", *, analyst: str | None = None):
+        """Merge another library (handle, path, URL, or a library CSV/XLSX); conflicts reported, never overwritten."""
+        from .library_merge import merge
+
+        other_db = other.db if isinstance(other, Library) else os.fspath(other)
+        if other_db is None:
+            raise MatcherError("merge needs the other library's path or URL")
+        return merge(self.db, other_db, analyst=analyst)
+
+    def backup(self, path: str | os.PathLike, *, overwrite: bool = False):
+        """A consistent copy of a SQLite library, safe while others write."""
+        from .store.backup import backup
+
+        return backup(self.db, path, overwrite=overwrite)
+
+    def copy_to(self, destination: "Library | str | os.PathLike", *, replace: bool = False):
+        """Copy the whole library (audit trail included) to another backend."""
+        from .store.copying import copy_library
+
+        dst = destination.db if isinstance(destination, Library) else os.fspath(destination)
+        return copy_library(self.db, dst, replace=replace)
+
+
+# ``library.import(...)`` reads like the command; ``import`` is a keyword, so it is reached with getattr.
+setattr(Library, "import", Library.import_file)
+
+
+def open_library(db: str | os.PathLike | None = None, *, create: bool = False) -> Library:
+    """The house library at ``db`` (path or URL; default ``$MATCHER_DB``, else the user data folder).
+
+    With ``create=True`` an absent library is created (and an older one migrated).
+    """
+    lib = Library(db)
+    if create:
+        lib.init()
+    return lib
+
+
+def _source(library: Any) -> dict[str, Any]:
+    """``library=`` as the engine's arguments: ``{"snapshot": ...}`` or ``{"db": ...}`` (read after the checks)."""
+    from .snapshot import LibrarySnapshot
+
+    if isinstance(library, LibrarySnapshot):
+        return {"snapshot": library}
+    if isinstance(library, Library):
+        return {"db": library.db}
+    if library is None or isinstance(library, (str, os.PathLike)):
+        return {"db": None if library is None else os.fspath(library)}
+    raise MatcherError(f"library= takes a Library, a path or URL, or a snapshot, not {type(library).__name__}")
+
+
+def _snapshot(library: Any) -> "LibrarySnapshot":
+    """A snapshot from a :class:`Library`, a path or URL, a snapshot, or ``None`` (the default library)."""
+    from .snapshot import LibrarySnapshot
+
+    if isinstance(library, LibrarySnapshot):
+        return library
+    if isinstance(library, Library):
+        return library.snapshot()
+    if library is None or isinstance(library, (str, os.PathLike)):
+        return Library(library).snapshot()
+    raise MatcherError(f"library= takes a Library, a path or URL, or a snapshot, not {type(library).__name__}")
+
+
+# --------------------------------------------------------------------------- the job
+
+def calibrate(ladder: Any, *, mode: str = "programmed", holdup: str | None = None, dead_time: float | None = None,
+              marker: float | None = None, series: str | None = None, rt_unit: str | None = None,
+              header_map: dict[str, str] | None = None) -> "Calibration":
+    """Fit and check a reference ladder; returns the :class:`~matcher.calibration.Calibration`.
+
+    ``ladder`` is a ladder file (CSV, TSV, XLSX), a pandas DataFrame with the
+    same columns (``rt`` in minutes, ``carbons`` or ``index``, optional
+    ``name``) or a :class:`~matcher.ladder.Ladder`. ``mode`` is
+    ``programmed`` (van den Dool & Kratz) or ``isothermal`` (Kováts, with a
+    hold-up time: ``dead_time``, ``marker`` or ``holdup`` method). Save it with
+    ``.save(path)``; convert times with ``.convert(rt_minutes)``.
+    """
+    from .calibration import calibrate as _calibrate
+    from .holdup import METHODS
+    from .ladder import Ladder, read_ladder
+    from .rules import choice
+    from .series import SERIES
+
+    holdup = choice(holdup, METHODS, "--holdup")
+    series = choice(series, tuple(SERIES), "--series")
+    lad = ladder if isinstance(ladder, Ladder) else read_ladder(ladder, series=series, rt_unit=rt_unit,
+                                                                  overrides=header_map)
+    return _calibrate(lad, mode=mode, holdup=holdup, dead_time=dead_time, marker=marker)
+
+
+def read_peaks(path: Any, *, rt_unit: str | None = None, header_map: dict[str, str] | None = None) -> "PeakTable":
+    """Read and check a peak table (file or DataFrame); see :mod:`matcher.peaks` for the columns."""
+    from .peaks import read_peaks as _read_peaks
+
+    return _read_peaks(path, rt_unit=rt_unit, overrides=header_map)
+
+
+def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any = None, library: Any = None,
+           mode: str = "programmed", dead_time: float | None = None, rt_unit: str | None = None,
+           header_map: dict[str, str] | None = None, window: float | None = None,
+           window_percent: float | None = None, top: int | None = None, fallback: bool = False,
+           homologues: bool = False, adaptive: bool = False, anchors: str | os.PathLike | None = None,
+           measurement_sd: float | None = None, crowding: str | float | None = None, split_peaks: bool = False,
+           labels: Sequence[str] | None = None, progress: Callable[[int], None] | None = None) -> "ScreenResult":
+    """Shortlist every peak of one run, or of a batch, against one class of the library.
+
+    ``peaks``: a peak table (path, DataFrame or :class:`~matcher.peaks.PeakTable`)
+    or a list of them. Times become indices through ``calibration`` (a
+    :class:`~matcher.calibration.Calibration` or a saved file) or ``ladder``
+    (a ladder file or DataFrame, fitted with ``mode``): one for all runs or
+    one per run; a table with an ``ri`` column needs neither. The library is
+    read once. Returns a :class:`~matcher.results.ScreenResult`: ``.table``
+    is one DataFrame of all runs (one row per peak and candidate),
+    ``.to_csv/.to_json/.to_xlsx/.to_html`` write the files ``matcher
+    screen`` writes. ``crowding`` is the prior on compounds not in the library
+    (``sparse``, ``moderate``, ``crowded``, ``dense`` or unlisted peaks per 100
+    index units; the run refines it); ``split_peaks=True`` lets one compound
+    explain several peaks.
+    """
+    from .screening import screen as _screen
+
+    return _screen(peaks, phase_class, **_source(library), calibration=calibration, ladder=ladder, mode=mode,
+                   dead_time=dead_time, rt_unit=rt_unit, header_map=header_map, window=window,
+                   window_percent=window_percent, top=top, fallback=fallback, homologues=homologues,
+                   adaptive=adaptive, anchors=None if anchors is None else os.fspath(anchors),
+                   measurement_sd=measurement_sd, crowding=crowding, split_peaks=split_peaks, labels=labels,
+                   progress=progress)
+
+
+def query(ri: float, phase_class: str, *, library: Any = None, window: float | None = None,
+          window_percent: float | None = None, mol_ion: float | None = None, ions: Any = None,
+          hit: str | None = None, hit_score: float | None = None, top: int | None = None,
+          fallback: bool = False, homologues: bool = False, measurement_sd: float | None = None,
+          crowding: str | float | None = None) -> "QueryResult":
+    """Ranked candidates for one retention index; returns a :class:`~matcher.query.QueryResult`.
+
+    ``ions`` are key ions (whole m/z: a list or text such as ``"93 136"``);
+    ``hit`` and ``hit_score`` (0-100) are your spectral search's proposal.
+    ``result.candidates`` lists records in rank order, ``result.table`` the
+    same as a DataFrame, ``result.to_dict()`` is the ``matcher query --json``
+    document.
+    """
+    from .query import query as _query
+
+    return _query(ri, phase_class, **_source(library), window=window, window_percent=window_percent,
+                  mol_ion=mol_ion, ions=ions, hit=hit, hit_score=hit_score, top=top, fallback=fallback,
+                  homologues=homologues, measurement_sd=measurement_sd, crowding=crowding)
+
+
+@dataclass
+class Evaluation:
+    """How far the library's shortlists can be trusted (``matcher evaluate``); rates are fractions 0-1."""
+
+    top1: float | None
+    top3: float | None
+    coverage: float | None
+    ece: float | None
+    not_in_library_detection: float | None
+    mean_top_probability_absent: float | None
+    noise: float
+    queries: dict[str, int]
+    classes: dict[str, dict] = field(default_factory=dict)
+    library: dict[str, Any] = field(default_factory=dict)
+
+    def to_dict(self) -> dict[str, Any]:
+        """The document ``matcher evaluate --json`` prints."""
+        return {k: getattr(self, k) for k in self.__dataclass_fields__}
+
+
+def evaluate(library: Any = None, *, phase_class: str | None = None, noise: float = 0.0,
+             window: float | None = None) -> Evaluation:
+    """Self-check of the library by resampling it: leave-one-out and removal queries, confusable pairs."""
+    from .evaluation import evaluate as _evaluate
+    from .rules import check_class, check_noise, check_window
+
+    if phase_class is not None:
+        phase_class = check_class(phase_class)
+    window, _ = check_window(window, None)
+    noise = check_noise(noise)
+    report = _evaluate(_snapshot(library), phase_class, noise=noise, window=window)
+    return Evaluation(**report)
+
+
+def _tiny_snapshot():
+    """A two-compound library for the examples above (invented indices)."""
+    import numpy as np
+
+    from .snapshot import CompoundTable, build_snapshot
+
+    return build_snapshot(
+        CompoundTable.from_records([{"id": 1, "name": "limonene", "formula": "C10H16"},
+                                    {"id": 2, "name": "decane", "formula": "C10H22"}]),
+        np.array([1, 1, 2]), np.array(["slightly-polar"] * 3), np.array([1029.0, 1031.0, 1000.0]))
+
+
+__all__ = ["Library", "open_library", "calibrate", "read_peaks", "screen", "query", "evaluate", "Evaluation"]
