@@ -36,7 +36,7 @@ from datetime import datetime, timezone
 
 import numpy as np
 
-from .errors import InputError
+from .errors import InputError, MatcherError
 from .holdup import HoldUp, resolve_holdup
 from .ladder import Ladder, check_ladder
 from .rules import MODES, check_mode

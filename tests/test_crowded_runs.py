@@ -182,8 +182,8 @@ def test_a_crowded_prior_lowers_a_single_query():
     from matcher.query import query
 
     snap = synthetic_snapshot([1000.0], phase_class="nonpolar")
-    sparse = query(1000.0, "nonpolar", snapshot=snap, crowding="sparse")["candidates"][0]["probability"]
-    dense = query(1000.0, "nonpolar", snapshot=snap, crowding="dense")["candidates"][0]["probability"]
+    sparse = query(1000.0, "nonpolar", snapshot=snap, crowding="sparse").candidates[0]["probability"]
+    dense = query(1000.0, "nonpolar", snapshot=snap, crowding="dense").candidates[0]["probability"]
     assert sparse > 0.8 > 0.5 > dense
 
 
@@ -191,9 +191,9 @@ def test_a_hit_naming_a_compound_outside_the_library_is_evidence_for_unlisted():
     from matcher.query import query
 
     snap = synthetic_snapshot([1000.0], phase_class="nonpolar", names=["alpha-pinene"])
-    base = query(1000.0, "nonpolar", snapshot=snap)["not_in_library"]
-    other = query(1000.0, "nonpolar", snapshot=snap, hit="sabinene", hit_score=90)["not_in_library"]
-    named = query(1000.0, "nonpolar", snapshot=snap, hit="a-pinene", hit_score=90)["not_in_library"]
+    base = query(1000.0, "nonpolar", snapshot=snap).not_in_library
+    other = query(1000.0, "nonpolar", snapshot=snap, hit="sabinene", hit_score=90).not_in_library
+    named = query(1000.0, "nonpolar", snapshot=snap, hit="a-pinene", hit_score=90).not_in_library
     assert named < base < other
 
 
