@@ -66,6 +66,8 @@ _WORDS = re.compile(r"[\s\-_()\[\]{}.]+")
 
 def _fold(text: str) -> str:
     s = unicodedata.normalize("NFKC", str(text)).replace("ß", "beta").casefold()
+    # drop accents first so that a Greek letter with a breathing or accent mark ("ἀ") is still its name
+    s = "".join(ch for ch in unicodedata.normalize("NFKD", s) if not unicodedata.combining(ch))
     s = "".join(GREEK.get(ch, ch) for ch in s)
     s = _DASHES.sub("-", s)
     s = unicodedata.normalize("NFKD", s)
