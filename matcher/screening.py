@@ -321,41 +321,30 @@ def _with(peaks: PeakInput, x: np.ndarray, lam: np.ndarray) -> PeakInput:
 
 def _shift_profile(home: PreparedClass, peaks: PeakInput, model: Model, w: np.ndarray, lam: np.ndarray) -> float:
     """Coarse offset of the run: the shift b maximising the run's mixture likelihood (see :mod:`matcher.adaptive`)."""
-    from .adaptive import SHIFT_STEP
+    from .adaptive import MIN_ANCHORS, SHIFT_STEP
+    from .assignment import _Groups
     from .candidates import window_pairs
     from .evidence import score_pairs
 
     x = np.asarray(peaks.ri, float)
     ok = np.isfinite(x)
-    if ok.sum() < MIN_ANCHORS_FOR_SHIFT or not len(home.entries):
+    if ok.sum() < MIN_ANCHORS or not len(home.entries):
         return 0.0
     xs = x[ok]
     reach = float(np.max(w[ok]))
     pairs = window_pairs(home.entries.ri, xs, w[ok] * 2.0)
     sub = _subset(peaks, np.flatnonzero(ok))
     hints = _hints_for_fit(sub)
+    groups = _Groups(pairs.peak, len(xs))  # per peak: log(1 + Σ_j w_pj), the "1" being not-in-library
     best_b, best_ll = 0.0, -np.inf
     for b in np.arange(-reach, reach + SHIFT_STEP / 2, SHIFT_STEP):
         sc = score_pairs(pairs, xs + b, home.entries, home.compounds, home.mass_bg, model, hints, home.ion_masks,
                          unlisted_density=lam[ok])
         inside = np.abs(sc.delta) <= w[ok][pairs.peak]
-        lw = np.where(inside, sc.logw, -np.inf)
-        mx = np.maximum(np.full(len(xs), 0.0), _seg_max(lw, pairs.peak, len(xs)))
-        tot = np.bincount(pairs.peak, weights=np.exp(lw - mx[pairs.peak]), minlength=len(xs)) + np.exp(-mx)
-        ll = float(np.sum(mx + np.log(tot)))
+        ll = float(np.sum(groups.logsumexp(np.where(inside, sc.logw, -np.inf))))
         if ll > best_ll + 1e-9 or (abs(ll - best_ll) <= 1e-9 and abs(b) < abs(best_b)):
             best_b, best_ll = float(b), ll
     return best_b
-
-
-MIN_ANCHORS_FOR_SHIFT = 5
-
-
-def _seg_max(v: np.ndarray, g: np.ndarray, n: int) -> np.ndarray:
-    out = np.full(n, -np.inf)
-    if len(v):
-        np.maximum.at(out, g, v)
-    return out
 
 
 def screen_run(home: PreparedClass, peaks: PeakInput, base_sd: float, *, window=None, window_percent=None, top=None,
