@@ -58,6 +58,7 @@ ALIASES: dict[str, list[str]] = {
     "hit_score": ["hit_score", "score", "match", "match score", "match factor", "similarity", "hit score", "quality", "sim",
                   "match quality", "probability score"],
     "area": ["area", "peak area", "area %", "area pct", "abundance", "response", "height area"],
+    "spectrum": ["spectrum", "mass spectrum", "ms", "spectrum pairs"],
 }
 
 _SECONDS = re.compile(r"[\[\(]\s*s\s*[\]\)]|\bsecs?\b|\bseconds?\b|\(sec\)|\[sec\]", re.IGNORECASE)
@@ -112,6 +113,9 @@ class PeakTable:
     columns: dict          # canonical name -> header used
     lines: np.ndarray      # physical line of each peak in the file
     checksum: str = ""     # SHA-256 of the table's normalised content (see content_checksum)
+    #: one entry per peak: ``(mz, intensity)`` float64 arrays sorted by m/z, or None (no spectrum);
+    #: an empty tuple when the table has no spectra at all
+    spectra: tuple = ()
 
     def __len__(self) -> int:
         return len(self.peak)
@@ -201,6 +205,17 @@ def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | 
                 raise raw.fail(str(exc), row=k + 1, column=cols["ions"])
     else:
         ions = [()] * n
+    spectra: tuple = ()
+    if "spectrum" in cols:
+        from .io.spectrum_text import parse_spectrum_text
+
+        found = []
+        for k, cell in enumerate(texts(raw, cols["spectrum"])):
+            try:
+                found.append(parse_spectrum_text(cell))
+            except ValueError as exc:
+                raise raw.fail(str(exc), row=k + 1, column=cols["spectrum"])
+        spectra = tuple(found)
 
     checksum = content_checksum(ids, rt, ri, mol_ion, ions, hit, hit_score, area)
     return PeakTable(
@@ -211,6 +226,7 @@ def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | 
         hit=np.array(hit, dtype=object), hit_score=hit_score, area=area,
         has_rt="rt" in cols, has_ri="ri" in cols, rt_unit_source=source, columns=cols,
         lines=np.array([raw.line_of(k + 1) for k in range(n)], dtype=np.int64),
+        spectra=spectra,
     )
 
 

@@ -1,0 +1,1 @@
+"""File reading and writing at the edges: delimited tables, peak tables, ladders, calibration and library files."""

@@ -1,0 +1,82 @@
+"""Mass spectra written as text in one table cell: ``m/z:intensity`` pairs.
+
+The peak-table column ``spectrum`` (docs/formats.md) holds one centroided mass
+spectrum as pairs separated by spaces, commas or semicolons, each pair an m/z
+and an intensity joined by a colon, for example ``41:12 67:30 68:100 93:45``.
+Intensities are in any linear unit (counts or relative); they are not
+rescaled here. An empty cell means no spectrum.
+
+Rules (ours): m/z from 1 to :data:`matcher.limits.MAX_MZ`, intensities finite
+and not negative, each m/z at most once, at most :data:`MAX_PAIRS` pairs.
+Pairs are returned sorted by m/z.
+
+>>> mz, y = parse_spectrum_text("93:45 68:100, 41:12")
+>>> mz.tolist(), y.tolist()
+([41.0, 68.0, 93.0], [12.0, 100.0, 45.0])
+>>> format_spectrum_text(mz, y)
+'41:12 68:100 93:45'
+>>> parse_spectrum_text("")
+"""
+
+from __future__ import annotations
+
+import math
+import re
+
+import numpy as np
+
+from ..limits import MAX_MZ
+
+#: most pairs one cell may hold (a full-scan spectrum from m/z 1 to 5000 at unit resolution)
+MAX_PAIRS = MAX_MZ
+
+_SPLIT = re.compile(r"[\s,;]+")
+
+
+def parse_spectrum_text(text: str) -> tuple[np.ndarray, np.ndarray] | None:
+    """Parse ``m/z:intensity`` pairs; returns ``(mz, intensity)`` float64 arrays sorted by m/z, or None if empty.
+
+    Raises :class:`ValueError` with a one-line message naming the offending pair.
+    """
+    text = (text or "").strip()
+    if not text:
+        return None
+    parts = [p for p in _SPLIT.split(text) if p]
+    if len(parts) > MAX_PAIRS:
+        raise ValueError(f"a spectrum may hold at most {MAX_PAIRS} m/z:intensity pairs, this one has {len(parts)}")
+    mz = np.empty(len(parts))
+    y = np.empty(len(parts))
+    for k, part in enumerate(parts):
+        a, sep, b = part.partition(":")
+        try:
+            if not sep:
+                raise ValueError
+            m, v = float(a), float(b)
+        except ValueError:
+            raise ValueError(f"spectrum pair {part[:40]!r} is not m/z:intensity (for example 93:45)") from None
+        if not (math.isfinite(m) and 1 <= m <= MAX_MZ):
+            raise ValueError(f"spectrum pair {part[:40]!r}: m/z must be between 1 and {MAX_MZ}")
+        if not (math.isfinite(v) and v >= 0):
+            raise ValueError(f"spectrum pair {part[:40]!r}: the intensity must be a number of at least 0")
+        mz[k], y[k] = m, v
+    order = np.argsort(mz, kind="stable")
+    mz, y = mz[order], y[order]
+    dup = np.flatnonzero(np.diff(mz) == 0)
+    if dup.size:
+        raise ValueError(f"spectrum lists m/z {mz[dup[0]]:g} twice")
+    return mz, y
+
+
+def _number(v: float) -> str:
+    return str(int(v)) if float(v).is_integer() and abs(v) < 1e15 else repr(float(v))
+
+
+def format_spectrum_text(mz, intensity) -> str:
+    """The inverse of :func:`parse_spectrum_text` (lossless for float64 values)."""
+    mz = np.asarray(mz, dtype=np.float64)
+    y = np.asarray(intensity, dtype=np.float64)
+    order = np.argsort(mz, kind="stable")
+    return " ".join(f"{_number(m)}:{_number(v)}" for m, v in zip(mz[order], y[order]))
+
+
+__all__ = ["parse_spectrum_text", "format_spectrum_text", "MAX_PAIRS"]
