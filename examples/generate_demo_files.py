@@ -26,8 +26,8 @@ def ladder_time(index: np.ndarray) -> np.ndarray:
 
 
 def main() -> None:
-    from matcher.formula import nominal_mass
-    from matcher.snapshot import CompoundTable, build_snapshot
+    from matcher.chem.formula import nominal_mass
+    from matcher.store.snapshot import CompoundTable, build_snapshot
     from matcher.store.library_io import read_rows
 
     rows, _ = read_rows(os.path.join(HERE, "..", "library", "demo_library.csv"))

@@ -45,10 +45,10 @@ _LAZY = {
     "MatcherError": "matcher.errors",
     "InputError": "matcher.errors",
     "LibraryError": "matcher.errors",
-    "Calibration": "matcher.calibration",
-    "PeakTable": "matcher.peaks",
+    "Calibration": "matcher.retention.calibration",
+    "PeakTable": "matcher.io.peak_tables",
     "ScreenResult": "matcher.results",
-    "QueryResult": "matcher.query",
+    "QueryResult": "matcher.identify.query",
 }
 
 __all__ = ["__version__", "CAUTION", *_LAZY]
@@ -71,7 +71,7 @@ def __dir__():
 
 class _Package(_types.ModuleType):
     """The package module; a submodule named like a public function (``matcher/query.py``)
-    does not replace that function when it is imported (use ``from matcher.query import ...``
+    does not replace that function when it is imported (use ``from matcher.identify.query import ...``
     to reach the module's own names)."""
 
     def __setattr__(self, name, value):

@@ -1,3 +1,3 @@
-from .cli.main import run
+from matcher.cli.main import run
 
 run()

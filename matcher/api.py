@@ -8,15 +8,15 @@ function                   does                                          returns
 =========================  ============================================  ==========================
 ``open_library(db)``       the house library (path, URL, ``$MATCHER_DB``  :class:`Library`
                            or the user data folder)
-``calibrate(ladder)``      fit and check a ladder (path or DataFrame)    :class:`~matcher.calibration.Calibration`
-``read_peaks(path)``       read and check a peak table                   :class:`~matcher.peaks.PeakTable`
+``calibrate(ladder)``      fit and check a ladder (path or DataFrame)    :class:`~matcher.retention.calibration.Calibration`
+``read_peaks(path)``       read and check a peak table                   :class:`~matcher.io.peak_tables.PeakTable`
 ``screen(peaks, ...)``     shortlist every peak of one run or a batch    :class:`~matcher.results.ScreenResult`
-``query(ri, cls, ...)``    shortlist one index                           :class:`~matcher.query.QueryResult`
+``query(ri, cls, ...)``    shortlist one index                           :class:`~matcher.identify.query.QueryResult`
 ``evaluate(...)``          self-check of the library                     :class:`Evaluation`
 =========================  ============================================  ==========================
 
 Settings are keyword-only; ``library=`` takes a :class:`Library`, a path or
-URL, or a :class:`~matcher.snapshot.LibrarySnapshot` already read (``None``:
+URL, or a :class:`~matcher.store.snapshot.LibrarySnapshot` already read (``None``:
 ``$MATCHER_DB``, else the user data folder). Every problem a user can fix
 raises :class:`~matcher.errors.MatcherError` (its subclasses
 ``InputError`` and ``LibraryError`` say more) with the one-line message the
@@ -46,14 +46,14 @@ import os
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, Callable, Sequence
 
-from .errors import MatcherError
+from matcher.errors import MatcherError
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .calibration import Calibration
-    from .peaks import PeakTable
-    from .query import QueryResult
-    from .results import ScreenResult
-    from .snapshot import LibrarySnapshot
+    from matcher.retention.calibration import Calibration
+    from matcher.io.peak_tables import PeakTable
+    from matcher.identify.query import QueryResult
+    from matcher.results import ScreenResult
+    from matcher.store.snapshot import LibrarySnapshot
 
 
 # --------------------------------------------------------------------------- the library handle
@@ -76,14 +76,14 @@ class Library:
     @property
     def url(self) -> str:
         """The SQLAlchemy URL the library resolves to (may hold a password: do not print it)."""
-        from .store.location import resolve
+        from matcher.store.location import resolve
 
         return resolve(self.db)
 
     @property
     def location(self) -> str:
         """The resolved address with any password shown as ``***``."""
-        from .store.location import mask_url
+        from matcher.store.location import mask_url
 
         return mask_url(self.url)
 
@@ -93,49 +93,49 @@ class Library:
     # ------------------------------------------------------------------ create, read
     def init(self) -> int:
         """Create the library (or migrate an older one); returns its revision."""
-        from .store.database import init_library, revision
+        from matcher.store.database import init_library, revision
 
         return revision(init_library(self.db))
 
     def snapshot(self) -> "LibrarySnapshot":
         """The whole library read once, as screening and queries use it (pass it as ``library=`` to reuse)."""
-        from .store.snapshot_loader import load_snapshot
+        from matcher.store.snapshot_loader import load_snapshot
 
         return load_snapshot(self.db)
 
     def find(self, text: str, *, limit: int = 10) -> list:
         """Compounds whose names, synonyms, CAS numbers or formulas resemble ``text`` (typo tolerant)."""
-        from .store.inspect import find
+        from matcher.store.inspect import find
 
         return find(self.db, text, limit)
 
     def show(self, name: str) -> dict:
         """One compound: identity, per-class centre/spread/count and every observation."""
-        from .store.inspect import show
+        from matcher.store.inspect import show
 
         return show(self.db, name)
 
     def history(self, name: str) -> list[dict]:
         """The audit trail of one compound."""
-        from .curation import history
+        from matcher.curate.library_edits import history
 
         return history(self.db, name)
 
     def stats(self) -> dict:
         """Entries per class and how densely they cover the index range."""
-        from .store.inspect import stats
+        from matcher.store.inspect import stats
 
         return stats(self.db)
 
     def check(self, *, strict: bool = False) -> list[str]:
         """Integrity problems (an empty list when healthy)."""
-        from .store.inspect import check
+        from matcher.store.inspect import check
 
         return check(self.db, strict=strict)
 
     def export(self, path: str | os.PathLike | None = None) -> str:
         """The library as library-CSV text, also written to ``path`` (``.csv`` or ``.xlsx``) when given."""
-        from .store.library_io import export_library
+        from matcher.store.library_io import export_library
 
         return export_library(self.db, None if path is None else os.fspath(path))
 
@@ -143,7 +143,7 @@ class Library:
     def import_file(self, path: str | os.PathLike, *, replace: bool = False, dry_run: bool = False,
                     analyst: str | None = None):
         """Import a library CSV/XLSX: every row checked first, then one transaction (``matcher library import``)."""
-        from .store.library_io import import_library
+        from matcher.store.library_io import import_library
 
         return import_library(self.db, os.fspath(path), replace=replace, who=analyst, dry_run=dry_run)
 
@@ -152,7 +152,7 @@ class Library:
             source: str | None = None, analyst: str | None = None, force: bool = False, new: bool = False,
             as_existing: str | None = None, ask: Callable | None = None):
         """Add one confirmed retention index (name resolution and outlier guard as ``matcher library add``)."""
-        from .curation import add_confirmed
+        from matcher.curate.library_edits import add_confirmed
 
         return add_confirmed(self.db, name, phase_class, ri, formula=formula, cas=cas, inchikey=inchikey, phase=phase,
                              mode=mode, date=date, source=source, analyst=analyst, force=force, new=new,
@@ -162,20 +162,20 @@ class Library:
                 source: str | None = None, analyst: str | None = None, force: bool = False, new: bool = False,
                 as_existing: str | None = None, measured: bool = False, ask: Callable | None = None):
         """Add a peak of a screening output confirmed with a standard (``matcher confirm``)."""
-        from .curation import confirm_from_results
+        from matcher.curate.library_edits import confirm_from_results
 
         return confirm_from_results(self.db, results, peak, name, run=run, source=source, analyst=analyst,
                                     force=force, new=new, as_existing=as_existing, measured=measured, ask=ask)
 
     def retire(self, observation: int, why: str, *, analyst: str | None = None) -> dict:
         """Stop using an observation (the row stays, with the reason)."""
-        from .curation import retire
+        from matcher.curate.library_edits import retire
 
         return retire(self.db, observation, why, analyst=analyst)
 
     def merge(self, other: "Library | str | os.PathLike", *, analyst: str | None = None):
         """Merge another library (handle, path, URL, or a library CSV/XLSX); conflicts reported, never overwritten."""
-        from .library_merge import merge
+        from matcher.curate.merge import merge
 
         other_db = other.db if isinstance(other, Library) else os.fspath(other)
         if other_db is None:
@@ -184,13 +184,13 @@ class Library:
 
     def backup(self, path: str | os.PathLike, *, overwrite: bool = False):
         """A consistent copy of a SQLite library, safe while others write."""
-        from .store.backup import backup
+        from matcher.store.backup import backup
 
         return backup(self.db, path, overwrite=overwrite)
 
     def copy_to(self, destination: "Library | str | os.PathLike", *, replace: bool = False):
         """Copy the whole library (audit trail included) to another backend."""
-        from .store.copying import copy_library
+        from matcher.store.copying import copy_library
 
         dst = destination.db if isinstance(destination, Library) else os.fspath(destination)
         return copy_library(self.db, dst, replace=replace)
@@ -213,7 +213,7 @@ def open_library(db: str | os.PathLike | None = None, *, create: bool = False) -
 
 def _source(library: Any) -> dict[str, Any]:
     """``library=`` as the engine's arguments: ``{"snapshot": ...}`` or ``{"db": ...}`` (read after the checks)."""
-    from .snapshot import LibrarySnapshot
+    from matcher.store.snapshot import LibrarySnapshot
 
     if isinstance(library, LibrarySnapshot):
         return {"snapshot": library}
@@ -226,7 +226,7 @@ def _source(library: Any) -> dict[str, Any]:
 
 def _snapshot(library: Any) -> "LibrarySnapshot":
     """A snapshot from a :class:`Library`, a path or URL, a snapshot, or ``None`` (the default library)."""
-    from .snapshot import LibrarySnapshot
+    from matcher.store.snapshot import LibrarySnapshot
 
     if isinstance(library, LibrarySnapshot):
         return library
@@ -242,20 +242,20 @@ def _snapshot(library: Any) -> "LibrarySnapshot":
 def calibrate(ladder: Any, *, mode: str = "programmed", holdup: str | None = None, dead_time: float | None = None,
               marker: float | None = None, series: str | None = None, rt_unit: str | None = None,
               header_map: dict[str, str] | None = None) -> "Calibration":
-    """Fit and check a reference ladder; returns the :class:`~matcher.calibration.Calibration`.
+    """Fit and check a reference ladder; returns the :class:`~matcher.retention.calibration.Calibration`.
 
     ``ladder`` is a ladder file (CSV, TSV, XLSX), a pandas DataFrame with the
     same columns (``rt`` in minutes, ``carbons`` or ``index``, optional
-    ``name``) or a :class:`~matcher.ladder.Ladder`. ``mode`` is
+    ``name``) or a :class:`~matcher.retention.ladder.Ladder`. ``mode`` is
     ``programmed`` (van den Dool & Kratz) or ``isothermal`` (Kováts, with a
     hold-up time: ``dead_time``, ``marker`` or ``holdup`` method). Save it with
     ``.save(path)``; convert times with ``.convert(rt_minutes)``.
     """
-    from .calibration import calibrate as _calibrate
-    from .holdup import METHODS
-    from .ladder import Ladder, read_ladder
-    from .rules import choice
-    from .series import SERIES
+    from matcher.retention.calibration import calibrate as _calibrate
+    from matcher.retention.holdup import METHODS
+    from matcher.retention.ladder import Ladder, read_ladder
+    from matcher.rules import choice
+    from matcher.retention.series import SERIES
 
     holdup = choice(holdup, METHODS, "--holdup")
     series = choice(series, tuple(SERIES), "--series")
@@ -265,8 +265,8 @@ def calibrate(ladder: Any, *, mode: str = "programmed", holdup: str | None = Non
 
 
 def read_peaks(path: Any, *, rt_unit: str | None = None, header_map: dict[str, str] | None = None) -> "PeakTable":
-    """Read and check a peak table (file or DataFrame); see :mod:`matcher.peaks` for the columns."""
-    from .peaks import read_peaks as _read_peaks
+    """Read and check a peak table (file or DataFrame); see :mod:`matcher.io.peak_tables` for the columns."""
+    from matcher.io.peak_tables import read_peaks as _read_peaks
 
     return _read_peaks(path, rt_unit=rt_unit, overrides=header_map)
 
@@ -280,9 +280,9 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
            labels: Sequence[str] | None = None, progress: Callable[[int], None] | None = None) -> "ScreenResult":
     """Shortlist every peak of one run, or of a batch, against one class of the library.
 
-    ``peaks``: a peak table (path, DataFrame or :class:`~matcher.peaks.PeakTable`)
+    ``peaks``: a peak table (path, DataFrame or :class:`~matcher.io.peak_tables.PeakTable`)
     or a list of them. Times become indices through ``calibration`` (a
-    :class:`~matcher.calibration.Calibration` or a saved file) or ``ladder``
+    :class:`~matcher.retention.calibration.Calibration` or a saved file) or ``ladder``
     (a ladder file or DataFrame, fitted with ``mode``): one for all runs or
     one per run; a table with an ``ri`` column needs neither. The library is
     read once. Returns a :class:`~matcher.results.ScreenResult`: ``.table``
@@ -293,7 +293,7 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
     index units; the run refines it); ``split_peaks=True`` lets one compound
     explain several peaks.
     """
-    from .screening import screen as _screen
+    from matcher.identify.screening import screen as _screen
 
     return _screen(peaks, phase_class, **_source(library), calibration=calibration, ladder=ladder, mode=mode,
                    dead_time=dead_time, rt_unit=rt_unit, header_map=header_map, window=window,
@@ -308,7 +308,7 @@ def query(ri: float, phase_class: str, *, library: Any = None, window: float | N
           hit: str | None = None, hit_score: float | None = None, top: int | None = None,
           fallback: bool = False, homologues: bool = False, measurement_sd: float | None = None,
           crowding: str | float | None = None) -> "QueryResult":
-    """Ranked candidates for one retention index; returns a :class:`~matcher.query.QueryResult`.
+    """Ranked candidates for one retention index; returns a :class:`~matcher.identify.query.QueryResult`.
 
     ``ions`` are key ions (whole m/z: a list or text such as ``"93 136"``);
     ``hit`` and ``hit_score`` (0-100) are your spectral search's proposal.
@@ -316,7 +316,7 @@ def query(ri: float, phase_class: str, *, library: Any = None, window: float | N
     same as a DataFrame, ``result.to_dict()`` is the ``matcher query --json``
     document.
     """
-    from .query import query as _query
+    from matcher.identify.query import query as _query
 
     return _query(ri, phase_class, **_source(library), window=window, window_percent=window_percent,
                   mol_ion=mol_ion, ions=ions, hit=hit, hit_score=hit_score, top=top, fallback=fallback,
@@ -346,8 +346,8 @@ class Evaluation:
 def evaluate(library: Any = None, *, phase_class: str | None = None, noise: float = 0.0,
              window: float | None = None) -> Evaluation:
     """Self-check of the library by resampling it: leave-one-out and removal queries, confusable pairs."""
-    from .evaluation import evaluate as _evaluate
-    from .rules import check_class, check_noise, check_window
+    from matcher.identify.evaluation import evaluate as _evaluate
+    from matcher.rules import check_class, check_noise, check_window
 
     if phase_class is not None:
         phase_class = check_class(phase_class)
@@ -361,7 +361,7 @@ def _tiny_snapshot():
     """A two-compound library for the examples above (invented indices)."""
     import numpy as np
 
-    from .snapshot import CompoundTable, build_snapshot
+    from matcher.store.snapshot import CompoundTable, build_snapshot
 
     return build_snapshot(
         CompoundTable.from_records([{"id": 1, "name": "limonene", "formula": "C10H16"},

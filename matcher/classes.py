@@ -23,7 +23,7 @@ highly-polar       biscyanopropyl polysiloxane and similar         > 3000       
 
 from __future__ import annotations
 
-from .rules import PHASE_CLASSES, check_class  # the class names and their check are declared in matcher.rules
+from matcher.rules import PHASE_CLASSES, check_class  # the class names and their check are declared in matcher.rules
 
 __all__ = ["PHASE_CLASSES", "check_class", "DEFAULT_WINDOWS", "MCREYNOLDS_SUM_UPPER", "NEIGHBOUR_CLASS", "default_window"]
 

@@ -29,14 +29,14 @@ class DemoOutcome:
 
 def run_demo(out_dir: str = "matcher-demo") -> DemoOutcome:
     """Run the demo into ``out_dir`` (created if needed; earlier demo files there are replaced)."""
-    from .calibration import calibrate
-    from .errors import MatcherError
-    from .ladder import read_ladder
-    from .report_html import write_report
-    from .screening import screen
-    from .store.database import init_library
-    from .store.library_io import import_library
-    from .writers import write_results
+    from matcher.retention.calibration import calibrate
+    from matcher.errors import MatcherError
+    from matcher.retention.ladder import read_ladder
+    from matcher.report.html import write_report
+    from matcher.identify.screening import screen
+    from matcher.store.database import init_library
+    from matcher.store.library_io import import_library
+    from matcher.report.files import write_results
 
     folder = os.path.abspath(out_dir)
     try:

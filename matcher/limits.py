@@ -2,8 +2,8 @@
 
 A value typed on the command line obeys the same rule as the same value read
 from a file, with the same one-line message (raised as
-:class:`~matcher.errors.MatcherError`). The file readers (:mod:`matcher.tables`,
-:mod:`matcher.peaks`, the library reader) take their bounds from here.
+:class:`~matcher.errors.MatcherError`). The file readers (:mod:`matcher.io.delimited`,
+:mod:`matcher.io.peak_tables`, the library reader) take their bounds from here.
 
 >>> check_sd(2.5)
 2.5
@@ -28,7 +28,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from .errors import MatcherError
+from matcher.errors import MatcherError
 
 #: Longest text cell (and name, source, synonym...) accepted, in characters.
 MAX_CELL = 1000

@@ -131,12 +131,12 @@ class RunResult:
     window: dict[str, Any]           # {"mode": "fixed"|"percent", "value": float}
     table: Any                       # pandas.DataFrame, columns SHORTLIST_COLUMNS + DETAIL_COLUMNS
     calibration: dict[str, Any] | None = None   # the calibration document used (None when the table had ri)
-    correction: dict[str, Any] | None = None    # adaptive fit, see matcher.adaptive
+    correction: dict[str, Any] | None = None    # adaptive fit, see matcher.identify.adaptive
     measurement_sd: float | None = None          # index scatter assumed for this run
-    run_model: dict[str, Any] = field(default_factory=dict)  # fitted in-library share and scatter, see matcher.run_model
+    run_model: dict[str, Any] = field(default_factory=dict)  # fitted in-library share and scatter, see matcher.identify.run_model
     notices: list[str] = field(default_factory=list)
     peak_count: int = 0
-    checksum: str = ""               # SHA-256 of the peak table's normalised content (matcher.peaks.content_checksum)
+    checksum: str = ""               # SHA-256 of the peak table's normalised content (matcher.io.peak_tables.content_checksum)
 
 
 @dataclass
@@ -154,7 +154,7 @@ class ScreenResult:
     @property
     def table(self):
         """All runs' shortlists as one pandas DataFrame (output columns in order, ``run`` tells runs apart)."""
-        from .writers import combined_table
+        from matcher.report.files import combined_table
 
         return combined_table(self)
 
@@ -165,33 +165,33 @@ class ScreenResult:
 
     def to_dict(self) -> dict[str, Any]:
         """The JSON document of the screen output (``"content": "shortlist"``)."""
-        from .writers import results_document
+        from matcher.report.files import results_document
 
         return results_document(self)
 
     def write(self, path: str | os.PathLike) -> list:
         """Write the shortlist in the format the suffix names (.csv with its sidecar, .json, .xlsx)."""
-        from .rules import check_shortlist_path
-        from .writers import write_results
+        from matcher.rules import check_shortlist_path
+        from matcher.report.files import write_results
 
         check_shortlist_path(path)
         return write_results(self, path)
 
     def to_csv(self, path: str | os.PathLike) -> list:
         """The shortlist CSV and its provenance sidecar ``path + '.meta.json'``; returns both paths."""
-        from .writers import write_csv
+        from matcher.report.files import write_csv
 
         return write_csv(self, path)
 
     def to_json(self, path: str | os.PathLike | None = None):
         """The JSON document written to ``path`` (returns the paths), or as text when no path is given."""
-        from .writers import results_text, write_json
+        from matcher.report.files import results_text, write_json
 
         return results_text(self) if path is None else write_json(self, path)
 
     def to_xlsx(self, path: str | os.PathLike) -> list:
         """The workbook (sheets ``shortlist`` and ``runs``)."""
-        from .writers import write_xlsx
+        from matcher.report.files import write_xlsx
 
         return write_xlsx(self, path)
 
@@ -199,8 +199,8 @@ class ScreenResult:
         """The self-contained HTML report; returns its path."""
         from pathlib import Path
 
-        from .report_html import write_report
-        from .rules import check_report_path
+        from matcher.report.html import write_report
+        from matcher.rules import check_report_path
 
         check_report_path(path)
         write_report(self, path, max_peaks=max_peaks)

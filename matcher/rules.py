@@ -54,10 +54,10 @@ import os
 import re
 from typing import Any, Iterable
 
-from .errors import MatcherError
-from .limits import MAX_MZ, MAX_RT_MIN
-from .limits import MAX_RI as RI_MAX
-from .limits import check_ri as _limits_check_ri
+from matcher.errors import MatcherError
+from matcher.limits import MAX_MZ, MAX_RT_MIN
+from matcher.limits import MAX_RI as RI_MAX
+from matcher.limits import check_ri as _limits_check_ri
 
 # --------------------------------------------------------------------------- vocabularies
 

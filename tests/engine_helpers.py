@@ -7,7 +7,7 @@ from pathlib import Path
 
 import numpy as np
 
-from matcher.snapshot import CompoundTable, build_snapshot
+from matcher.store.snapshot import CompoundTable, build_snapshot
 
 DATA = Path(__file__).resolve().parent / "data"
 
@@ -33,7 +33,7 @@ def essential_oils():
 
 
 def oils_snapshot(column="ri_adams", phase_class="slightly-polar"):
-    from matcher.formula import nominal_mass
+    from matcher.chem.formula import nominal_mass
 
     rows = essential_oils()
     comp = CompoundTable.from_records(

@@ -9,9 +9,9 @@ import jsonschema
 import numpy as np
 import pytest
 
-from matcher.calibration import Calibration, calibrate, load_schema
+from matcher.retention.calibration import Calibration, calibrate, load_schema
 from matcher.errors import InputError
-from matcher.ladder import read_ladder
+from matcher.retention.ladder import read_ladder
 
 
 def write(tmp_path, text, name="ladder.csv"):

@@ -7,12 +7,12 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from matcher.candidates import half_widths, window_pairs
+from matcher.identify.window_search import half_widths, window_pairs
 from matcher.classes import DEFAULT_WINDOWS, PHASE_CLASSES
-from matcher.evidence import Model
-from matcher.query import query as _query
-from matcher.shortlist import PeakInput, prepare, shortlist
-from matcher.snapshot import CompoundTable, build_snapshot
+from matcher.identify.evidence import Model
+from matcher.identify.query import query as _query
+from matcher.identify.shortlist import PeakInput, prepare, shortlist
+from matcher.store.snapshot import CompoundTable, build_snapshot
 
 from engine_helpers import synthetic_snapshot
 
@@ -87,7 +87,7 @@ def test_molecular_ion_disagreement_lowers_a_candidate():
     assert "mass-mismatch" in with_ion["1,8-cineole"]["flags"]
     assert "mass-match" in with_ion["limonene"]["flags"]
     # m/z 136 agrees, but near 1031 half the class's compounds have mass 136, so an unlisted isomer is
-    # as likely to show it: the agreement is worth ln(0.95 / q(136 | 1031)), about 1.06 (matcher.unlisted)
+    # as likely to show it: the agreement is worth ln(0.95 / q(136 | 1031)), about 1.06 (matcher.identify.unlisted)
     assert with_ion["limonene"]["evidence"]["mol_ion"] == pytest.approx(1.06, abs=0.02)
     assert 0.8 < with_ion["limonene"]["probability"] < 0.9
 

@@ -11,7 +11,7 @@ from __future__ import annotations
 import pytest
 from hypothesis import given, strategies as st
 
-from matcher.cas import check_digit, is_valid_cas, normalise_cas
+from matcher.chem.cas import check_digit, is_valid_cas, normalise_cas
 
 PUBLISHED = [
     ("water", "7732-18-5"),

@@ -15,10 +15,10 @@ import numpy as np
 import pytest
 from typer.testing import CliRunner
 
-from matcher.calibration import load_schema
+from matcher.retention.calibration import load_schema
 from matcher.cli.main import app
 from matcher.errors import InputError
-from matcher.linear_index import van_den_dool_kratz
+from matcher.retention.linear_index import van_den_dool_kratz
 
 runner = CliRunner()
 

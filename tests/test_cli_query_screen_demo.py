@@ -171,7 +171,7 @@ def test_anchors_file_drives_the_correction(lib, tmp_path):
     doc = json.loads(out.read_text())
     text = json.dumps(doc)
     assert '"applied": true' in text and "anchors file" in text
-    from matcher.screening import screen
+    from matcher.identify.screening import screen
 
     result = screen([str(tmp_path / "shifted.csv")], "slightly-polar", db=lib, anchors=str(tmp_path / "anchors.csv"))
     corr = result.runs[0].correction

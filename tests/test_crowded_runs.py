@@ -20,12 +20,12 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from matcher.assignment import assign
-from matcher.formula import nominal_mass
-from matcher.screening import screen_run
-from matcher.shortlist import PeakInput, prepare
-from matcher.snapshot import CompoundTable, build_snapshot
-from matcher.unlisted import crowding_density
+from matcher.identify.assignment import assign
+from matcher.chem.formula import nominal_mass
+from matcher.identify.screening import screen_run
+from matcher.identify.shortlist import PeakInput, prepare
+from matcher.store.snapshot import CompoundTable, build_snapshot
+from matcher.identify.unlisted import crowding_density
 
 from engine_helpers import essential_oils, synthetic_snapshot
 
@@ -179,7 +179,7 @@ def test_crowding_prior_names_and_numbers():
 
 
 def test_a_crowded_prior_lowers_a_single_query():
-    from matcher.query import query
+    from matcher.identify.query import query
 
     snap = synthetic_snapshot([1000.0], phase_class="nonpolar")
     sparse = query(1000.0, "nonpolar", snapshot=snap, crowding="sparse").candidates[0]["probability"]
@@ -188,7 +188,7 @@ def test_a_crowded_prior_lowers_a_single_query():
 
 
 def test_a_hit_naming_a_compound_outside_the_library_is_evidence_for_unlisted():
-    from matcher.query import query
+    from matcher.identify.query import query
 
     snap = synthetic_snapshot([1000.0], phase_class="nonpolar", names=["alpha-pinene"])
     base = query(1000.0, "nonpolar", snapshot=snap).not_in_library
@@ -240,9 +240,9 @@ def test_the_joint_posterior_equals_a_sum_over_all_assignments():
 
 def test_isothermal_time_at_or_before_the_holdup_time_is_refused():
     """Kováts (Helv. Chim. Acta 41, 1915, 1958): I needs log(tR - tM), undefined for tR <= tM."""
-    from matcher.calibration import calibrate
+    from matcher.retention.calibration import calibrate
     from matcher.errors import MatcherError
-    from matcher.ladder import Ladder
+    from matcher.retention.ladder import Ladder
 
     lad = Ladder("ladder.csv", "alkanes", np.array([2.0, 3.0, 5.0]), np.array([800.0, 900.0, 1000.0]),
                  ["octane", "nonane", "decane"], np.array([8, 9, 10]), np.array([1, 2, 3]))

@@ -1,4 +1,4 @@
-"""Curation API (matcher.curation): adding confirmed compounds, the outlier guard, confirm from
+"""Curation API (matcher.curate.library_edits): adding confirmed compounds, the outlier guard, confirm from
 screening outputs, history, retire, merge, backup, and concurrent writers.
 
 Retention indices used as "confirmed" values are close to the published DB-5 values of
@@ -21,12 +21,12 @@ from importlib.resources import as_file, files
 import numpy as np
 import pytest
 
-from matcher import curation as cu
-from matcher.library_merge import merge
+from matcher.curate import library_edits as cu
+from matcher.curate.merge import merge
 from matcher.store.backup import backup
 from matcher.classes import DEFAULT_WINDOWS
 from matcher.errors import LibraryError, MatcherError, RefusedChange
-from matcher.snapshot import SPREAD_FLOOR, summarise
+from matcher.store.snapshot import SPREAD_FLOOR, summarise
 from matcher.store.inspect import check, show
 from matcher.store.library_io import export_library, import_library
 
@@ -247,10 +247,10 @@ def test_centre_and_spread_match_a_direct_computation(library_url):
 @pytest.fixture
 def screened(demo_url, tmp_path):
     """A real screening of the example run against the demo library: CSV (+ sidecar) and JSON."""
-    from matcher.calibration import calibrate
-    from matcher.ladder import read_ladder
-    from matcher.screening import screen
-    from matcher.writers import write_results
+    from matcher.retention.calibration import calibrate
+    from matcher.retention.ladder import read_ladder
+    from matcher.identify.screening import screen
+    from matcher.report.files import write_results
 
     with as_file(files("matcher.examples").joinpath("ladder.csv")) as lad, \
             as_file(files("matcher.examples").joinpath("run.csv")) as run:
@@ -321,10 +321,10 @@ def test_confirm_twice_and_bad_peaks_change_nothing(screened, tmp_path):
 
 
 def test_confirm_needs_the_run_when_the_output_holds_several(demo_url, tmp_path):
-    from matcher.writers import write_results
-    from matcher.screening import screen
-    from matcher.calibration import calibrate
-    from matcher.ladder import read_ladder
+    from matcher.report.files import write_results
+    from matcher.identify.screening import screen
+    from matcher.retention.calibration import calibrate
+    from matcher.retention.ladder import read_ladder
 
     with as_file(files("matcher.examples").joinpath("ladder.csv")) as lad, \
             as_file(files("matcher.examples").joinpath("run.csv")) as run:
@@ -466,8 +466,8 @@ def test_backup_is_a_faithful_copy(demo_url, tmp_path):
 
 _WRITER = r"""
 import sys, time
-from matcher import curation as cu
-from matcher.library_merge import merge
+from matcher.curate import library_edits as cu
+from matcher.curate.merge import merge
 from matcher.store.backup import backup
 url, tag, count, start = sys.argv[1], sys.argv[2], int(sys.argv[3]), float(sys.argv[4])
 while time.time() < start:

@@ -463,7 +463,7 @@ def test_impossible_molecular_ions(lab, m):
 
 def test_the_python_functions_apply_the_same_rules(lab):
     from matcher.errors import MatcherError
-    from matcher.query import query
+    from matcher.identify.query import query
 
     with pytest.raises(MatcherError, match="--sd must be a finite number greater than 0"):
         query(1000, "nonpolar", db=str(lab["db"]), measurement_sd=0)

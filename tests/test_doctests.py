@@ -25,11 +25,11 @@ def test_doctests(name):
 #: Functions implementing a published method, documented in the function itself (parameters with units,
 #: returns, the equation, an example with its source, numbered references).
 PUBLISHED_METHODS = [
-    ("matcher.kovats", "kovats"), ("matcher.kovats", "kovats_index"),
-    ("matcher.linear_index", "van_den_dool_kratz"), ("matcher.linear_index", "linear_index"),
-    ("matcher.holdup", "peterson_hirsch"), ("matcher.holdup", "fit_holdup"),
-    ("matcher.phases", "classify"), ("matcher.cas", "check_digit"), ("matcher.formula", "nominal_mass"),
-    ("matcher.series", "assigned_index"), ("matcher.series", "lee_index"),
+    ("matcher.retention.kovats", "kovats"), ("matcher.retention.kovats", "kovats_index"),
+    ("matcher.retention.linear_index", "van_den_dool_kratz"), ("matcher.retention.linear_index", "linear_index"),
+    ("matcher.retention.holdup", "peterson_hirsch"), ("matcher.retention.holdup", "fit_holdup"),
+    ("matcher.retention.phases", "classify"), ("matcher.chem.cas", "check_digit"), ("matcher.chem.formula", "nominal_mass"),
+    ("matcher.retention.series", "assigned_index"), ("matcher.retention.series", "lee_index"),
 ]
 
 

@@ -8,8 +8,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from matcher.errors import MatcherError
-from matcher.holdup import equally_spaced_triple, fit_holdup, peterson_hirsch, resolve_holdup
-from matcher.kovats import kovats_index
+from matcher.retention.holdup import equally_spaced_triple, fit_holdup, peterson_hirsch, resolve_holdup
+from matcher.retention.kovats import kovats_index
 
 
 def exact(tm, a, b, carbons):

@@ -3,7 +3,7 @@
 Every case of the corpus in ``tests/hostile/`` (and the binary ones generated
 here) is either refused -- ONE line on standard error that names the file,
 the data row and the column, exit code 2, no traceback, nothing written -- or
-read as documented in :mod:`matcher.tables` (UTF-8 byte-order mark, UTF-16
+read as documented in :mod:`matcher.io.delimited` (UTF-8 byte-order mark, UTF-16
 with a byte-order mark, semicolons with decimal commas), with the values
 checked.
 
@@ -472,7 +472,7 @@ def test_embedded_newline_in_a_name_is_kept(tmp_path):
 
 def test_embedded_newline_is_carried_by_a_quoted_cell(tmp_path):
     # the reader keeps the quoted newline (what the store then does with it is the test above)
-    from matcher.tables import load_table, texts
+    from matcher.io.delimited import load_table, texts
 
     lib = write_library_csv(tmp_path / "nl.csv", [(NEWLINE_NAME, "nonpolar", "1100", "", ""), LIBRARY_ROWS[0]])
     raw = load_table(lib)

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from matcher.errors import InputError
-from matcher.ladder import check_ladder, read_ladder
+from matcher.retention.ladder import check_ladder, read_ladder
 
 
 def lad(tmp_path, text, name="ladder.csv"):

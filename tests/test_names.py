@@ -10,7 +10,7 @@ from __future__ import annotations
 import pytest
 from hypothesis import given, strategies as st
 
-from matcher.names import matching_key, rank, search_text
+from matcher.chem.names import matching_key, rank, search_text
 
 SAME = [
     ("α-pinene", "alpha-pinene", "Alpha Pinene", "ALPHA-PINENE", "alpha pinene"),
@@ -107,7 +107,7 @@ def test_greek_letters_equal_their_names(text):
 
 def test_greek_shorthand_with_a_typo_prefers_the_right_letter():
     # chemists' shorthand: "a-" for alpha (common practice, no single source)
-    from matcher.names import rank
+    from matcher.chem.names import rank
 
     choices = ["β-pinene", "α-pinene", "limonene"]
     assert rank("a-pinen", choices, limit=1)[0][0] == 1

@@ -8,7 +8,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from matcher.errors import InputError, MatcherError
-from matcher.peaks import read_peaks, time_unit
+from matcher.io.peak_tables import read_peaks, time_unit
 
 
 def pk(tmp_path, text, name="peaks.csv"):

@@ -14,7 +14,7 @@ import pytest
 
 from matcher.classes import MCREYNOLDS_SUM_UPPER, PHASE_CLASSES
 from matcher.errors import MatcherError
-from matcher.phases import catalog, classify, find_phase, mcreynolds_sum
+from matcher.retention.phases import catalog, classify, find_phase, mcreynolds_sum
 
 
 def test_squalane_is_the_zero_reference():

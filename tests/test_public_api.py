@@ -59,8 +59,8 @@ def test_public_names_and_submodule_of_the_same_name():
         assert name in matcher.__all__ and name in dir(matcher)
     import importlib
 
-    module = importlib.import_module("matcher.query")  # the submodule must not replace the function
-    from matcher.query import QueryResult
+    module = importlib.import_module("matcher.identify.query")  # the submodule must not replace the function
+    from matcher.identify.query import QueryResult
 
     assert module.QueryResult is QueryResult and matcher.query is not module
 
@@ -179,7 +179,7 @@ def test_screen_result_writes_every_format(demo_lib, tmp_path):
     assert pd.read_csv(tmp_path / "s.csv").shape[0] == len(result.table)
     result.to_json(tmp_path / "s.json")
     doc = json.loads((tmp_path / "s.json").read_text(encoding="utf-8"))
-    from matcher.writers import output_schema
+    from matcher.report.files import output_schema
 
     jsonschema.Draft202012Validator(output_schema()).validate(doc)
     assert json.loads(result.to_json())["runs"][0]["peak_count"] == 8

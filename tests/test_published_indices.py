@@ -15,10 +15,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from matcher.evidence import Model
-from matcher.query import query as _query
-from matcher.screening import screen_run
-from matcher.shortlist import PeakInput, prepare
+from matcher.identify.evidence import Model
+from matcher.identify.query import query as _query
+from matcher.identify.screening import screen_run
+from matcher.identify.shortlist import PeakInput, prepare
 
 from engine_helpers import oils_snapshot, top_of
 
@@ -72,7 +72,7 @@ def test_recall_without_mass_hints(oils):
     rows, snap, _ = oils
     home = prepare(snap, "slightly-polar")
     x = np.array([float(r["ri_compilation"]) for r in rows])
-    from matcher.shortlist import shortlist
+    from matcher.identify.shortlist import shortlist
 
     sl = shortlist(home, PeakInput(x), Model(3.0))
     names, _ = top_of(sl, len(rows))

@@ -18,7 +18,7 @@ from pathlib import Path
 import pytest
 
 from matcher import CAUTION
-from matcher.report_html import render_report, write_report
+from matcher.report.html import render_report, write_report
 
 _spec = importlib.util.spec_from_file_location("result_factory", Path(__file__).with_name("result_factory.py"))
 result_factory = importlib.util.module_from_spec(_spec)

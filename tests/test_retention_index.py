@@ -9,8 +9,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from matcher.kovats import kovats, kovats_index
-from matcher.linear_index import linear_index, van_den_dool_kratz
+from matcher.retention.kovats import kovats, kovats_index
+from matcher.retention.linear_index import linear_index, van_den_dool_kratz
 
 
 def test_n_alkane_index_is_100n_on_any_phase():

@@ -12,10 +12,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from matcher.evidence import Model
-from matcher.screening import run_flags, screen_run
-from matcher.shortlist import PeakInput, prepare, shortlist
-from matcher.snapshot import CompoundTable, build_snapshot
+from matcher.identify.evidence import Model
+from matcher.identify.screening import run_flags, screen_run
+from matcher.identify.shortlist import PeakInput, prepare, shortlist
+from matcher.store.snapshot import CompoundTable, build_snapshot
 
 from engine_helpers import expected_calibration_error, synthetic_snapshot, top_of
 

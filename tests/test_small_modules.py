@@ -12,7 +12,12 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from matcher import hints, homologues, identifiers, results_reader, rules, run_summary, series, svg_plots, textable
+from matcher.identify import hints, homologues
+from matcher.chem import identifiers
+from matcher.io import result_files as results_reader
+from matcher import rules
+from matcher.report import summary as run_summary, svg as svg_plots, terminal as textable
+from matcher.retention import series
 from matcher.errors import InputError, MatcherError
 from matcher.store import location
 
@@ -20,7 +25,8 @@ from matcher.store import location
 # --------------------------------------------------------------------------- rules
 
 def test_rules_vocabularies_are_the_ones_the_other_modules_use():
-    from matcher import calibration, classes
+    from matcher.retention import calibration
+    from matcher import classes
     from matcher.store import library_io, models
 
     assert classes.PHASE_CLASSES is rules.PHASE_CLASSES
@@ -160,7 +166,7 @@ def test_homologue_increment_of_the_alkanes_is_one_hundred():
 
 def test_read_peak_from_a_screen_json(tmp_path):
     from result_factory import make_result
-    from matcher.writers import write_json
+    from matcher.report.files import write_json
 
     result = make_result()
     path = tmp_path / "out.json"

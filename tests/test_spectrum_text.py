@@ -6,7 +6,7 @@ from hypothesis import given, strategies as st
 
 from matcher.errors import InputError
 from matcher.io.spectrum_text import format_spectrum_text, parse_spectrum_text
-from matcher.peaks import read_peaks
+from matcher.io.peak_tables import read_peaks
 
 
 def test_pairs_sorted_and_separators():

@@ -146,7 +146,7 @@ def test_fast_and_sqlalchemy_snapshots_identical(library_url, demo_csv):
 
 
 def test_snapshot_content_matches_direct_computation(library_url, demo_csv):
-    # the centre of each entry is the median of the active observations (matcher.snapshot rules)
+    # the centre of each entry is the median of the active observations (matcher.store.snapshot rules)
     import_library(library_url, demo_csv)
     snap = load_snapshot(library_url)
     assert snap.source == library_url and snap.revision == str(dbm.revision(library_url))

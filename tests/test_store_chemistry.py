@@ -17,8 +17,8 @@ import io
 import pytest
 from hypothesis import given, strategies as st
 
-from matcher.cas import is_valid_cas
-from matcher.formula import hill_formula, nominal_mass, parse_formula
+from matcher.chem.cas import is_valid_cas
+from matcher.chem.formula import hill_formula, nominal_mass, parse_formula
 
 FORMULAS = ["C10H16", "C10H18O", "C15H24", "C12H20O2", "C6H5Cl", "CH3(CH2)4OH", "C2H6OS", "C7H5NO", "C6H12O6", "SiC8H24O4"]
 

@@ -166,7 +166,7 @@ from sqlalchemy import select
 from matcher.store.database import run_write
 from matcher.store import writes
 from matcher.store.models import Compound
-from matcher.names import matching_key
+from matcher.chem.names import matching_key
 
 url, me, start = sys.argv[1], int(sys.argv[2]), float(sys.argv[3])
 NAMES = ["invented-ene A", "invented-ene B", "invented-ol C", "invented-one D", "invented-al E"]

@@ -10,7 +10,7 @@ from hypothesis import given, settings, HealthCheck
 from hypothesis import strategies as st
 
 from matcher.errors import InputError
-from matcher.tables import load_table, map_headers, numbers, texts
+from matcher.io.delimited import load_table, map_headers, numbers, texts
 
 
 def write(tmp_path, name, content, mode="w", encoding="utf-8"):
@@ -128,7 +128,7 @@ def test_duplicate_header_refused(tmp_path):
 
 
 def test_long_field_is_refused_and_echo_is_capped(tmp_path):
-    from matcher.tables import MAX_CELL
+    from matcher.io.delimited import MAX_CELL
 
     ok = "x" * MAX_CELL
     raw = load_table(write(tmp_path, "ok.csv", f"peak,rt\n{ok},5\n"))

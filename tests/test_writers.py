@@ -19,10 +19,10 @@ import openpyxl
 import pandas as pd
 import pytest
 
-from matcher.atomic import atomic_write
+from matcher.io.atomic import atomic_write
 from matcher.errors import MatcherError
 from matcher.results import DETAIL_COLUMNS, SHORTLIST_COLUMNS
-from matcher.writers import output_schema, sidecar_path, write_results
+from matcher.report.files import output_schema, sidecar_path, write_results
 
 _spec = importlib.util.spec_from_file_location("result_factory", Path(__file__).with_name("result_factory.py"))
 result_factory = importlib.util.module_from_spec(_spec)
@@ -259,19 +259,19 @@ def test_a_failing_write_leaves_nothing_behind(tmp_path, suffix):
 
 @pytest.mark.parametrize("suffix", [".csv", ".json", ".xlsx"])
 def test_a_failure_while_the_file_is_written_leaves_nothing(tmp_path, monkeypatch, suffix):
-    import matcher.atomic
+    import matcher.io.atomic
 
     def refuse(src, dst):  # the last step (the rename) fails: a full disk, a killed process
         raise OSError(28, "No space left on device")
 
-    monkeypatch.setattr(matcher.atomic.os, "replace", refuse)
+    monkeypatch.setattr(matcher.io.atomic.os, "replace", refuse)
     with pytest.raises(OSError):
         write_results(make_result(), tmp_path / f"s{suffix}")
     assert os.listdir(tmp_path) == []
 
 
 def test_a_csv_broken_half_way_leaves_neither_file(tmp_path, monkeypatch):
-    import matcher.writers
+    import matcher.report.files
 
     real = csv.writer
 
@@ -287,7 +287,7 @@ def test_a_csv_broken_half_way_leaves_neither_file(tmp_path, monkeypatch):
             self.inner.writerow(next(rows))
             raise OSError(5, "Input/output error")
 
-    monkeypatch.setattr(matcher.writers.csv, "writer", HalfWriter)
+    monkeypatch.setattr(matcher.report.files.csv, "writer", HalfWriter)
     out = tmp_path / "s.csv"
     with pytest.raises(OSError):
         write_results(make_result(), out)

@@ -6,7 +6,7 @@ from typing import Annotated, List, Optional
 
 import typer
 
-from .common import JsonFlag, emit_data, note, parse_map, say
+from matcher.cli.common import JsonFlag, emit_data, note, parse_map, say
 
 CALIBRATE_EXAMPLE = """\b
 Example (the distillery lab's n-alkane ladder, programmed oven):
@@ -33,7 +33,7 @@ computed from the nearest pair of standards).
 
 def qc_table(cal) -> str:
     """The ladder's QC table, one row per standard."""
-    from ..textable import format_table
+    from matcher.report.terminal import format_table
 
     qc = cal.qc
     ratio = [None] + list(qc["spacing_ratio"])
@@ -55,8 +55,8 @@ def qc_table(cal) -> str:
 
 
 def summary(cal) -> str:
-    from ..calibration import FORMULA
-    from ..series import SERIES
+    from matcher.retention.calibration import FORMULA
+    from matcher.retention.series import SERIES
 
     lo, hi = cal.index_range
     t0, t1 = cal.rt_range
@@ -96,8 +96,8 @@ def register(app: typer.Typer) -> None:
     ) -> None:
         import json
 
-        from ..api import calibrate
-        from ..atomic import guard_output
+        from matcher.api import calibrate
+        from matcher.io.atomic import guard_output
 
         guard_output(output, inputs=[("the ladder", ladder)], db=None, allow_stream=True)
         cal = calibrate(ladder, mode=mode, holdup=holdup, dead_time=dead_time, marker=marker, series=series,
@@ -130,14 +130,14 @@ def register(app: typer.Typer) -> None:
     ) -> None:
         import json
 
-        from ..calibration import Calibration, atomic_write_text
-        from ..errors import MatcherError
-        from ..retention import convert_times, ri_csv, ri_document
+        from matcher.retention.calibration import Calibration, atomic_write_text
+        from matcher.errors import MatcherError
+        from matcher.io.index_files import convert_times, ri_csv, ri_document
 
         if bool(times) == bool(peaks):
             raise MatcherError("give retention times as arguments or --peaks FILE (one of the two)")
         if output:
-            from ..atomic import guard_output
+            from matcher.io.atomic import guard_output
 
             guard_output(output, inputs=[("the calibration", calibration), ("the peak table", peaks)], db=None,
                          allow_stream=True)

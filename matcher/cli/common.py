@@ -7,7 +7,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from ..rules import PHASE_CLASSES
+from matcher.rules import PHASE_CLASSES
 
 #: Help text of every ``--class`` option (the names come from :data:`matcher.rules.PHASE_CLASSES`).
 CLASS_HELP = "Polarity class of the column: " + ", ".join(PHASE_CLASSES) + "."
@@ -29,14 +29,14 @@ JsonFlag = Annotated[bool, typer.Option("--json", help="Print JSON for programs 
 
 def say(text: str = "") -> None:
     """Print to standard output, control and bidi characters shown escaped (terminal or not)."""
-    from ..safe_text import terminal_text
+    from matcher.safe_text import terminal_text
 
     typer.echo(terminal_text(text))
 
 
 def note(text: str) -> None:
     """Print a notice to standard error (keeps stdout clean for data), escaped like :func:`say`."""
-    from ..safe_text import terminal_text
+    from matcher.safe_text import terminal_text
 
     typer.echo(terminal_text(text), err=True)
 
@@ -46,7 +46,7 @@ def emit_data(text: str) -> None:
     terminal, where control and bidi characters are shown escaped instead of acting on it."""
     out = sys.stdout
     if out.isatty():
-        from ..safe_text import terminal_text
+        from matcher.safe_text import terminal_text
 
         text = terminal_text(text)
     out.write(text)
@@ -69,7 +69,7 @@ def library_group(app: typer.Typer) -> typer.Typer:
 
 def parse_map(items: list[str] | None) -> dict[str, str]:
     """``--map column=header`` options as a dict."""
-    from ..errors import MatcherError
+    from matcher.errors import MatcherError
 
     out: dict[str, str] = {}
     for item in items or []:

@@ -6,7 +6,7 @@ from typing import Annotated
 
 import typer
 
-from .common import say, library_group
+from matcher.cli.common import say, library_group
 
 EX_COPY = (
     "Example: move the lab's SQLite library to the shared server (password from $PGPASSWORD or ~/.pgpass),\n"
@@ -33,6 +33,6 @@ def register(app: typer.Typer) -> None:
         dst: Annotated[str, typer.Argument(metavar="DST", help="Destination library: a file path (SQLite) or an SQLAlchemy URL.")],
         replace: Annotated[bool, typer.Option("--replace", help="Overwrite a destination that already holds a library.")] = False,
     ) -> None:
-        from ..api import open_library
+        from matcher.api import open_library
 
         say(open_library(src).copy_to(dst, replace=replace).summary())

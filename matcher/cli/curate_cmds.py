@@ -1,6 +1,6 @@
 """``matcher confirm`` and ``matcher library add|history|retire|merge|backup``: curating the library.
 
-A thin layer over :mod:`matcher.curation`: parse, call one function, render.
+A thin layer over :mod:`matcher.curate.library_edits`: parse, call one function, render.
 The ``library`` group itself is created by :mod:`matcher.cli.library_cmds`;
 these commands join it (it is found among the app's registered groups).
 """
@@ -12,7 +12,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from .common import CLASS_HELP, DbOption, JsonFlag, is_terminal, note, say, library_group
+from matcher.cli.common import CLASS_HELP, DbOption, JsonFlag, is_terminal, note, say, library_group
 
 EX_CONFIRM = (
     "Example: peak 11 of this morning's run was confirmed with an authentic standard of gamma-terpinene\n\n"
@@ -51,7 +51,7 @@ def _asker():
     """A prompt for ambiguous names on a terminal, else None (refuse with the list)."""
     if not is_terminal():
         return None
-    from ..curation import NEW
+    from matcher.curate.library_edits import NEW
 
     def ask(name, matches):
         note(f"{name!r} is not in the library but may be:")
@@ -104,7 +104,7 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..api import open_library
+        from matcher.api import open_library
 
         result = open_library(db).confirm(results, peak, name, run=run, source=source, analyst=analyst, force=force,
                                       new=new, as_existing=as_existing, measured=measured, ask=_asker())
@@ -130,7 +130,7 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..api import open_library
+        from matcher.api import open_library
 
         result = open_library(db).add(name, phase_class, ri, formula=formula, cas=cas, inchikey=inchikey, phase=phase,
                                mode=mode, date=date, source=source, analyst=analyst, force=force, new=new,
@@ -143,8 +143,8 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..api import open_library
-        from ..textable import format_table
+        from matcher.api import open_library
+        from matcher.report.terminal import format_table
 
         rows = open_library(db).history(name)
         if as_json:
@@ -162,7 +162,7 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..api import open_library
+        from matcher.api import open_library
 
         doc = open_library(db).retire(observation, why, analyst=analyst)
         if as_json:
@@ -181,7 +181,7 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..api import open_library
+        from matcher.api import open_library
 
         report = open_library(db).merge(other, analyst=analyst)
         if as_json:
@@ -198,6 +198,6 @@ def register(app: typer.Typer) -> None:
         overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace an existing file.")] = False,
         db: DbOption = None,
     ) -> None:
-        from ..api import open_library
+        from matcher.api import open_library
 
         say(open_library(db).backup(path, overwrite=overwrite).summary())

@@ -6,8 +6,8 @@ from typing import Annotated
 
 import typer
 
-from .. import CAUTION
-from .common import say
+from matcher import CAUTION
+from matcher.cli.common import say
 
 EXAMPLE = """
 Example
@@ -29,8 +29,8 @@ def register(app: typer.Typer) -> None:
     def demo_cmd(
         out: Annotated[str, typer.Option("--out", metavar="DIR", help="Folder for the demo files (created if needed).")] = "matcher-demo",
     ) -> None:
-        from ..demo import run_demo
-        from .screen_cmds import summary
+        from matcher.demo import run_demo
+        from matcher.cli.screen_cmds import summary
 
         outcome = run_demo(out)
         run = outcome.result.runs[0]
@@ -40,7 +40,7 @@ def register(app: typer.Typer) -> None:
         say("")
         t = run.table
         first = t[t["rank"] == 1].head(12)
-        from ..textable import format_table
+        from matcher.report.terminal import format_table
 
         say("first peaks, best candidate:")
         say(format_table(["peak", "index", "best candidate", "probability", "flags"],

@@ -7,7 +7,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from .common import DbOption, JsonFlag, say
+from matcher.cli.common import DbOption, JsonFlag, say
 
 EXAMPLE = """
 Examples
@@ -34,14 +34,14 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..api import evaluate
-        from ..errors import MatcherError
-        from ..rules import check_noise
+        from matcher.api import evaluate
+        from matcher.errors import MatcherError
+        from matcher.rules import check_noise
 
         noise = check_noise(noise)
         if crowded:
-            from ..evaluation import evaluate_crowded_all
-            from ..store.snapshot_loader import load_snapshot
+            from matcher.identify.evaluation import evaluate_crowded_all
+            from matcher.store.snapshot_loader import load_snapshot
 
             if abs(offset) > 100:
                 raise MatcherError("--offset must be between -100 and 100 index units")
@@ -63,7 +63,7 @@ def _pct(v) -> str:
 
 
 def render(report: dict) -> str:
-    from ..textable import format_table
+    from matcher.report.terminal import format_table
 
     rows = []
     for cls, r in report["classes"].items():
@@ -87,7 +87,7 @@ def render(report: dict) -> str:
 
 
 def render_crowded(report: dict) -> str:
-    from ..textable import format_table
+    from matcher.report.terminal import format_table
 
     rows = []
     for cls, r in report["classes"].items():

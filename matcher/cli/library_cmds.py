@@ -7,7 +7,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from .common import DbOption, JsonFlag, emit_data, note, say
+from matcher.cli.common import DbOption, JsonFlag, emit_data, note, say
 
 HELP = "Manage the house library: retention indices measured on your own columns, per polarity class."
 
@@ -40,7 +40,7 @@ def register(app: typer.Typer) -> None:
 
     @lib.command("init", help="Create an empty house library (or migrate an older one); seeds the phase catalog.", epilog=EX_INIT)
     def init_cmd(db: DbOption = None) -> None:
-        from ..api import open_library
+        from matcher.api import open_library
 
         lib = open_library(db)
         rev = lib.init()
@@ -54,7 +54,7 @@ def register(app: typer.Typer) -> None:
         analyst: Annotated[Optional[str], typer.Option("--analyst", help="Who is importing (for the audit log; default: your login).")] = None,
         db: DbOption = None,
     ) -> None:
-        from ..api import open_library
+        from matcher.api import open_library
 
         report = open_library(db).import_file(file, replace=replace, dry_run=dry_run, analyst=analyst)
         if report.ignored_columns:
@@ -66,7 +66,7 @@ def register(app: typer.Typer) -> None:
         output: Annotated[Optional[str], typer.Option("-o", "--output", help="File to write (.csv or .xlsx); default: standard output.")] = None,
         db: DbOption = None,
     ) -> None:
-        from ..api import open_library
+        from matcher.api import open_library
 
         text = open_library(db).export(None if output == "-" else output)
         if output is None or output == "-":
@@ -81,8 +81,8 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..api import open_library
-        from ..textable import format_table
+        from matcher.api import open_library
+        from matcher.report.terminal import format_table
 
         hits = open_library(db).find(text, limit=limit)
         if as_json:
@@ -100,7 +100,7 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..api import open_library
+        from matcher.api import open_library
 
         doc = open_library(db).show(name)
         if as_json:
@@ -110,8 +110,8 @@ def register(app: typer.Typer) -> None:
 
     @lib.command("stats", help="Entries per class and how densely they cover the index range.", epilog=EX_STATS)
     def stats_cmd(db: DbOption = None, as_json: JsonFlag = False) -> None:
-        from ..api import open_library
-        from ..textable import format_table
+        from matcher.api import open_library
+        from matcher.report.terminal import format_table
 
         doc = open_library(db).stats()
         if as_json:
@@ -129,7 +129,7 @@ def register(app: typer.Typer) -> None:
         strict: Annotated[bool, typer.Option("--strict", help="Also list CAS numbers shared by two compounds.")] = False,
         db: DbOption = None,
     ) -> None:
-        from ..api import open_library
+        from matcher.api import open_library
 
         lib = open_library(db)
         problems = lib.check(strict=strict)
@@ -143,7 +143,7 @@ def register(app: typer.Typer) -> None:
 
 
 def render_show(doc: dict) -> str:
-    from ..textable import format_table
+    from matcher.report.terminal import format_table
 
     lines = [doc["name"]]
     for label, key in (("CAS", "cas"), ("formula", "formula"), ("nominal mass", "nominal_mass"), ("series", "series"),

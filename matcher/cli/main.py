@@ -13,7 +13,7 @@ import sys
 
 import typer
 
-from .. import CAUTION, __version__
+from matcher import CAUTION, __version__
 
 app = typer.Typer(
     name="matcher",
@@ -76,13 +76,13 @@ _register_all()
 
 def run() -> None:
     """Run the CLI; user errors become one line on stderr and a non-zero exit."""
-    from ..errors import MatcherError
+    from matcher.errors import MatcherError
 
     try:
         app()
     except MatcherError as exc:
-        from ..safe_text import terminal_text
-        from ..store.location import mask_secrets
+        from matcher.safe_text import terminal_text
+        from matcher.store.location import mask_secrets
 
         typer.echo(terminal_text(mask_secrets(f"error: {' '.join(str(exc).split())}")), err=True)
         sys.exit(exc.exit_code)
@@ -92,9 +92,9 @@ def run() -> None:
     except Exception as exc:  # last resort: never a traceback at the bench
         if os.environ.get("MATCHER_DEBUG"):
             raise
-        from ..store.location import mask_secrets
+        from matcher.store.location import mask_secrets
 
-        from ..safe_text import terminal_text
+        from matcher.safe_text import terminal_text
 
         msg = terminal_text(mask_secrets(" ".join(f"{type(exc).__name__}: {exc}".split())))
         typer.echo(f"error: unexpected problem ({msg}); set MATCHER_DEBUG=1 to see details", err=True)

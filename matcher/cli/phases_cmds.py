@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 
-from .common import JsonFlag, say
+from matcher.cli.common import JsonFlag, say
 
 EX_LIST = "Example:\n\n    matcher phases list\n\n    matcher phases list --json"
 EX_CLASSIFY = (
@@ -26,8 +26,8 @@ def register(app: typer.Typer) -> None:
 
     @grp.command("list", help="List the shipped stationary-phase catalog (generic compositions only).", epilog=EX_LIST)
     def list_cmd(as_json: JsonFlag = False) -> None:
-        from ..phases import catalog
-        from ..textable import format_table
+        from matcher.retention.phases import catalog
+        from matcher.report.terminal import format_table
 
         phases = catalog()
         if as_json:
@@ -52,7 +52,7 @@ def register(app: typer.Typer) -> None:
         s: Annotated[float, typer.Argument(help="s' (pyridine)")],
         as_json: JsonFlag = False,
     ) -> None:
-        from ..phases import classify, mcreynolds_sum
+        from matcher.retention.phases import classify, mcreynolds_sum
 
         cls, total = classify(x, y, z, u, s), mcreynolds_sum(x, y, z, u, s)
         if as_json:

@@ -7,8 +7,8 @@ from typing import Annotated, List, Optional
 
 import typer
 
-from .. import CAUTION
-from .common import CLASS_HELP, DbOption, JsonFlag, say
+from matcher import CAUTION
+from matcher.cli.common import CLASS_HELP, DbOption, JsonFlag, say
 
 EXAMPLE = """
 Example: a peak at index 1031 on a 5 % phenyl column with molecular ion 136
@@ -43,7 +43,7 @@ def register(app: typer.Typer) -> None:
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
-        from ..api import query
+        from matcher.api import query
 
         result = query(ri, phase_class, library=db, window=window, window_percent=window_percent, mol_ion=mol_ion,
                        ions=ions or None, hit=hit, hit_score=hit_score, top=top, fallback=fallback,
@@ -56,7 +56,7 @@ def register(app: typer.Typer) -> None:
 
 
 def render(doc: dict) -> str:
-    from ..textable import format_table
+    from matcher.report.terminal import format_table
 
     w = doc["window"]
     head = (f"index {doc['ri']:g} on {doc['class']}, window ±{w['half_width']:g}; "

@@ -6,8 +6,8 @@ from typing import Annotated, List, Optional
 
 import typer
 
-from .. import CAUTION
-from .common import CLASS_HELP, DbOption, note, parse_map, say
+from matcher import CAUTION
+from matcher.cli.common import CLASS_HELP, DbOption, note, parse_map, say
 
 EXAMPLE = """
 Examples
@@ -60,10 +60,10 @@ def register(app: typer.Typer) -> None:
     ) -> None:
         import sys
 
-        from ..api import screen
-        from ..atomic import guard_outputs
-        from ..rules import check_report_path, check_shortlist_path
-        from ..writers import sidecar_path, write_results
+        from matcher.api import screen
+        from matcher.io.atomic import guard_outputs
+        from matcher.rules import check_report_path, check_shortlist_path
+        from matcher.report.files import sidecar_path, write_results
 
         check_shortlist_path(out)  # before the work: nothing is screened for a file that cannot be written
         if report is not None:
@@ -96,7 +96,7 @@ def register(app: typer.Typer) -> None:
                 bar.__exit__(None, None, None)
         written = write_results(result, out)
         if report:
-            from ..report_html import write_report
+            from matcher.report.html import write_report
 
             write_report(result, report)
             written = list(written) + [report]
@@ -114,8 +114,8 @@ def register(app: typer.Typer) -> None:
 
 def summary(result) -> str:
     """A short per-run table: peaks, with a candidate, ranked first with p ≥ 0.9, to review."""
-    from ..flags import has_flag
-    from ..textable import format_table
+    from matcher.identify.flags import has_flag
+    from matcher.report.terminal import format_table
 
     rows = []
     for run in result.runs:

@@ -25,7 +25,7 @@ import re
 
 import numpy as np
 
-from ..limits import MAX_MZ
+from matcher.limits import MAX_MZ
 
 #: most pairs one cell may hold (a full-scan spectrum from m/z 1 to 5000 at unit resolution)
 MAX_PAIRS = MAX_MZ

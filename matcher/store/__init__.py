@@ -9,6 +9,6 @@ or when a submodule is imported.
 
 def ddl(dialect: str = "sqlite") -> str:
     """The schema's CREATE statements (see :func:`matcher.store.database.ddl`)."""
-    from .database import ddl as _ddl
+    from matcher.store.database import ddl as _ddl
 
     return _ddl(dialect)

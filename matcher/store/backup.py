@@ -7,7 +7,7 @@ import sqlite3
 from dataclasses import dataclass
 from pathlib import Path
 
-from ..errors import LibraryError, MatcherError
+from matcher.errors import LibraryError, MatcherError
 
 
 @dataclass
@@ -32,8 +32,8 @@ def backup(db: str | None, path: str | os.PathLike, *, overwrite: bool = False) 
     self-contained file (rollback journal) and renamed into place. Other backends are refused:
     use their own dump tool, or ``matcher library export``.
     """
-    from ..atomic import atomic_path
-    from .database import open_library
+    from matcher.io.atomic import atomic_path
+    from matcher.store.database import open_library
 
     engine = open_library(db)
     if engine.dialect.name != "sqlite":
@@ -42,7 +42,7 @@ def backup(db: str | None, path: str | os.PathLike, *, overwrite: bool = False) 
     src_path = engine.url.database
     if not src_path or src_path == ":memory:":
         raise LibraryError("an in-memory library cannot be backed up")
-    from ..atomic import guard_output
+    from matcher.io.atomic import guard_output
 
     dest = Path(path)
     guard_output(dest, db=db, option="backup", allow_sqlite=True)
@@ -51,7 +51,7 @@ def backup(db: str | None, path: str | os.PathLike, *, overwrite: bool = False) 
             raise MatcherError(f"{dest} is the library itself; choose another file")
         if not overwrite:
             raise MatcherError(f"{dest} exists; choose another file or use --overwrite")
-    from .snapshot_loader import load_snapshot_sqlite
+    from matcher.store.snapshot_loader import load_snapshot_sqlite
 
     with atomic_path(dest, allow_sqlite=True) as tmp:
         src = sqlite3.connect(f"file:{src_path}?mode=ro", uri=True, timeout=30.0)

@@ -24,7 +24,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from ..errors import LibraryError
+from matcher.errors import LibraryError
 
 #: Tables in the order they are filled (a referenced table before the tables that refer to it).
 ORDER = ("schema_version", "phases", "compounds", "synonyms", "observations", "audit_log")
@@ -48,7 +48,7 @@ class CopyReport:
 
 
 def _tables():
-    from .models import Base
+    from matcher.store.models import Base
 
     return {t.name: t for t in Base.metadata.sorted_tables}
 
@@ -57,7 +57,7 @@ def destination_contents(session) -> dict[str, int]:
     """What a destination holds beyond a freshly initialised library (empty dict: nothing)."""
     from sqlalchemy import func, select
 
-    from .models import AuditEntry, Compound, Observation, Synonym
+    from matcher.store.models import AuditEntry, Compound, Observation, Synonym
 
     held = {
         "compounds": session.scalar(select(func.count()).select_from(Compound)),
@@ -98,8 +98,8 @@ def copy_library(src: str | None, dst: str, *, replace: bool = False) -> CopyRep
     """Copy the library at ``src`` to ``dst`` losslessly (see the module notes)."""
     from sqlalchemy import delete, func, select, update
 
-    from .database import init_library, open_library, transaction
-    from .location import mask_url, resolve
+    from matcher.store.database import init_library, open_library, transaction
+    from matcher.store.location import mask_url, resolve
 
     src_url, dst_url = resolve(src), resolve(dst)
     report = CopyReport(source=mask_url(src_url), destination=mask_url(dst_url), replaced=False)

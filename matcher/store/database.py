@@ -46,9 +46,9 @@ from sqlalchemy import Connection, Engine, create_engine, event, inspect, select
 from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
 
-from ..errors import LibraryError
-from .location import mask_secrets, resolve
-from .models import AuditEntry, Base, LibraryState, Phase, SchemaVersion
+from matcher.errors import LibraryError
+from matcher.store.location import mask_secrets, resolve
+from matcher.store.models import AuditEntry, Base, LibraryState, Phase, SchemaVersion
 
 T = TypeVar("T")
 
@@ -80,8 +80,8 @@ def now() -> str:
 
 _ENGINES: dict[str, Engine] = {}
 
-from .probe import OUR_TABLES, Probe, connect_readonly, is_verified, sqlite_uri  # noqa: E402,F401  (no SQLAlchemy there)
-from .probe import probe_sqlite as _probe_file  # noqa: E402
+from matcher.store.probe import OUR_TABLES, Probe, connect_readonly, is_verified, sqlite_uri  # noqa: E402,F401  (no SQLAlchemy there)
+from matcher.store.probe import probe_sqlite as _probe_file  # noqa: E402
 
 
 def probe_sqlite(path: str, *, source: str | None = None, check: str = "quick") -> Probe:
@@ -202,7 +202,7 @@ def sqlstate(exc: BaseException) -> str | None:
 
 
 def _wrap(engine: Engine, exc: Exception, *, writing: bool = False) -> LibraryError:
-    from .location import mask_secrets
+    from matcher.store.location import mask_secrets
 
     msg = mask_secrets(" ".join(str(getattr(exc, "orig", exc)).split()))
     user = engine.url.username or "this role"
@@ -267,7 +267,7 @@ def init_library(db: str | None = None) -> Engine:
 
 
 def _phases_missing(engine: Engine) -> bool:
-    from ..phases import catalog
+    from matcher.retention.phases import catalog
 
     with engine.connect() as conn:
         have = set(conn.execute(select(Phase.name)).scalars())
@@ -275,7 +275,7 @@ def _phases_missing(engine: Engine) -> bool:
 
 
 def _seed_phases(engine: Engine) -> None:
-    from ..phases import catalog
+    from matcher.retention.phases import catalog
 
     with transaction(engine, who="matcher") as s:
         have = set(s.scalars(select(Phase.name)))

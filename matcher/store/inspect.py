@@ -2,9 +2,9 @@
 
 * :func:`find` ranks compounds by how well a text matches their name, a
   synonym, the CAS number or the formula (rapidfuzz, via
-  :func:`matcher.names.rank`), tolerant of typos and of spelling variants.
+  :func:`matcher.chem.names.rank`), tolerant of typos and of spelling variants.
 * :func:`show` gives one compound with its per-class summary, computed by
-  :func:`matcher.snapshot.summarise` exactly as screening sees it, and every
+  :func:`matcher.store.snapshot.summarise` exactly as screening sees it, and every
   observation with its provenance.
 * :func:`stats` counts entries per class and how densely the index range is
   covered (entries per 100 index units).
@@ -17,7 +17,7 @@ import math
 import re
 from dataclasses import asdict, dataclass
 
-from ..errors import LibraryError
+from matcher.errors import LibraryError
 
 
 @dataclass(frozen=True)
@@ -41,8 +41,8 @@ _FORMULA_LIKE = re.compile(r"^\s*(?:[A-Z][a-z]?\d*){2,}\s*$")
 
 def find(db: str | None, text: str, limit: int = 10) -> list[Hit]:
     """Compounds ranked by similarity of ``text`` to their names, synonyms, CAS number or formula."""
-    from ..names import rank
-    from .snapshot_loader import load_snapshot
+    from matcher.chem.names import rank
+    from matcher.store.snapshot_loader import load_snapshot
 
     snap = load_snapshot(db)
     ct = snap.compounds
@@ -71,7 +71,7 @@ def find(db: str | None, text: str, limit: int = 10) -> list[Hit]:
                 if sc >= 75:
                     offer(i, sc, ct.cas[i], "cas")
     if _FORMULA_LIKE.match(query):
-        from ..formula import hill_formula
+        from matcher.chem.formula import hill_formula
 
         try:
             hf = hill_formula(query)
@@ -94,9 +94,9 @@ def find(db: str | None, text: str, limit: int = 10) -> list[Hit]:
 def _compound_by_name(session, name: str):
     from sqlalchemy import select
 
-    from ..cas import normalise_cas
-    from ..names import matching_key
-    from .models import Compound, Synonym
+    from matcher.chem.cas import normalise_cas
+    from matcher.chem.names import matching_key
+    from matcher.store.models import Compound, Synonym
 
     key = matching_key(name)
     c = session.scalar(select(Compound).where(Compound.key == key))
@@ -118,8 +118,8 @@ def show(db: str | None, name: str) -> dict:
     import numpy as np
     from sqlalchemy.orm import Session
 
-    from ..snapshot import SPREAD_FLOOR, summarise
-    from .database import open_library
+    from matcher.store.snapshot import SPREAD_FLOOR, summarise
+    from matcher.store.database import open_library
 
     engine = open_library(db)
     with Session(engine) as s:
@@ -130,7 +130,7 @@ def show(db: str | None, name: str) -> dict:
             raise LibraryError(f"no compound {name!r} in the library{hint}")
         obs = list(c.observations)
         classes: dict[str, dict] = {}
-        from ..classes import PHASE_CLASSES
+        from matcher.classes import PHASE_CLASSES
 
         for cls in [k for k in PHASE_CLASSES if any(o.active and o.phase_class == k for o in obs)]:
             sel = [o for o in obs if o.active and o.phase_class == cls]
@@ -162,8 +162,8 @@ def stats(db: str | None) -> dict:
     """Counts per class and coverage of the index range (entries per 100 units, widest gap)."""
     import numpy as np
 
-    from ..classes import PHASE_CLASSES
-    from .snapshot_loader import load_snapshot
+    from matcher.classes import PHASE_CLASSES
+    from matcher.store.snapshot_loader import load_snapshot
 
     snap = load_snapshot(db)
     per_class = {}
@@ -197,16 +197,16 @@ def check(db: str | None, *, strict: bool = False) -> list[str]:
     """
     from sqlalchemy import text
 
-    from ..cas import normalise_cas
-    from ..rules import MODES, PHASE_CLASSES
-    from ..formula import hill_formula, nominal_mass
-    from ..identifiers import is_inchikey
-    from ..names import matching_key
-    from .database import latest_version, open_library, schema_version
+    from matcher.chem.cas import normalise_cas
+    from matcher.rules import MODES, PHASE_CLASSES
+    from matcher.chem.formula import hill_formula, nominal_mass
+    from matcher.chem.identifiers import is_inchikey
+    from matcher.chem.names import matching_key
+    from matcher.store.database import latest_version, open_library, schema_version
 
-    from ..limits import MAX_N, MAX_SD
-    from .database import _sqlite_file, probe_sqlite
-    from .location import mask_secrets, resolve
+    from matcher.limits import MAX_N, MAX_SD
+    from matcher.store.database import _sqlite_file, probe_sqlite
+    from matcher.store.location import mask_secrets, resolve
 
     problems: list[str] = []
     path = _sqlite_file(resolve(db))

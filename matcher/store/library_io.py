@@ -21,7 +21,7 @@ ONE transaction: a refused file changes nothing. Messages name the file, the
 data row (data rows count from 1 after the header) with its physical line,
 and the column. A row attaches to an existing compound when its name, or one
 of its synonyms, has the matching key of a library name or synonym
-(:func:`matcher.names.matching_key`), or else when its CAS number belongs to
+(:func:`matcher.chem.names.matching_key`), or else when its CAS number belongs to
 exactly one compound that was in the library before the import (the new name
 becomes a synonym). Inside one file, rows with different names stay different
 compounds even when they share a CAS number (``library check --strict`` lists
@@ -44,14 +44,14 @@ from dataclasses import dataclass, field
 from datetime import date
 from pathlib import Path
 
-from ..limits import MAX_N, MAX_RI, MAX_SD
-from ..cas import normalise_cas
-from ..classes import check_class
-from ..errors import InputError, MatcherError
-from ..formula import hill_formula
-from ..identifiers import normalise_inchikey
-from ..names import display_name, matching_key
-from ..rules import MODE_ALIASES, MODES
+from matcher.limits import MAX_N, MAX_RI, MAX_SD
+from matcher.chem.cas import normalise_cas
+from matcher.classes import check_class
+from matcher.errors import InputError, MatcherError
+from matcher.chem.formula import hill_formula
+from matcher.chem.identifiers import normalise_inchikey
+from matcher.chem.names import display_name, matching_key
+from matcher.rules import MODE_ALIASES, MODES
 
 REQUIRED = ("name", "phase_class", "ri")
 OPTIONAL = ("cas", "formula", "ri_sd", "n", "mode", "phase", "source", "synonyms", "inchikey", "smiles", "notes")
@@ -172,7 +172,7 @@ def read_rows(path: str | Path) -> tuple[list[LibraryRow], list[str]]:
     """Validate a library file completely; the rows and the names of ignored (unknown) columns."""
     import numpy as np
 
-    from ..tables import load_table, map_headers, numbers, texts
+    from matcher.io.delimited import load_table, map_headers, numbers, texts
 
     raw = load_table(path, what="library file")
     cols = map_headers(raw, ALIASES)
@@ -265,8 +265,8 @@ class _Slot:
 def _resolve(rows: list[LibraryRow], session, path: str) -> list[_Slot]:
     from sqlalchemy import select
 
-    from .models import Compound
-    from .writes import CompoundIndex
+    from matcher.store.models import Compound
+    from matcher.store.writes import CompoundIndex
 
     idx = CompoundIndex.read(session)
     existing = {c.id: c for c in session.scalars(select(Compound))} if idx.names else {}
@@ -345,9 +345,9 @@ def import_library(db: str | None, path: str | Path, *, replace: bool = False, w
     """Import a library file (CSV or XLSX) into the library at ``db``, all or nothing."""
     from sqlalchemy import delete, func, select
 
-    from .database import open_library, record, run_write
-    from .models import Compound, Observation, Phase, Synonym
-    from . import writes
+    from matcher.store.database import open_library, record, run_write
+    from matcher.store.models import Compound, Observation, Phase, Synonym
+    from matcher.store import writes
 
     path = str(path)
     rows, ignored = read_rows(path)
@@ -451,8 +451,8 @@ def export_rows(db: str | None) -> list[dict[str, str]]:
     from sqlalchemy import select
     from sqlalchemy.orm import Session
 
-    from .database import open_library
-    from .models import Compound, Observation, Phase, Synonym
+    from matcher.store.database import open_library
+    from matcher.store.models import Compound, Observation, Phase, Synonym
 
     engine = open_library(db)
     with Session(engine) as s:
@@ -496,7 +496,7 @@ def _write_xlsx(rows: list[dict], path) -> None:
     from openpyxl import Workbook
     from openpyxl.cell import WriteOnlyCell
 
-    from ..safe_text import xml_text
+    from matcher.safe_text import xml_text
 
     wb = Workbook(write_only=True)
     ws = wb.create_sheet("library")
@@ -516,7 +516,7 @@ def _write_xlsx(rows: list[dict], path) -> None:
 
 def export_library(db: str | None, path: str | Path | None = None) -> str:
     """Export the library to ``path`` (``.csv`` or ``.xlsx``, written atomically); returns the CSV text."""
-    from ..atomic import atomic_path, atomic_write, guard_output
+    from matcher.io.atomic import atomic_path, atomic_write, guard_output
 
     if path is not None:
         guard_output(path, db=db, allow_stream=True)

@@ -100,7 +100,7 @@ def _remember(secret: str | None) -> None:
 
 
 def _refuse(url: str, why: str):
-    from ..errors import LibraryError
+    from matcher.errors import LibraryError
 
     return LibraryError(f"--db {_pattern_mask(url)}: {why}")
 
@@ -202,7 +202,7 @@ def resolve(db: str | None) -> str:
     if "://" in target:
         return parse_url(target).text(masked=False)
     if "\x00" in target:
-        from ..errors import LibraryError
+        from matcher.errors import LibraryError
 
         raise LibraryError("--db: a file path cannot hold a NUL character")
     return "sqlite:///" + os.path.abspath(os.path.expanduser(target))

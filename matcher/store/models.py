@@ -4,7 +4,7 @@
 table              holds
 =================  ===========================================================
 compounds          one row per compound: display name, unique matching key
-                   (:func:`matcher.names.matching_key`), CAS number (check digit
+                   (:func:`matcher.chem.names.matching_key`), CAS number (check digit
                    verified), Hill formula and its nominal mass, InChIKey,
                    SMILES, notes, homologous ``series`` label, ``key_ions``
 synonyms           other names of a compound, each with a unique matching key
@@ -42,7 +42,7 @@ from sqlalchemy import (
 )
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
 
-from ..rules import MODES, PHASE_CLASSES
+from matcher.rules import MODES, PHASE_CLASSES
 
 _CLASS_CHECK = "phase_class IN (" + ", ".join(f"'{c}'" for c in PHASE_CLASSES) + ")"
 

@@ -12,7 +12,7 @@ from __future__ import annotations
 import os
 from dataclasses import dataclass, field
 
-from ..errors import LibraryError
+from matcher.errors import LibraryError
 
 #: The newest schema version this program knows; equals ``database.latest_version()``
 #: (``tests/test_store_schema.py`` checks it; bump both when adding a migration).
@@ -134,7 +134,7 @@ def check_file(path: str, where: str) -> bool:
     """The checks that need no connection: False when missing; refuses folders, devices, empty and non-SQLite files."""
     import stat as _stat
 
-    from ..atomic import SQLITE_MAGIC
+    from matcher.io.atomic import SQLITE_MAGIC
 
     try:
         st = os.stat(path)
@@ -175,7 +175,7 @@ def _probe(path: str, *, source: str | None = None, check: str = "quick", con=No
     import sqlite3
     import stat as _stat
 
-    from ..atomic import SQLITE_MAGIC
+    from matcher.io.atomic import SQLITE_MAGIC
 
     where = source or path
     if not check_file(path, where):

@@ -1,4 +1,4 @@
-"""Read the house library into a :class:`matcher.snapshot.LibrarySnapshot` in one pass.
+"""Read the house library into a :class:`matcher.store.snapshot.LibrarySnapshot` in one pass.
 
 Four SELECTs inside one read transaction (so the snapshot is consistent even
 while someone writes): the revision, all compounds, all synonyms, and all
@@ -17,7 +17,7 @@ from __future__ import annotations
 import os
 from urllib.parse import unquote
 
-from .location import mask_url, resolve
+from matcher.store.location import mask_url, resolve
 
 SQL_REVISION = "SELECT revision FROM library_state WHERE id = 1"
 SQL_COMPOUNDS = "SELECT id, name, cas, formula, nominal_mass, series, key_ions FROM compounds ORDER BY id"
@@ -39,7 +39,7 @@ def _sqlite_path(url: str) -> str | None:
 def _build(rev, compounds, synonyms, observations, source: str):
     import numpy as np
 
-    from ..snapshot import CompoundTable, build_snapshot
+    from matcher.store.snapshot import CompoundTable, build_snapshot
 
     syn: dict[int, list[str]] = {}
     for cid, name in synonyms:
@@ -65,7 +65,7 @@ def _build(rev, compounds, synonyms, observations, source: str):
 
 
 def _no_library(source: str):
-    from ..errors import LibraryError
+    from matcher.errors import LibraryError
 
     return LibraryError(f"no house library at {source}; create one with: matcher library init")
 
@@ -74,9 +74,9 @@ def load_snapshot_sqlite(path: str, source: str | None = None):
     """The snapshot of a SQLite library file, read with :mod:`sqlite3` (no SQLAlchemy)."""
     import sqlite3
 
-    from ..errors import LibraryError
+    from matcher.errors import LibraryError
 
-    from .probe import check_file, connect_readonly, probe_sqlite
+    from matcher.store.probe import check_file, connect_readonly, probe_sqlite
 
     source = source or mask_url("sqlite:///" + path)
     if not check_file(path, source):  # folders, devices, empty and non-SQLite files are refused by name
@@ -115,8 +115,8 @@ def load_snapshot_sqlalchemy(url: str):
     """The snapshot read through SQLAlchemy (any backend)."""
     from sqlalchemy import select
 
-    from .database import open_library
-    from .models import Compound, LibraryState, Observation, Synonym
+    from matcher.store.database import open_library
+    from matcher.store.models import Compound, LibraryState, Observation, Synonym
 
     engine = open_library(url)
     with engine.connect() as conn, conn.begin():

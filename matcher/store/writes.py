@@ -26,10 +26,10 @@ from dataclasses import dataclass, field
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
-from ..formula import nominal_mass
-from ..names import matching_key
-from .database import now, record
-from .models import Compound, Observation, Phase, Synonym
+from matcher.chem.formula import nominal_mass
+from matcher.chem.names import matching_key
+from matcher.store.database import now, record
+from matcher.store.models import Compound, Observation, Phase, Synonym
 
 COMPOUND_FIELDS = ("cas", "formula", "inchikey", "smiles", "notes", "series", "key_ions")
 OBSERVATION_FIELDS = ("phase_class", "ri", "mode", "ri_sd", "n", "source", "analyst", "date")
@@ -166,8 +166,8 @@ def add_observations(session: Session, items: list[tuple[Compound, dict, Phase |
     """
     from sqlalchemy import insert
 
-    from .database import _default_user, bump_revision
-    from .models import AuditEntry
+    from matcher.store.database import _default_user, bump_revision
+    from matcher.store.models import AuditEntry
 
     if not items:
         return []
@@ -205,7 +205,7 @@ def synonym_names(session: Session) -> list[tuple[int, str]]:
 
 def audit_trail(session: Session, target: str) -> list:
     """The audit entries of one target (e.g. ``compound:12``), oldest first."""
-    from .models import AuditEntry
+    from matcher.store.models import AuditEntry
 
     return list(session.scalars(select(AuditEntry).where(AuditEntry.target == target).order_by(AuditEntry.id)))
 

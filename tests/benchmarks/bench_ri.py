@@ -9,7 +9,7 @@ import time
 
 import numpy as np
 
-from matcher.calibration import Calibration
+from matcher.retention.calibration import Calibration
 
 
 def best(fn, repeat=5):
@@ -33,7 +33,7 @@ def main() -> None:
     inside = (x >= t_std[0]) & (x <= t_std[-1])
     assert np.allclose(ri[inside], np.interp(x[inside], t_std, i_std))
     print(f"programmed: 1,000,000 times in {ours:.3f} s; numpy.interp baseline {base:.3f} s; ratio {ours / base:.1f}x")
-    from matcher.holdup import HoldUp
+    from matcher.retention.holdup import HoldUp
 
     iso = Calibration("alkanes", "isothermal", t_std, i_std, [], holdup=HoldUp(1.0, "given"), holdup_used=True)
     ours_iso = best(lambda: iso.convert(x))

@@ -52,8 +52,8 @@ def build(tmp: str, n_peaks: int, n_entries: int):
 
 
 def run_matcher(db, peaks_csv, out, top):
-    from matcher.screening import screen
-    from matcher.writers import write_results
+    from matcher.identify.screening import screen
+    from matcher.report.files import write_results
 
     result = screen([peaks_csv], "nonpolar", db=db, top=top)
     write_results(result, out)

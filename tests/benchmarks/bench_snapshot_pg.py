@@ -35,7 +35,7 @@ def build_sqlite(path: str, n_obs: int) -> None:
     from sqlalchemy import insert
 
     from matcher.classes import PHASE_CLASSES
-    from matcher.names import matching_key
+    from matcher.chem.names import matching_key
     from matcher.store.database import engine_for, init_library, now
     from matcher.store.models import Compound, LibraryState, Observation, Synonym
     from sqlalchemy import update

@@ -1,0 +1,238 @@
+"""The evidence model: how candidates are ranked and what their probabilities mean.
+
+For one peak with measured index :math:`x` the hypotheses are "the peak is
+library compound *j*" for every entry *j* of the class, and **not in
+library** (*N*). Bayes' rule with
+
+* prior :math:`P(j) = \\pi / M` (M entries, :math:`\\pi` the prior that a
+  peak is in the library) and :math:`P(N) = 1 - \\pi`;
+* **index likelihood** under *j*: a normal density of the deviation,
+  :math:`\\phi(x - \\mu_j;\\ s_j)` with :math:`s_j^2 = sd_j^2 + \\sigma_m^2`
+  — the library entry's spread (wider when it rests on few observations,
+  see :mod:`matcher.store.snapshot`) combined with the run's own index scatter
+  :math:`\\sigma_m`;
+* index likelihood under *N*: the intensity :math:`\\lambda_U(x)` of
+  unlisted peaks at x, estimated from the run itself (or the crowding prior
+  for a single query), see :mod:`matcher.identify.unlisted`;
+* prior: each listed compound is present in the sample with probability
+  :math:`\\pi` (estimated from the run, :mod:`matcher.identify.run_model`;
+  :data:`DEFAULT_PRESENCE` for a single query);
+
+gives the weight of evidence of *j* against *N* (natural-log Bayes factor)
+
+.. math::
+
+   \\text{score}_j = \\ln\\phi(x-\\mu_j; s_j) - \\ln\\lambda_U(x)
+   + e^{mol}_j + e^{ions}_j + e^{hit}_j
+
+and the log odds of *j* against *N*,
+:math:`\\ln\\frac{\\pi}{1-\\pi} + \\text{score}_j + \\ln r_j`
+(:math:`r_j` < 1 for homologue predictions and cross-class entries). For
+one peak the posterior over the candidates inside the window and *N* is a
+softmax of these odds against 0; over a run the candidates compete for
+peaks, one compound explaining at most one peak (:mod:`matcher.identify.assignment`).
+
+Mass-spectral hints are likelihood ratios, each treated the same way under
+every hypothesis:
+
+* **molecular ion** m: under *j* with a formula, P(m = M_j) = 1 − ε and a
+  different m has probability ε·q(m | x); under *N*, m follows q(m | x), how
+  common that nominal mass is among compounds eluting near x
+  (:class:`matcher.identify.unlisted.MassBackground`). Hence
+  :math:`e^{mol} = \\ln[(1-\\varepsilon)/q(m \\mid x)]` on agreement and
+  :math:`\\ln\\varepsilon` on disagreement; 0 for an unknown formula.
+* **key ions**: each of the compound's key ions is seen with probability
+  p_seen under *j* and p_chance under *N*.
+* **spectral-search hit** naming the candidate (name similarity ≥
+  :data:`HIT_MATCH`): likelihood ratio 1 + HIT_GAIN · score/100. A hit that
+  names a compound the library does not hold at all is evidence for *N*:
+  every candidate gets the inverse ratio, 1 / (1 + HIT_GAIN · score/100).
+
+The constants are stated assumptions, not fitted truths; ``matcher evaluate``
+measures how well they serve a given library.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from matcher.identify.window_search import Pairs
+from matcher.classes import DEFAULT_WINDOWS
+from matcher.identify.hints import ion_count, ion_overlap
+from matcher.store.snapshot import ClassEntries, CompoundTable
+from matcher.identify.unlisted import MassBackground, UnlistedField, crowding_density
+
+#: Default index scatter of a measurement (index units), per class: 0.3 × default window.
+DEFAULT_MEASUREMENT_SD: dict[str, float] = {k: 0.3 * v for k, v in DEFAULT_WINDOWS.items()}
+#: Default probability that a listed compound is present in the sample (single queries, short runs).
+DEFAULT_PRESENCE = 0.5
+MASS_ERROR = 0.05  # ε: molecular ion read wrong, absent, or a fragment taken for it
+ION_SEEN = 0.8
+ION_CHANCE = 0.25
+HIT_MATCH = 0.9
+HIT_GAIN = 4.0
+PREDICTED_PRIOR = 0.25  # homologue predictions: a quarter of a measured entry's prior
+CROSS_CLASS_PRIOR = 0.5
+
+_LOG_SQRT_2PI = 0.5 * np.log(2.0 * np.pi)
+
+
+@dataclass(frozen=True)
+class Model:
+    """Settings of the evidence model for one run (see module doc).
+
+    ``measurement_sd`` is the run's index scatter σ_m; ``presence`` the
+    probability π that a listed compound is in the sample; ``unlisted`` the
+    intensity of unlisted peaks (:class:`matcher.identify.unlisted.UnlistedField`;
+    ``None`` means the flat default crowding); ``exclusive``: one compound
+    explains at most one peak of the run.
+    """
+
+    measurement_sd: float
+    presence: float = DEFAULT_PRESENCE
+    unlisted: UnlistedField | None = None
+    exclusive: bool = True
+
+    def with_(self, **kw) -> "Model":
+        return replace(self, **kw)
+
+    def field(self) -> UnlistedField:
+        return self.unlisted if self.unlisted is not None else UnlistedField.flat(crowding_density(None))
+
+
+def mass_background(entries: ClassEntries, compounds: CompoundTable) -> MassBackground:
+    """q(m | x) of a class from its measured entries (see :mod:`matcher.identify.unlisted`)."""
+    ok = ~entries.predicted
+    return MassBackground(entries.ri[ok], compounds.nominal_mass[entries.compound[ok]])
+
+
+@dataclass
+class PeakHints:
+    """Per-peak hint arrays (NaN / empty where a peak has no such hint)."""
+
+    mol_ion: np.ndarray
+    ion_masks: np.ndarray | None = None  # (P, ION_WORDS) uint64
+    hit_similarity: np.ndarray | None = None  # per PAIR, filled by the caller
+    hit_score: np.ndarray | None = None  # per peak, 0-100
+    hit_unlisted: np.ndarray | None = None  # per peak: the hit names no compound of the library
+
+
+@dataclass
+class Scored:
+    """Per-pair evidence and log odds; per-peak unlisted intensity."""
+
+    delta: np.ndarray  # library_ri - x
+    sd: np.ndarray  # combined spread s_j
+    ev_index: np.ndarray
+    ev_mol_ion: np.ndarray
+    ev_ions: np.ndarray
+    ev_hit: np.ndarray
+    score: np.ndarray
+    logw: np.ndarray  # log odds against not-in-library (prior included)
+    mass_state: np.ndarray  # per pair: 1 agree, -1 disagree, 0 no formula, -2 no mol ion given
+    ions_state: np.ndarray  # per pair: fraction of key ions seen, NaN when not compared
+    unlisted_density: np.ndarray  # per peak: λ_U used
+
+
+def _hit_ratio(score: np.ndarray) -> np.ndarray:
+    sc = np.where(np.isfinite(score), np.clip(score, 0, 100), 70.0)
+    return np.log1p(HIT_GAIN * sc / 100.0)
+
+
+def score_pairs(
+    pairs: Pairs,
+    x: np.ndarray,
+    entries: ClassEntries,
+    compounds: CompoundTable,
+    mass_bg: MassBackground,
+    model: Model,
+    hints: PeakHints | None = None,
+    compound_ion_masks: np.ndarray | None = None,
+    prior_factor: np.ndarray | None = None,
+    extra_sd: np.ndarray | float = 0.0,
+    unlisted_density: np.ndarray | None = None,
+) -> Scored:
+    """Score every (peak, entry) pair at once: evidence terms and log odds against not-in-library.
+
+    ``unlisted_density`` is λ_U per peak (from ``model``'s field when not given).
+    """
+    p = pairs.peak
+    e = pairs.entry
+    xall = np.asarray(x, dtype=np.float64)
+    lam = model.field().density(xall) if unlisted_density is None else np.asarray(unlisted_density, float)
+    xp = xall[p]
+    mu = entries.ri[e]
+    s = np.sqrt(entries.sd[e] ** 2 + model.measurement_sd ** 2 + np.asarray(extra_sd) ** 2)
+    delta = mu - xp
+    log_phi = -0.5 * (delta / s) ** 2 - np.log(s) - _LOG_SQRT_2PI
+    ev_index = log_phi - np.log(lam[p])
+
+    comp = entries.compound[e]
+    ev_mol = np.zeros(len(p))
+    mass_state = np.full(len(p), -2, dtype=np.int8)
+    ev_ions = np.zeros(len(p))
+    ions_state = np.full(len(p), np.nan)
+    ev_hit = np.zeros(len(p))
+    if hints is not None and len(p):
+        m = hints.mol_ion[p]
+        given = np.isfinite(m)
+        cm = compounds.nominal_mass[comp]
+        known = given & np.isfinite(cm)
+        agree = known & (m == cm)
+        disagree = known & ~agree
+        mass_state = np.where(given, np.where(agree, 1, np.where(disagree, -1, 0)), -2).astype(np.int8)
+        if agree.any():
+            ev_mol[agree] = np.log(1.0 - MASS_ERROR) - np.log(mass_bg.probability(m[agree], xp[agree]))
+        ev_mol[disagree] = np.log(MASS_ERROR)
+        if hints.ion_masks is not None and compound_ion_masks is not None:
+            pm = hints.ion_masks[p]
+            cmask = compound_ion_masks[comp]
+            n_key = ion_count(cmask)
+            n_obs = ion_count(pm)
+            both = (n_key > 0) & (n_obs > 0)
+            if both.any():
+                seen = ion_overlap(pm[both], cmask[both])
+                k = n_key[both]
+                ev_ions[both] = seen * np.log(ION_SEEN / ION_CHANCE) + (k - seen) * np.log((1 - ION_SEEN) / (1 - ION_CHANCE))
+                ions_state[both] = seen / k
+        sc = hints.hit_score[p] if hints.hit_score is not None else np.full(len(p), np.nan)
+        if hints.hit_similarity is not None:
+            match = hints.hit_similarity >= HIT_MATCH
+            ev_hit[match] = _hit_ratio(sc[match])
+        if hints.hit_unlisted is not None:
+            elsewhere = np.asarray(hints.hit_unlisted, dtype=bool)[p]
+            ev_hit[elsewhere] = -_hit_ratio(sc[elsewhere])
+
+    score = ev_index + ev_mol + ev_ions + ev_hit
+    pi = float(np.clip(model.presence, 1e-6, 1 - 1e-6))
+    logw = np.log(pi / (1 - pi)) + score
+    if prior_factor is not None:
+        logw = logw + np.log(prior_factor)
+    return Scored(delta, s, ev_index, ev_mol, ev_ions, ev_hit, score, logw, mass_state, ions_state, lam)
+
+
+def softmax_with_null(logw: np.ndarray, peak: np.ndarray, n_peaks: int):
+    """Per-peak softmax of pair weights against a null weight of 0 (not in library).
+
+    Returns (probability per pair, not_in_library per peak); per peak they sum to 1.
+
+    >>> prob, nil = softmax_with_null(np.array([0.0, 0.0, np.log(3.0)]), np.array([0, 0, 1]), 3)
+    >>> prob.round(4).tolist(), nil.round(4).tolist()
+    ([0.3333, 0.3333, 0.75], [0.3333, 0.25, 1.0])
+    """
+    nil = np.ones(n_peaks)
+    if len(logw) == 0:
+        return np.zeros(0), nil
+    mx = np.zeros(n_peaks)
+    if np.all(peak[1:] >= peak[:-1]):  # grouped by peak (the usual case): a segmented maximum
+        starts = np.flatnonzero(np.r_[True, peak[1:] != peak[:-1]])
+        mx[peak[starts]] = np.maximum(np.maximum.reduceat(logw, starts), 0.0)
+    else:
+        np.maximum.at(mx, peak, logw)
+    w = np.exp(logw - mx[peak])
+    denom = np.bincount(peak, weights=w, minlength=n_peaks) + np.exp(-mx)
+    prob = w / denom[peak]
+    nil = np.exp(-mx) / denom
+    return prob, nil

@@ -1,0 +1,176 @@
+"""One unknown against the house library: the importable form of ``matcher query``.
+
+:func:`query` returns a :class:`QueryResult`: the candidates inside the
+window as records (:func:`matcher.results.candidate_record`, the same record
+the screen JSON uses), their ``not_in_library`` complement, and provenance;
+``to_dict()`` is the document ``matcher query --json`` prints (described in
+``docs/formats.md``). Every setting is checked by :mod:`matcher.rules`.
+
+>>> from matcher.store.snapshot import CompoundTable, build_snapshot
+>>> snap = build_snapshot(
+...     CompoundTable.from_records([{"id": 1, "name": "limonene", "formula": "C10H16"},
+...                                 {"id": 2, "name": "decane", "formula": "C10H22"}]),
+...     np.array([1, 1, 2]), np.array(["slightly-polar"] * 3), np.array([1029.0, 1031.0, 1000.0]))
+>>> answer = query(1031, "slightly-polar", mol_ion=136, snapshot=snap)
+>>> [c["name"] for c in answer.candidates]
+['limonene']
+>>> round(sum(c["probability"] for c in answer.candidates) + answer.not_in_library, 9)
+1.0
+>>> query(1031, "slightly-polar", top=0, snapshot=snap)
+Traceback (most recent call last):
+...
+matcher.errors.MatcherError: --top must be at least 1
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, Sequence
+
+import numpy as np
+
+from matcher import CAUTION
+from matcher import rules
+from matcher.identify.window_search import window_description
+from matcher.identify.evidence import DEFAULT_MEASUREMENT_SD, DEFAULT_PRESENCE, Model
+from matcher.results import candidate_record, plain
+from matcher.identify.unlisted import UnlistedField, crowding_density
+from matcher.identify.shortlist import PeakInput, Shortlist, neighbour_of, prepare, shortlist
+from matcher.store.snapshot import LibrarySnapshot
+
+
+def candidate_records(sl: Shortlist, rows: np.ndarray) -> list[dict]:
+    """Candidate records (see :func:`matcher.results.candidate_record`) for shortlist rows with a rank."""
+    c = sl.columns
+    out = []
+    for i in rows:
+        if c["rank"][i] == 0:
+            continue
+        out.append(candidate_record(lambda k, i=i: c[k][i], [f for f in str(c["flags"][i]).split(";") if f]))
+    return out
+
+
+@dataclass
+class QueryResult:
+    """The ranked shortlist for one index.
+
+    ``candidates`` are records in rank order (name, library index, deviation,
+    probability, flags, ``evidence`` ...); their probabilities plus
+    ``not_in_library`` sum to 1 over the whole window (``top`` only shortens
+    the list).
+    """
+
+    ri: float
+    phase_class: str
+    window: dict[str, Any]
+    candidates: list[dict[str, Any]]
+    not_in_library: float
+    candidates_in_window: int
+    model: dict[str, Any] = field(default_factory=dict)
+    library: dict[str, Any] = field(default_factory=dict)
+    notes: list[str] = field(default_factory=list)
+    caution: str = CAUTION
+
+    @property
+    def best(self) -> dict[str, Any] | None:
+        """The rank-1 candidate, or ``None`` when nothing lies inside the window."""
+        return self.candidates[0] if self.candidates else None
+
+    @property
+    def table(self):
+        """The candidates as a pandas DataFrame, evidence as ``ev_*`` columns and flags joined by ``;``."""
+        import pandas as pd
+
+        from matcher.results import CANDIDATE_KEYS, EVIDENCE_COLUMNS
+
+        rows = [{**{k: c[k] for k in CANDIDATE_KEYS}, "flags": ";".join(c["flags"]),
+                 **{e: c["evidence"].get(e[3:]) for e in EVIDENCE_COLUMNS}} for c in self.candidates]
+        return pd.DataFrame(rows, columns=list(CANDIDATE_KEYS) + ["flags"] + list(EVIDENCE_COLUMNS))
+
+    def to_dict(self) -> dict[str, Any]:
+        """The document ``matcher query --json`` prints."""
+        return {
+            "ri": self.ri,
+            "class": self.phase_class,
+            "window": dict(self.window),
+            "candidates": [dict(c) for c in self.candidates],
+            "not_in_library": self.not_in_library,
+            "candidates_in_window": self.candidates_in_window,
+            "model": dict(self.model),
+            "library": dict(self.library),
+            "notes": list(self.notes),
+            "caution": self.caution,
+        }
+
+
+def query(
+    ri: float,
+    phase_class: str,
+    *,
+    db: str | None = None,
+    snapshot: LibrarySnapshot | None = None,
+    window: float | None = None,
+    window_percent: float | None = None,
+    mol_ion: float | None = None,
+    ions: Sequence[int] | None = None,
+    hit: str | None = None,
+    hit_score: float | None = None,
+    top: int | None = None,
+    fallback: bool = False,
+    homologues: bool = False,
+    measurement_sd: float | None = None,
+    presence: float = DEFAULT_PRESENCE,
+    crowding: str | float | None = None,
+) -> QueryResult:
+    """Ranked shortlist for one index against one class of the library; see :class:`QueryResult`.
+
+    ``db`` names the library (path or URL; default ``$MATCHER_DB``, then the
+    user data folder); ``snapshot`` gives one already read. Without a run the
+    not-in-library alternative uses the crowding prior (``crowding``: a name
+    of :data:`matcher.identify.unlisted.CROWDING` or unlisted peaks per 100 index
+    units) and each listed compound the presence prior ``presence``.
+    Settings are checked by :mod:`matcher.rules` (and :mod:`matcher.limits`);
+    a bad one raises :class:`~matcher.errors.MatcherError`.
+    """
+    from matcher.limits import check_mol_ion, check_sd
+
+    phase_class = rules.check_class(phase_class)
+    ri = rules.check_ri(ri)
+    if measurement_sd is not None:
+        measurement_sd = check_sd(measurement_sd)
+    if mol_ion is not None:
+        mol_ion = check_mol_ion(mol_ion)
+    window, window_percent = rules.check_window(window, window_percent)
+    top = rules.check_top(top)
+    ions = rules.check_ions(ions)
+    hit_score = rules.check_hit_score(hit_score)
+    if snapshot is None:
+        from matcher.store.snapshot_loader import load_snapshot
+
+        snapshot = load_snapshot(db)
+    home = prepare(snapshot, phase_class, homologues=homologues)
+    neighbour = neighbour_of(snapshot, phase_class) if fallback else None
+    sd = DEFAULT_MEASUREMENT_SD[phase_class] if measurement_sd is None else float(measurement_sd)
+    peaks = PeakInput(
+        np.array([ri]),
+        mol_ion=None if mol_ion is None else np.array([float(mol_ion)]),
+        ions=None if not ions else [ions],
+        hit=None if not hit else np.array([hit], dtype=object),
+        hit_score=None if hit_score is None else np.array([hit_score]),
+    )
+    lam0 = crowding_density(crowding)
+    model = Model(sd, presence=float(presence), unlisted=UnlistedField.flat(lam0))
+    sl = shortlist(home, peaks, model, window=window, window_percent=window_percent,
+                   top=top, neighbour=neighbour)
+    rows = np.arange(len(sl.columns["peak"]))
+    return QueryResult(
+        ri=ri,
+        phase_class=phase_class,
+        window=window_description(phase_class, window, window_percent) | {"half_width": plain(sl.window[0])},
+        candidates=candidate_records(sl, rows),
+        not_in_library=plain(sl.not_in_library[0]),
+        candidates_in_window=int(sl.candidate_count[0]),
+        model={"index_scatter": sd, "presence": float(presence), "unlisted_per_100": round(lam0 * 100, 3)},
+        library={"location": snapshot.source, "revision": snapshot.revision, "entries": len(home.entries)},
+        notes=list(sl.notes),
+    )

@@ -1,0 +1,575 @@
+"""Screening results written to CSV, JSON or XLSX (chosen by the file suffix).
+
+``write_results(result, "out.csv")`` and friends. Every file is written
+atomically (see :mod:`matcher.io.atomic`): on any error nothing is left behind.
+
+**CSV** (``.csv``): one row per peak and candidate, columns
+:data:`~matcher.results.SHORTLIST_COLUMNS` then
+:data:`~matcher.results.DETAIL_COLUMNS` (then any further columns the
+screening added), all runs of the job in one table told apart by ``run``.
+The file holds nothing but the header and the rows, so any CSV reader
+(``pandas.read_csv(path)``, with or without ``comment='#'``, or the
+:mod:`csv` module) reads it. Formatting:
+
+* ``rank``, ``library_n``, ``nominal_mass`` and whole-number ``mol_ion``
+  are integers; an empty cell means "none";
+* booleans are ``true`` / ``false``;
+* ``rt`` 4 decimals, indices and deviations (``ri``, ``ri_measured``,
+  ``library_ri``, ``delta_ri``, ``library_sd``) 2 decimals, ``score`` and the
+  ``ev_*`` evidence 4 decimals, ``hit_score`` 2;
+* ``probability`` and ``not_in_library`` 6 decimals, **rounded down**, so a
+  peak's listed probabilities never add up to more than 1 in the file;
+* ``flags`` semicolon-separated;
+* text cells (names, peak ids, hits, ...) are neutralised against
+  spreadsheet formulas (:mod:`matcher.safe_text`); numbers never are.
+
+**Provenance of a CSV** goes to a *sidecar* file next to it,
+``OUT.csv.meta.json``: the caution, tool version, creation time, library
+(address with any password masked, revision, size), settings, and per run
+its source, class, window, calibration, adaptive correction, notices and
+summary counts. It is the JSON document below with ``"content":
+"provenance"`` and without the peaks, and validates against the same
+schema. Both files are written atomically; the sidecar first.
+
+**JSON** (``.json``): one document, ``"content": "shortlist"``, nested per
+run and per peak; every candidate carries an ``evidence`` object with the
+log likelihood ratios (``index``, ``mol_ion``, ``ions``, ``hit``, from the
+``ev_*`` columns). Validated by ``schema/screen-output.schema.json``
+(JSON Schema draft 2020-12, installed as ``matcher.schemas``).
+
+**XLSX** (``.xlsx``): sheet ``shortlist`` (header in row 1, same columns as
+the CSV, numbers as numbers, booleans as spreadsheet booleans, text cells
+neutralised), sheet ``runs`` (the caution first, then library, settings and
+per run its metadata, calibration with QC, and adaptive correction with its
+anchors). The caution is also the printed page header of the shortlist.
+A spreadsheet holds at most 1,048,575 data rows; larger results are refused
+with a message suggesting CSV.
+
+>>> import tempfile, os
+>>> write_results(None, os.path.join(tempfile.mkdtemp(), "out.txt"))
+Traceback (most recent call last):
+...
+matcher.errors.MatcherError: cannot write out.txt: unknown output type '.txt'; use one of .csv, .json, .xlsx
+"""
+
+from __future__ import annotations
+
+import contextlib
+import csv
+import json
+import math
+import os
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from matcher.io.atomic import atomic_write
+from matcher.errors import MatcherError
+from matcher.results import (
+    DETAIL_COLUMNS,
+    EVIDENCE_COLUMNS,
+    PEAK_KEYS,
+    SHORTLIST_COLUMNS,
+    RunResult,
+    ScreenResult,
+    candidate_record,
+)
+from matcher.rules import SHORTLIST_SUFFIXES
+from matcher.report.summary import split_flags, summarise_table
+from matcher.safe_text import neutralise, spreadsheet_text
+from matcher.store.location import mask_secrets, mask_url
+
+#: Output suffixes (:data:`matcher.rules.SHORTLIST_SUFFIXES`) and what they hold.
+OUTPUT_TYPES: dict[str, str] = dict(zip(SHORTLIST_SUFFIXES, ("CSV table", "JSON document", "Excel workbook")))
+
+#: Name and version of the output document format (JSON and CSV sidecar).
+FORMAT_NAME = "matcher.screen-output"
+FORMAT_VERSION = 1
+
+#: Sidecar suffix appended to a CSV path.
+SIDECAR_SUFFIX = ".meta.json"
+
+INT_COLUMNS = ("rank", "library_n", "nominal_mass", "mol_ion")
+DECIMALS: dict[str, int] = {
+    "rt": 4, "ri": 2, "ri_measured": 2, "library_ri": 2, "delta_ri": 2, "library_sd": 2,
+    "score": 4, "hit_score": 2, "ev_index": 4, "ev_mol_ion": 4, "ev_ions": 4, "ev_hit": 4,
+}
+PROBABILITY_COLUMNS = ("probability", "not_in_library")
+PROBABILITY_DECIMALS = 6
+EXCEL_MAX_ROWS = 1_048_576
+
+
+
+# --------------------------------------------------------------------------- tables
+
+def output_columns(table: pd.DataFrame | None = None) -> list[str]:
+    """Contract columns, then detail columns, then any further columns of ``table``.
+
+    >>> output_columns()[:3], len(output_columns())
+    (['peak', 'rt', 'ri'], 26)
+    """
+    cols = list(SHORTLIST_COLUMNS) + list(DETAIL_COLUMNS)
+    if table is not None:
+        cols += [c for c in table.columns if c not in cols]
+    return cols
+
+
+def combined_table(result: ScreenResult) -> pd.DataFrame:
+    """All runs' tables in one frame with the output columns in order (``run`` filled in)."""
+    frames = []
+    for run in result.runs:
+        table = run.table if run.table is not None else pd.DataFrame()
+        table = table.copy()
+        if "run" not in table or table["run"].isna().all():
+            table["run"] = run.label
+        frames.append(table)
+    frame = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+    cols = output_columns(frame)
+    for c in cols:
+        if c not in frame:
+            frame[c] = None
+    return frame[cols]
+
+
+def _is_bool_column(values: pd.Series) -> bool:
+    if pd.api.types.is_bool_dtype(values.dtype):
+        return True
+    if values.dtype != object:
+        return False
+    present = values.dropna()
+    return len(present) > 0 and all(isinstance(v, (bool, np.bool_)) for v in present)
+
+
+def _numeric(values: pd.Series) -> np.ndarray | None:
+    """Float array when every present value is a number (not a bool), else None."""
+    if pd.api.types.is_bool_dtype(values.dtype):
+        return None
+    if pd.api.types.is_numeric_dtype(values.dtype):
+        return pd.to_numeric(values, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    present = values.dropna()
+    if len(present) == 0:
+        return np.full(len(values), np.nan)
+    if all(isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, (bool, np.bool_)) for v in present):
+        return pd.to_numeric(values, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    return None
+
+
+def _distinct(x: np.ndarray, fmt) -> list[str]:
+    """Format each distinct value once (rows repeat a peak's index and a compound's library values)."""
+    codes, uniques = pd.factorize(x, use_na_sentinel=True)
+    cells = [fmt(v) if math.isfinite(v) else "" for v in uniques.tolist()]
+    lookup = np.array(cells + [""], dtype=object)
+    return lookup[codes].tolist()
+
+
+def _fmt_fixed(x: np.ndarray, decimals: int) -> list[str]:
+    return _distinct(x, f"{{:.{decimals}f}}".format)
+
+
+def _fmt_general(x: np.ndarray) -> list[str]:
+    return _distinct(x, lambda v: str(int(v)) if v.is_integer() and abs(v) < 1e15 else repr(v))
+
+
+def _fmt_int(x: np.ndarray) -> list[str]:
+    return _distinct(x, lambda v: str(int(v)))
+
+
+def floor_decimals(x: np.ndarray, decimals: int = PROBABILITY_DECIMALS) -> np.ndarray:
+    """Round down to ``decimals`` places (a float error below 1e-6 of a step is forgiven).
+
+    >>> floor_decimals(np.array([0.1234567, 0.3, 0.9999999]), 6).tolist()
+    [0.123456, 0.3, 0.999999]
+    """
+    scale = 10.0 ** decimals
+    return np.floor(np.round(x * scale, 6)) / scale
+
+
+def _factorize(values: pd.Series) -> tuple[np.ndarray, list[Any]]:
+    """Codes and distinct values; list cells (flags given as lists) are joined first."""
+    try:
+        codes, uniques = pd.factorize(values, use_na_sentinel=True)
+    except TypeError:  # unhashable cells such as lists
+        joined = values.map(lambda v: ";".join(split_flags(v)) if isinstance(v, (list, tuple, set, frozenset, np.ndarray)) else v)
+        codes, uniques = pd.factorize(joined, use_na_sentinel=True)
+    return codes, list(uniques)
+
+
+def _text_cells(values: pd.Series, safe) -> list[Any]:
+    """Text column made safe; works on the distinct values only (fast on big runs)."""
+    codes, uniques = _factorize(values)
+    lookup = np.array([safe(str(u)) for u in uniques] + [""], dtype=object)
+    return lookup[codes].tolist()  # code -1 (missing) picks the trailing ""
+
+
+def _flag_text(value: Any) -> str:
+    return ";".join(split_flags(value))
+
+
+def csv_cells(frame: pd.DataFrame) -> dict[str, list[str]]:
+    """Each column of ``frame`` as CSV text cells (see the module rules)."""
+    out: dict[str, list[str]] = {}
+    for name in frame.columns:
+        values = frame[name]
+        if name == "flags":
+            out[name] = _text_cells(values, lambda u: neutralise(_flag_text(u)))
+            continue
+        if _is_bool_column(values):
+            out[name] = ["" if v is None or v is pd.NA or (isinstance(v, float) and v != v)
+                         else ("true" if bool(v) else "false") for v in values.tolist()]
+            continue
+        x = _numeric(values)
+        if x is None:
+            out[name] = _text_cells(values, neutralise)
+        elif name in PROBABILITY_COLUMNS:
+            out[name] = _fmt_fixed(floor_decimals(x), PROBABILITY_DECIMALS)
+        elif name in INT_COLUMNS and np.all(np.isnan(x) | (x == np.round(x))):
+            out[name] = _fmt_int(x)
+        elif name in DECIMALS:
+            out[name] = _fmt_fixed(x, DECIMALS[name])
+        else:
+            out[name] = _fmt_general(x)
+    return out
+
+
+# --------------------------------------------------------------------------- JSON document
+
+def jsonable(value: Any) -> Any:
+    """Plain JSON types: NumPy scalars unwrapped, NaN/inf and missing values as None.
+
+    >>> jsonable({"a": np.float64("nan"), "b": [np.int64(3), (1.5, None)], 2: pd.NA})
+    {'a': None, 'b': [3, [1.5, None]], '2': None}
+    """
+    if value is None or isinstance(value, (bool, str)):
+        return value
+    if isinstance(value, np.bool_):
+        return bool(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        v = float(value)
+        return v if math.isfinite(v) else None
+    if isinstance(value, dict):
+        return {str(k): jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple, set, frozenset, np.ndarray, pd.Series)):
+        return [jsonable(v) for v in (value.tolist() if hasattr(value, "tolist") else value)]
+    if value is pd.NA or value is pd.NaT:
+        return None
+    if isinstance(value, os.PathLike):
+        return os.fspath(value)
+    return str(value)
+
+
+def _masked_library(library: dict[str, Any] | None) -> dict[str, Any]:
+    lib = dict(jsonable(library or {}))
+    if lib.get("location") is not None:
+        lib["location"] = mask_url(str(lib["location"]))
+    return lib
+
+
+def _common_flags(rows: list[list[str]]) -> list[str]:
+    if not rows:
+        return []
+    common = set(rows[0]).intersection(*rows[1:])
+    return [f for f in rows[0] if f in common]
+
+
+def _peaks(table: pd.DataFrame) -> list[dict[str, Any]]:
+    """Rows grouped per peak (in table order): peak fields once, candidates nested."""
+    if table is None or len(table) == 0:
+        return []
+    records = table.to_dict("records")
+    ev_cols = list(EVIDENCE_COLUMNS) + [c for c in table.columns if c.startswith("ev_") and c not in EVIDENCE_COLUMNS]
+    extra = [c for c in table.columns if c not in output_columns() and c not in ev_cols]
+    order: list[Any] = []
+    groups: dict[Any, list[dict]] = {}
+    for rec in records:
+        key = jsonable(rec.get("peak"))
+        key = (type(key).__name__, key)
+        if key not in groups:
+            groups[key] = []
+            order.append(key)
+        groups[key].append(rec)
+    peaks = []
+    for key in order:
+        rows = groups[key]
+        first = rows[0]
+        peak = {k: jsonable(first.get(k)) for k in PEAK_KEYS}
+        flag_lists = [split_flags(r.get("flags")) for r in rows]
+        candidates = []
+        for rec, flags in zip(rows, flag_lists):
+            if jsonable(rec.get("rank")) is None:
+                continue
+            cand = candidate_record(rec.get, flags, evidence_columns=ev_cols)
+            for c in extra:
+                cand[c] = jsonable(rec.get(c))
+            candidates.append(cand)
+        peak["flags"] = flag_lists[0] if not candidates else _common_flags(flag_lists)
+        peak["candidates"] = candidates
+        peaks.append(peak)
+    return peaks
+
+
+def run_document(run: RunResult, *, with_peaks: bool = True) -> dict[str, Any]:
+    """One run as a JSON object (metadata, calibration, correction, summary, peaks)."""
+    doc: dict[str, Any] = {
+        "label": str(run.label),
+        "source": mask_secrets(str(run.source)),
+        "class": str(run.phase_class),
+        "window": jsonable(run.window),
+        "measurement_sd": jsonable(run.measurement_sd),
+        "peak_count": jsonable(run.peak_count),
+        "notices": [mask_secrets(str(n)) for n in (run.notices or [])],
+        "calibration": jsonable(run.calibration),
+        "correction": jsonable(run.correction),
+        "summary": summarise_table(run.table),
+    }
+    if getattr(run, "checksum", ""):
+        doc["checksum"] = {"sha256": str(run.checksum)}  # the peak table's content: one peak, one identity
+    if with_peaks:
+        doc["peaks"] = _peaks(run.table)
+    return doc
+
+
+def results_document(
+    result: ScreenResult,
+    *,
+    content: str = "shortlist",
+    table_file: str | None = None,
+    table_columns: list[str] | None = None,
+) -> dict[str, Any]:
+    """The whole job as one JSON-ready dict (``content`` "shortlist", or "provenance" without peaks)."""
+    if content not in ("shortlist", "provenance"):
+        raise ValueError(f"content must be 'shortlist' or 'provenance', not {content!r}")
+    doc: dict[str, Any] = {
+        "format": FORMAT_NAME,
+        "format_version": FORMAT_VERSION,
+        "content": content,
+        "caution": str(result.caution),
+        "tool": {"name": "matcher", "version": str(result.tool_version)},
+        "created": str(result.created),
+        "library": _masked_library(result.library),
+        "settings": jsonable(result.settings or {}),
+        "runs": [run_document(r, with_peaks=(content == "shortlist")) for r in result.runs],
+    }
+    if table_file is not None:
+        columns = table_columns if table_columns is not None else output_columns(combined_table(result))
+        doc["table"] = {"file": table_file, "columns": list(columns),
+                        "rows": int(sum(len(r.table) for r in result.runs if r.table is not None))}
+    return doc
+
+
+def _dump(doc: dict[str, Any]) -> str:
+    return json.dumps(doc, indent=1, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+# --------------------------------------------------------------------------- writers
+
+def sidecar_path(csv_path: str | os.PathLike) -> Path:
+    """Where the provenance of a CSV goes.
+
+    >>> sidecar_path("runs/shortlist.csv").as_posix()
+    'runs/shortlist.csv.meta.json'
+    """
+    p = Path(csv_path)
+    return p.with_name(p.name + SIDECAR_SUFFIX)
+
+
+def write_csv(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
+    """The shortlist CSV and its provenance sidecar; returns both paths."""
+    path = Path(path)
+    frame = combined_table(result)
+    cells = csv_cells(frame)
+    side = sidecar_path(path)
+    doc = results_document(result, content="provenance", table_file=path.name, table_columns=list(frame.columns))
+    with atomic_write(side) as fh:
+        fh.write(_dump(doc))
+    try:
+        with atomic_write(path, newline="") as fh:
+            writer = csv.writer(fh, lineterminator="\n")
+            writer.writerow(list(frame.columns))
+            writer.writerows(zip(*(cells[c] for c in frame.columns)))
+    except BaseException:
+        side.unlink(missing_ok=True)
+        raise
+    return [path, side]
+
+
+def results_text(result: ScreenResult) -> str:
+    """The nested JSON document as text (what :func:`write_json` writes)."""
+    return _dump(results_document(result))
+
+
+def write_json(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
+    """The nested JSON document."""
+    text = results_text(result)
+    with atomic_write(path) as fh:
+        fh.write(text)
+    return [Path(path)]
+
+
+def _xlsx_value(value: Any) -> Any:
+    value = jsonable(value)
+    if isinstance(value, (list, dict)):
+        value = json.dumps(value, ensure_ascii=False) if isinstance(value, dict) else "; ".join(map(str, value))
+    return spreadsheet_text(value)
+
+
+def _xlsx_shortlist_rows(frame: pd.DataFrame):
+    columns = list(frame.columns)
+    kinds = {}
+    for name in columns:
+        values = frame[name]
+        if name == "flags":
+            kinds[name] = ("flags", None)
+        elif _is_bool_column(values):
+            kinds[name] = ("bool", None)
+        else:
+            x = _numeric(values)
+            if x is None:
+                kinds[name] = ("text", None)
+            elif name in PROBABILITY_COLUMNS:
+                kinds[name] = ("num", floor_decimals(x))
+            elif name in INT_COLUMNS and np.all(np.isnan(x) | (x == np.round(x))):
+                kinds[name] = ("int", x)
+            else:
+                kinds[name] = ("num", np.round(x, DECIMALS[name]) if name in DECIMALS else x)
+    raw = {c: frame[c].tolist() for c in columns}
+    for i in range(len(frame)):
+        row = []
+        for c in columns:
+            kind, arr = kinds[c]
+            if kind == "num" or kind == "int":
+                v = arr[i]
+                row.append(None if not math.isfinite(v) else (int(v) if kind == "int" else float(v)))
+            elif kind == "bool":
+                v = raw[c][i]
+                row.append(None if v is None or v is pd.NA or (isinstance(v, float) and v != v) else bool(v))
+            elif kind == "flags":
+                row.append(spreadsheet_text(";".join(split_flags(raw[c][i]))))
+            else:
+                row.append(_xlsx_value(raw[c][i]))
+        yield row
+
+
+def _kv_rows(prefix: str, mapping: dict[str, Any] | None):
+    for key, value in (mapping or {}).items():
+        if isinstance(value, list) and value and all(isinstance(v, dict) for v in value):
+            continue  # tables are written separately
+        yield [_xlsx_value(f"{prefix}{key}"), _xlsx_value(value)]
+
+
+def _table_rows(title: str, records: list[dict[str, Any]] | None):
+    if not records:
+        return
+    keys: list[str] = []
+    for rec in records:
+        keys += [k for k in rec if k not in keys]
+    yield [_xlsx_value(title)]
+    yield [_xlsx_value(k) for k in keys]
+    for rec in records:
+        yield [_xlsx_value(rec.get(k)) for k in keys]
+
+
+def _runs_sheet_rows(result: ScreenResult):
+    doc = results_document(result, content="provenance")
+    yield ["caution", _xlsx_value(doc["caution"])]
+    yield ["tool", _xlsx_value(f"matcher {doc['tool']['version']}")]
+    yield ["created", _xlsx_value(doc["created"])]
+    yield from _kv_rows("library ", doc["library"])
+    yield from _kv_rows("setting ", doc["settings"])
+    for run in doc["runs"]:
+        yield []
+        yield ["run", _xlsx_value(run["label"])]
+        for key in ("source", "class", "window", "measurement_sd", "peak_count"):
+            yield [key, _xlsx_value(run[key])]
+        for note in run["notices"]:
+            yield ["notice", _xlsx_value(note)]
+        yield from _kv_rows("summary ", {k: v for k, v in run["summary"].items() if k != "flags"})
+        yield from _kv_rows("flag ", run["summary"]["flags"])
+        cal = run.get("calibration") or {}
+        if cal:
+            yield from _kv_rows("calibration ", {k: v for k, v in cal.items() if k not in ("qc", "standards")})
+            qc = cal.get("qc") or {}
+            yield from _kv_rows("qc ", {k: v for k, v in qc.items() if k != "checks"})
+            yield from _table_rows("ladder standards", cal.get("standards"))
+            yield from _table_rows("ladder QC", qc.get("checks"))
+        cor = run.get("correction")
+        if cor:
+            yield from _kv_rows("correction ", {k: v for k, v in cor.items() if k != "anchors"})
+            yield from _table_rows("correction anchors", cor.get("anchors"))
+        else:
+            yield ["correction", "none"]
+
+
+def write_xlsx(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
+    """The workbook: sheets ``shortlist`` and ``runs``."""
+    from openpyxl import Workbook
+    from openpyxl.cell import WriteOnlyCell
+    from openpyxl.styles import Font
+
+    frame = combined_table(result)
+    if len(frame) >= EXCEL_MAX_ROWS:
+        raise MatcherError(
+            f"cannot write {Path(path).name}: {len(frame)} rows exceed a spreadsheet's "
+            f"{EXCEL_MAX_ROWS - 1} data rows; write .csv or .json instead"
+        )
+    wb = Workbook(write_only=True)
+    try:
+        _fill_workbook(wb, result, frame, Font, WriteOnlyCell)
+        with atomic_write(path, "wb") as fh:
+            wb.save(fh)
+    finally:
+        for sheet in wb.worksheets:  # a failed write leaves no open temporary sheet behind
+            if not getattr(sheet, "closed", True):
+                with contextlib.suppress(Exception):
+                    sheet.close()
+    return [Path(path)]
+
+
+def _fill_workbook(wb, result: ScreenResult, frame: pd.DataFrame, Font, WriteOnlyCell) -> None:
+    short = wb.create_sheet("shortlist")
+    short.freeze_panes = "A2"
+    short.oddHeader.center.text = str(result.caution).replace("&", "&&")
+    short.oddHeader.center.size = 8
+    bold = Font(bold=True)
+    header = []
+    for name in frame.columns:
+        cell = WriteOnlyCell(short, value=name)
+        cell.font = bold
+        header.append(cell)
+    short.append(header)
+    for row in _xlsx_shortlist_rows(frame):
+        short.append(row)
+    runs = wb.create_sheet("runs")
+    runs.column_dimensions["A"].width = 26
+    runs.column_dimensions["B"].width = 60
+    for row in _runs_sheet_rows(result):
+        runs.append(row)
+
+
+_WRITERS = {".csv": write_csv, ".json": write_json, ".xlsx": write_xlsx}
+
+
+def write_results(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
+    """Write ``result`` to ``path`` in the format its suffix names; returns the files written.
+
+    ``.csv`` also writes the provenance sidecar ``path + '.meta.json'``.
+    An unknown suffix raises :class:`MatcherError` naming the allowed ones.
+    """
+    suffix = Path(path).suffix.lower()
+    writer = _WRITERS.get(suffix)
+    if writer is None:
+        allowed = ", ".join(OUTPUT_TYPES)
+        raise MatcherError(
+            f"cannot write {Path(path).name}: unknown output type {suffix or '(none)'!r}; use one of {allowed}"
+        )
+    return writer(result, path)
+
+
+def output_schema() -> dict[str, Any]:
+    """The JSON Schema (draft 2020-12) of the JSON output and the CSV sidecar, from the installed package."""
+    from importlib.resources import files
+
+    return json.loads(files("matcher.schemas").joinpath("screen-output.schema.json").read_text(encoding="utf-8"))

@@ -1,0 +1,195 @@
+"""Small inline SVG plots drawn by hand (no plotting library, nothing loaded from outside).
+
+An :func:`xy_plot` takes layers (points, lines, a band) in data units and
+returns one ``<svg>`` element as text, with axes, "nice" tick marks and
+labels. All text is HTML-escaped, so names of standards or compounds cannot
+inject markup. Colours are presentation attributes, so the SVG looks the
+same with or without the page's style sheet.
+
+>>> nice_ticks(803.0, 1396.0)
+[800.0, 1000.0, 1200.0, 1400.0]
+>>> svg = xy_plot([points([1, 2], [3, 4], labels=["<b>"])], x_label="t", y_label="I")
+>>> svg.startswith("<svg") and "&lt;b&gt;" in svg and "<b>" not in svg
+True
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Sequence
+
+from matcher.safe_text import html_text
+
+INK = "#1f2d36"
+GRID = "#d9dee2"
+COLOURS = {"primary": "#2f6f8f", "secondary": "#b5651d", "muted": "#7c8a93"}
+
+
+@dataclass
+class Layer:
+    kind: str                      # "points", "line" or "band"
+    x: list[float]
+    y: list[float]
+    y2: list[float] = field(default_factory=list)   # band: upper edge (y is the lower edge)
+    labels: list[str] = field(default_factory=list)  # points: tooltip per point
+    colour: str = "primary"
+    dashed: bool = False
+    name: str = ""                 # legend text
+
+
+def _clean(xs: Sequence, ys: Sequence) -> tuple[list[float], list[float]]:
+    out_x, out_y = [], []
+    for a, b in zip(xs, ys):
+        try:
+            fa, fb = float(a), float(b)
+        except (TypeError, ValueError):
+            continue
+        if math.isfinite(fa) and math.isfinite(fb):
+            out_x.append(fa)
+            out_y.append(fb)
+    return out_x, out_y
+
+
+def points(x: Sequence, y: Sequence, *, labels: Sequence | None = None, colour: str = "primary", name: str = "") -> Layer:
+    """Markers at (x, y); ``labels`` become tooltips (escaped)."""
+    lab = [str(v) for v in labels] if labels is not None else []
+    keep = [i for i, (a, b) in enumerate(zip(x, y)) if _clean([a], [b])[0]]
+    xs, ys = _clean([x[i] for i in keep], [y[i] for i in keep])
+    return Layer("points", xs, ys, labels=[lab[i] if i < len(lab) else "" for i in keep], colour=colour, name=name)
+
+
+def line(x: Sequence, y: Sequence, *, colour: str = "primary", dashed: bool = False, name: str = "") -> Layer:
+    """A polyline through (x, y) in the given order."""
+    xs, ys = _clean(x, y)
+    return Layer("line", xs, ys, colour=colour, dashed=dashed, name=name)
+
+
+def band(x: Sequence, lower: Sequence, upper: Sequence, *, colour: str = "muted", name: str = "") -> Layer:
+    """A shaded area between two curves over x."""
+    xs, lo = _clean(x, lower)
+    _, hi = _clean(x, upper)
+    return Layer("band", xs, lo, y2=hi, colour=colour, name=name)
+
+
+def nice_ticks(lo: float, hi: float, count: int = 5) -> list[float]:
+    """Round tick values from at or below ``lo`` to at or above ``hi`` (steps 1, 2 or 5 × 10^k).
+
+    >>> nice_ticks(0.0, 1.0)
+    [0.0, 0.2, 0.4, 0.6, 0.8, 1.0]
+    >>> nice_ticks(-3.4, 2.2)
+    [-4.0, -2.0, 0.0, 2.0, 4.0]
+    """
+    if not (math.isfinite(lo) and math.isfinite(hi)):
+        return []
+    if hi < lo:
+        lo, hi = hi, lo
+    if hi == lo:
+        hi, lo = hi + 1.0, lo - 1.0
+    raw = (hi - lo) / max(count, 1)
+    mag = 10.0 ** math.floor(math.log10(raw))
+    step = next(m * mag for m in (1, 2, 5, 10) if m * mag >= raw)
+    start = math.floor(lo / step + 1e-9) * step
+    end = math.ceil(hi / step - 1e-9) * step
+    ticks = []
+    k = 0
+    while start + k * step <= end + step * 1e-9:
+        ticks.append(round(start + k * step, 10) + 0.0)
+        k += 1
+    return ticks
+
+
+def _fmt_tick(v: float) -> str:
+    return f"{v:.6g}"
+
+
+def xy_plot(
+    layers: Sequence[Layer],
+    *,
+    x_label: str,
+    y_label: str,
+    title: str = "",
+    width: int = 560,
+    height: int = 320,
+    zero_line: bool = False,
+) -> str:
+    """One SVG element with the layers drawn on shared axes (an empty frame when no data)."""
+    left, right, top, bottom = 64, 16, 28 if title else 12, 46
+    pw, ph = width - left - right, height - top - bottom
+    xs = [v for layer in layers for v in layer.x]
+    ys = [v for layer in layers for v in layer.y + layer.y2]
+    if zero_line and ys:
+        ys.append(0.0)
+    parts = [
+        f'<svg class="plot" viewBox="0 0 {width} {height}" '
+        f'width="{width}" height="{height}" role="img" aria-label="{html_text(title or y_label)}" '
+        f'font-family="system-ui, sans-serif" font-size="11">'
+    ]
+    if title:
+        parts.append(f'<text x="{left}" y="16" fill="{INK}" font-size="12" font-weight="600">{html_text(title)}</text>')
+    if not xs or not ys:
+        parts.append(f'<rect x="{left}" y="{top}" width="{pw}" height="{ph}" fill="none" stroke="{GRID}"/>')
+        parts.append(f'<text x="{left + pw / 2}" y="{top + ph / 2}" text-anchor="middle" fill="{COLOURS["muted"]}">no data to plot</text>')
+        parts.append("</svg>")
+        return "".join(parts)
+    xt, yt = nice_ticks(min(xs), max(xs)), nice_ticks(min(ys), max(ys))
+    x0, x1 = min(xt[0], min(xs)), max(xt[-1], max(xs))
+    y0, y1 = min(yt[0], min(ys)), max(yt[-1], max(ys))
+    x1 = x1 if x1 > x0 else x0 + 1
+    y1 = y1 if y1 > y0 else y0 + 1
+
+    def sx(v: float) -> float:
+        return round(left + (v - x0) / (x1 - x0) * pw, 2)
+
+    def sy(v: float) -> float:
+        return round(top + ph - (v - y0) / (y1 - y0) * ph, 2)
+
+    # grid and ticks
+    for v in xt:
+        parts.append(f'<line x1="{sx(v)}" y1="{top}" x2="{sx(v)}" y2="{top + ph}" stroke="{GRID}" stroke-width="1"/>')
+        parts.append(f'<text x="{sx(v)}" y="{top + ph + 15}" text-anchor="middle" fill="{INK}">{_fmt_tick(v)}</text>')
+    for v in yt:
+        parts.append(f'<line x1="{left}" y1="{sy(v)}" x2="{left + pw}" y2="{sy(v)}" stroke="{GRID}" stroke-width="1"/>')
+        parts.append(f'<text x="{left - 6}" y="{sy(v) + 4}" text-anchor="end" fill="{INK}">{_fmt_tick(v)}</text>')
+    if zero_line and y0 < 0 < y1:
+        parts.append(f'<line x1="{left}" y1="{sy(0)}" x2="{left + pw}" y2="{sy(0)}" stroke="{INK}" stroke-width="1" stroke-opacity="0.5"/>')
+    parts.append(f'<rect x="{left}" y="{top}" width="{pw}" height="{ph}" fill="none" stroke="{INK}" stroke-width="1"/>')
+    parts.append(f'<text x="{left + pw / 2}" y="{height - 8}" text-anchor="middle" fill="{INK}">{html_text(x_label)}</text>')
+    parts.append(
+        f'<text transform="translate(14 {top + ph / 2}) rotate(-90)" text-anchor="middle" fill="{INK}">{html_text(y_label)}</text>'
+    )
+    # layers: bands first, then lines, then points on top
+    order = {"band": 0, "line": 1, "points": 2}
+    for layer in sorted(layers, key=lambda la: order.get(la.kind, 3)):
+        colour = COLOURS.get(layer.colour, COLOURS["primary"])
+        if layer.kind == "band" and layer.x:
+            upper = " ".join(f"{sx(a)},{sy(b)}" for a, b in zip(layer.x, layer.y2))
+            lower = " ".join(f"{sx(a)},{sy(b)}" for a, b in reversed(list(zip(layer.x, layer.y))))
+            parts.append(f'<polygon points="{upper} {lower}" fill="{colour}" fill-opacity="0.15" stroke="none"/>')
+        elif layer.kind == "line" and len(layer.x) >= 2:
+            path = " ".join(f"{sx(a)},{sy(b)}" for a, b in zip(layer.x, layer.y))
+            dash = ' stroke-dasharray="6 4"' if layer.dashed else ""
+            parts.append(f'<polyline points="{path}" fill="none" stroke="{colour}" stroke-width="1.8"{dash}/>')
+        elif layer.kind == "points":
+            for i, (a, b) in enumerate(zip(layer.x, layer.y)):
+                tip = layer.labels[i] if i < len(layer.labels) else ""
+                title_el = f"<title>{html_text(tip)}</title>" if tip else ""
+                parts.append(
+                    f'<circle cx="{sx(a)}" cy="{sy(b)}" r="3.6" fill="#ffffff" stroke="{colour}" stroke-width="1.8">{title_el}</circle>'
+                )
+    # legend
+    named = [la for la in layers if la.name]
+    lx = left + 10
+    for i, layer in enumerate(named):
+        colour = COLOURS.get(layer.colour, COLOURS["primary"])
+        y = top + 14 + 15 * i
+        if layer.kind == "points":
+            parts.append(f'<circle cx="{lx + 8}" cy="{y - 4}" r="3.6" fill="#ffffff" stroke="{colour}" stroke-width="1.8"/>')
+        elif layer.kind == "band":
+            parts.append(f'<rect x="{lx}" y="{y - 9}" width="16" height="9" fill="{colour}" fill-opacity="0.2"/>')
+        else:
+            dash = ' stroke-dasharray="6 4"' if layer.dashed else ""
+            parts.append(f'<line x1="{lx}" y1="{y - 4}" x2="{lx + 16}" y2="{y - 4}" stroke="{colour}" stroke-width="1.8"{dash}/>')
+        parts.append(f'<text x="{lx + 22}" y="{y}" fill="{INK}">{html_text(layer.name)}</text>')
+    parts.append("</svg>")
+    return "".join(parts)
