@@ -144,4 +144,24 @@ def rank(query: str, choices: Sequence[str], limit: int = 10, cutoff: float = 50
     return ordered[:limit]
 
 
+#: Similarity (0-100) of matching keys at or above which a new name counts as close to a library name
+#: (our own choice: one or two letters apart in a name of ten, such as limonen / limonene).
+CLOSE_SCORE = 88.0
+
+
+def closeness(a: str, b: str) -> float:
+    """Similarity 0-100 of two names on their matching keys (also with Greek names shortened).
+
+    >>> closeness("limonen", "limonene") >= CLOSE_SCORE, closeness("decane", "tridecane") >= CLOSE_SCORE
+    (True, False)
+    >>> closeness("a-pinene", "α-pinene")
+    100.0
+    """
+    from rapidfuzz import fuzz
+
+
+    ka, kb = matching_key(a), matching_key(b)
+    return float(max(fuzz.ratio(ka, kb), fuzz.ratio(short_greek_key(ka), short_greek_key(kb))))
+
+
 __all__ = ["GREEK", "matching_key", "search_text", "display_name", "short_greek_key", "rank"]
