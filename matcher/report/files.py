@@ -396,6 +396,74 @@ def write_csv(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
     return [path, side]
 
 
+class CsvStream:
+    """The shortlist CSV written part by part while a screen runs, then its sidecar.
+
+    Used as ``with CsvStream(path) as stream: result = screen(..., sink=stream.write); stream.finish(result)``.
+    The CSV goes to a hidden temporary file beside ``path`` and replaces it only when
+    :meth:`finish` has written the provenance sidecar; any error leaves neither file
+    behind (nor a half-written one), as :func:`write_csv` does. The header is the first
+    part's columns (:func:`output_columns`); every part must have the same columns.
+    """
+
+    def __init__(self, path: str | os.PathLike) -> None:
+        self.path = Path(path)
+        self.columns: list[str] | None = None
+        self.rows = 0
+        self._ctx = None
+        self._fh = None
+        self._writer = None
+        self._finished = False
+
+    def __enter__(self) -> "CsvStream":
+        self._ctx = atomic_write(self.path, newline="")
+        self._fh = self._ctx.__enter__()
+        self._writer = csv.writer(self._fh, lineterminator="\n")
+        return self
+
+    def write(self, frame: pd.DataFrame) -> None:
+        """Append one part of the table (output columns in order, ``run`` filled in)."""
+        if self.columns is None:
+            self.columns = output_columns(frame)
+            self._writer.writerow(self.columns)
+        frame = frame.reindex(columns=self.columns)
+        cells = csv_cells(frame)
+        self._writer.writerows(zip(*(cells[c] for c in self.columns)))
+        self.rows += len(frame)
+
+    def finish(self, result: ScreenResult) -> list[Path]:
+        """Write the sidecar for ``result``; the CSV takes its place when the ``with`` block ends."""
+        if self.columns is None:  # no part came (no runs): the header alone
+            self.columns = output_columns()
+            self._writer.writerow(self.columns)
+        side = sidecar_path(self.path)
+        doc = results_document(result, content="provenance", table_file=self.path.name, table_columns=self.columns)
+        with atomic_write(side) as fh:
+            fh.write(_dump(doc))
+        self._finished = True
+        return [self.path, side]
+
+    def __exit__(self, kind, value, tb) -> bool:
+        unfinished = kind is None and not self._finished
+        if unfinished:
+            value = RuntimeError("CsvStream closed without finish(result)")
+            kind, tb = RuntimeError, None
+        if kind is not None:
+            try:
+                self._ctx.__exit__(kind, value, tb)  # removes the temporary CSV
+            finally:
+                sidecar_path(self.path).unlink(missing_ok=True)
+            if unfinished:
+                raise value
+            return False
+        try:
+            self._ctx.__exit__(None, None, None)
+        except BaseException:
+            sidecar_path(self.path).unlink(missing_ok=True)
+            raise
+        return False
+
+
 def results_text(result: ScreenResult) -> str:
     """The nested JSON document as text (what :func:`write_json` writes)."""
     return _dump(results_document(result))

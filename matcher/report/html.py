@@ -43,13 +43,13 @@ import pandas as pd
 
 from matcher.report import svg as plots
 from matcher.io.atomic import atomic_write
-from matcher.results import RunResult, ScreenResult
+from matcher.results import REPORT_PEAKS, RunResult, ScreenResult
 from matcher.report.summary import REVIEW_FLAG, engine_marks_review, row_needs_review, split_flags, summarise_table
 from matcher.safe_text import html_text as e
 from matcher.store.location import mask_secrets, mask_url
 
 #: Default cap on peaks listed per run in the report.
-MAX_PEAKS = 2000
+MAX_PEAKS = REPORT_PEAKS
 
 #: Rank-1 probability from which a match counts as confident for the deviation plot (without anchors).
 CONFIDENT_PROBABILITY = 0.9
