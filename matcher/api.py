@@ -63,7 +63,7 @@ class Library:
 
     ``db`` is a file path (SQLite) or an SQLAlchemy URL; ``None`` means
     ``$MATCHER_DB``, else ``library.sqlite`` in the user data folder (see
-    :mod:`matcher.store.location`). Opening does not touch the database; the
+    :mod:`matcher.location`). Opening does not touch the database; the
     first operation does, and a missing or outdated library raises
     :class:`~matcher.errors.LibraryError`. Methods mirror ``matcher library
     ...`` and return what those commands render.
@@ -76,14 +76,14 @@ class Library:
     @property
     def url(self) -> str:
         """The SQLAlchemy URL the library resolves to (may hold a password: do not print it)."""
-        from matcher.store.location import resolve
+        from matcher.location import resolve
 
         return resolve(self.db)
 
     @property
     def location(self) -> str:
         """The resolved address with any password shown as ``***``."""
-        from matcher.store.location import mask_url
+        from matcher.location import mask_url
 
         return mask_url(self.url)
 
@@ -315,7 +315,8 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
     if output is None and report is None:
         return run()
     from matcher.io.atomic import guard_outputs
-    from matcher.report.files import CsvStream, sidecar_path, write_results
+    from matcher.io.result_files import sidecar_path
+    from matcher.report.files import CsvStream, write_results
     from matcher.rules import check_report_path, check_shortlist_path
 
     if output is not None:
@@ -332,8 +333,19 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
                   inputs=extra("the peak table", listed) + extra("the calibration", calibration)
                   + extra("the ladder", ladder) + extra("the anchors file", anchors))
     if csv_out:
+        from matcher.report.summary import add_summaries, summarise_table
+
+        counted: dict[str, dict] = {}
+
+        def sink(part) -> None:
+            stream.write(part)
+            label = str(part["run"].iat[0]) if len(part) else ""
+            counted[label] = add_summaries(counted.get(label), summarise_table(part))
+
         with CsvStream(output) as stream:
-            result = run(stream.write)
+            result = run(sink)
+            for r in result.runs:
+                r.summary = counted.get(r.label, summarise_table(r.table.iloc[:0]))
             stream.finish(result)
     else:
         result = run()

@@ -139,6 +139,7 @@ class RunResult:
     run_model: dict[str, Any] = field(default_factory=dict)  # fitted in-library share and scatter, see matcher.identify.run_model
     notices: list[str] = field(default_factory=list)
     peak_count: int = 0
+    summary: dict[str, Any] | None = None  # counted part by part when streamed (matcher.report.summary.add_summaries)
     streamed: bool = False           # rows went to a file as they came; ``table`` keeps leading rows and the report's peaks
     checksum: str = ""               # SHA-256 of the peak table's normalised content (matcher.io.peak_tables.content_checksum)
 

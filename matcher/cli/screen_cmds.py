@@ -82,7 +82,7 @@ def register(app: typer.Typer) -> None:
         finally:
             if bar is not None:
                 bar.__exit__(None, None, None)
-        from matcher.report.files import sidecar_path
+        from matcher.io.result_files import sidecar_path
 
         written = [out] + ([str(sidecar_path(out))] if out.lower().endswith(".csv") else []) + ([report] if report else [])
         if not quiet:
@@ -99,18 +99,15 @@ def register(app: typer.Typer) -> None:
 
 def summary(result) -> str:
     """A short per-run table: peaks, with a candidate, ranked first with p ≥ 0.9, to review."""
-    from matcher.identify.flags import has_flag
+    from matcher.report.summary import summary_of
     from matcher.report.terminal import format_table
 
     rows = []
     for run in result.runs:
-        t = run.table
-        first = t[t["rank"] == 1]
-        peaks = t["peak"].nunique()
-        review = t.loc[has_flag(t["flags"].to_numpy(), "review"), "peak"].nunique()
+        s = summary_of(run)
         corr = run.correction
         corr_text = "-" if not corr else (f"a={corr['a']:+.4f} b={corr['b']:+.2f}" if corr.get("applied") else "skipped")
-        rows.append([run.label, peaks, int(len(first)), int((first["probability"] >= 0.9).sum()), review,
+        rows.append([run.label, s["peaks"], s["with_candidates"], s["confident"], s["review"],
                      f"{run.measurement_sd:.2f}" if run.measurement_sd is not None else "-", corr_text])
     return format_table(["run", "peaks", "with candidate", "confident (p>=0.9)", "to review", "index sd", "adaptive fit"],
                         rows, align="lrrrrrl")

@@ -31,7 +31,8 @@ from matcher.results import DETAIL_COLUMNS, REPORT_PEAKS, SHORTLIST_COLUMNS, Run
 from matcher.identify.shortlist import PeakInput, PreparedClass, Shortlist, neighbour_of, prepare, shortlist
 from matcher.store.snapshot import LibrarySnapshot
 
-CHUNK = 50_000
+CHUNK = 50_000  # peaks scored at once at most
+MAX_PAIRS = 400_000  # peak-candidate pairs scored at once, on average (bounds a chunk's memory, ~0.3 GB)
 MAX_FIT_PEAKS = 20_000  # peaks used to fit the run model (a seeded sample beyond this)
 
 
@@ -151,6 +152,22 @@ def fit_run_model(home: PreparedClass, peaks: PeakInput, model: Model, w: np.nda
     return model, info, lam
 
 
+def pair_budget_size(x: np.ndarray, w: np.ndarray, entries_ri: np.ndarray, size: int = CHUNK,
+                     pairs: int = None) -> int:
+    """Peaks per chunk so that a chunk holds at most ``pairs`` peak-candidate pairs on average.
+
+    >>> pair_budget_size(np.arange(1000.0), np.full(1000, 5.0), np.arange(0.0, 1000.0, 0.5), size=800, pairs=2000)  # 21 entries in each window
+    95
+    """
+    pairs = MAX_PAIRS if pairs is None else pairs
+    ok = np.isfinite(x)
+    if not ok.any() or not len(entries_ri):
+        return size
+    count = np.searchsorted(entries_ri, x[ok] + w[ok], "right") - np.searchsorted(entries_ri, x[ok] - w[ok], "left")
+    per_peak = max(float(count.mean()), 1.0)
+    return int(max(1000 if len(x) > 1000 else 1, min(size, pairs // per_peak)))
+
+
 def index_chunks(x: np.ndarray, w: np.ndarray, size: int = CHUNK):
     """Windows of the index scale: (core positions, context positions) per chunk.
 
@@ -215,7 +232,7 @@ def iter_shortlist(home, peaks: PeakInput, model: Model, *, window, window_perce
     """
     x = np.asarray(peaks.ri, dtype=float)
     w = half_widths(x, home.phase_class, window, window_percent)
-    for core, context in index_chunks(x, w, CHUNK):
+    for core, context in index_chunks(x, w, pair_budget_size(x, w, home.entries.ri, CHUNK)):
         sub = peaks if len(context) == len(x) else _subset(peaks, context)
         sl = shortlist(home, sub, model, window=window, window_percent=window_percent, top=top, neighbour=neighbour)
         if run_level_flags:
@@ -550,9 +567,8 @@ def _concat(frames):
 
 
 class _Keeper:
-    """What a streamed run keeps in memory: each peak's leading row (rank 1, or the row of a peak
-    without candidates), and every row of up to ``budget`` peaks marked for review and ``budget``
-    others (the most a report shows, review-marked first)."""
+    """What a streamed run keeps in memory: every row of up to ``budget`` peaks marked for review
+    and ``budget`` others, the most a report shows (review-marked first)."""
 
     def __init__(self, budget: int) -> None:
         self.review_left = budget
@@ -561,21 +577,17 @@ class _Keeper:
     def keep(self, df):
         import pandas as pd
 
-        if not len(df):
-            return df
-        rank = pd.to_numeric(df["rank"], errors="coerce").to_numpy(float)
-        leading = ~(rank > 1)
+        if not len(df) or (self.review_left <= 0 and self.other_left <= 0):
+            return df.iloc[:0]
         peak_codes, _ = pd.factorize(df["peak"].astype(str))
-        review_row = F.has_flag(df["flags"].to_numpy(), "review")
         review_peak = np.zeros(peak_codes.max() + 1, bool)
-        np.logical_or.at(review_peak, peak_codes, review_row)
+        np.logical_or.at(review_peak, peak_codes, F.has_flag(df["flags"].to_numpy(), "review"))
         order = np.unique(peak_codes)
         take_review = order[review_peak[order]][: self.review_left]
         take_other = order[~review_peak[order]][: self.other_left]
         self.review_left -= len(take_review)
         self.other_left -= len(take_other)
-        whole = np.isin(peak_codes, np.concatenate([take_review, take_other]))
-        return df[leading | whole].reset_index(drop=True)
+        return df[np.isin(peak_codes, np.concatenate([take_review, take_other]))].reset_index(drop=True)
 
 
 def screen(
@@ -608,8 +620,8 @@ def screen(
 
     ``sink``: called with each part of the output table (a DataFrame in output
     order) as soon as it is ready, so a writer can stream a run of any size; the
-    runs' ``table`` then keeps only each peak's leading row and every row of the
-    peaks a report shows (:class:`_Keeper`), and ``RunResult.streamed`` is true.
+    runs' ``table`` then keeps only the rows of the peaks a report shows
+    (:class:`_Keeper`), and ``RunResult.streamed`` is true.
 
     ``peak_files``: one run or a list of runs, each a peak-table path, a
     pandas DataFrame or a :class:`~matcher.io.peak_tables.PeakTable`. ``calibration``

@@ -77,9 +77,10 @@ from matcher.results import (
     candidate_record,
 )
 from matcher.rules import SHORTLIST_SUFFIXES
-from matcher.report.summary import split_flags, summarise_table
+from matcher.report.summary import split_flags, summarise_table, summary_of  # noqa: F401
 from matcher.safe_text import neutralise, spreadsheet_text
-from matcher.store.location import mask_secrets, mask_url
+from matcher.io.result_files import SIDECAR_SUFFIX, sidecar_path  # noqa: F401 - part of this module's API
+from matcher.location import mask_secrets, mask_url
 
 #: Output suffixes (:data:`matcher.rules.SHORTLIST_SUFFIXES`) and what they hold.
 OUTPUT_TYPES: dict[str, str] = dict(zip(SHORTLIST_SUFFIXES, ("CSV table", "JSON document", "Excel workbook")))
@@ -89,7 +90,6 @@ FORMAT_NAME = "matcher.screen-output"
 FORMAT_VERSION = 1
 
 #: Sidecar suffix appended to a CSV path.
-SIDECAR_SUFFIX = ".meta.json"
 
 INT_COLUMNS = ("rank", "library_n", "nominal_mass", "mol_ion")
 DECIMALS: dict[str, int] = {
@@ -323,7 +323,7 @@ def run_document(run: RunResult, *, with_peaks: bool = True) -> dict[str, Any]:
         "notices": [mask_secrets(str(n)) for n in (run.notices or [])],
         "calibration": jsonable(run.calibration),
         "correction": jsonable(run.correction),
-        "summary": summarise_table(run.table),
+        "summary": summary_of(run),
     }
     if getattr(run, "checksum", ""):
         doc["checksum"] = {"sha256": str(run.checksum)}  # the peak table's content: one peak, one identity
@@ -365,16 +365,6 @@ def _dump(doc: dict[str, Any]) -> str:
 
 
 # --------------------------------------------------------------------------- writers
-
-def sidecar_path(csv_path: str | os.PathLike) -> Path:
-    """Where the provenance of a CSV goes.
-
-    >>> sidecar_path("runs/shortlist.csv").as_posix()
-    'runs/shortlist.csv.meta.json'
-    """
-    p = Path(csv_path)
-    return p.with_name(p.name + SIDECAR_SUFFIX)
-
 
 def write_csv(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
     """The shortlist CSV and its provenance sidecar; returns both paths."""

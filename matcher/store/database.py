@@ -1,7 +1,7 @@
 """Opening the house library: engines, schema creation and migration, transactions.
 
 * :func:`engine_for` builds (and caches) an engine for ``--db`` / ``$MATCHER_DB``
-  (see :mod:`matcher.store.location`). On SQLite every connection gets
+  (see :mod:`matcher.location`). On SQLite every connection gets
   ``PRAGMA journal_mode=WAL`` (readers never block the writer),
   ``busy_timeout`` (a writer waits for another instead of failing) and
   ``foreign_keys=ON``; write transactions start with ``BEGIN IMMEDIATE`` so
@@ -47,7 +47,7 @@ from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
 
 from matcher.errors import LibraryError
-from matcher.store.location import mask_secrets, resolve
+from matcher.location import mask_secrets, resolve
 from matcher.store.models import AuditEntry, Base, LibraryState, Phase, SchemaVersion
 
 T = TypeVar("T")
@@ -202,7 +202,7 @@ def sqlstate(exc: BaseException) -> str | None:
 
 
 def _wrap(engine: Engine, exc: Exception, *, writing: bool = False) -> LibraryError:
-    from matcher.store.location import mask_secrets
+    from matcher.location import mask_secrets
 
     msg = mask_secrets(" ".join(str(getattr(exc, "orig", exc)).split()))
     user = engine.url.username or "this role"

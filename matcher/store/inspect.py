@@ -206,7 +206,7 @@ def check(db: str | None, *, strict: bool = False) -> list[str]:
 
     from matcher.limits import MAX_N, MAX_SD
     from matcher.store.database import _sqlite_file, probe_sqlite
-    from matcher.store.location import mask_secrets, resolve
+    from matcher.location import mask_secrets, resolve
 
     problems: list[str] = []
     path = _sqlite_file(resolve(db))
