@@ -421,7 +421,7 @@ def _with(peaks: PeakInput, x: np.ndarray, lam: np.ndarray) -> PeakInput:
 def _shift_profile(home: PreparedClass, peaks: PeakInput, model: Model, w: np.ndarray, lam: np.ndarray) -> float:
     """Coarse offset of the run: the shift b maximising the run's mixture likelihood (see :mod:`matcher.identify.adaptive`)."""
     from matcher.identify.adaptive import MIN_ANCHORS, SHIFT_STEP
-    from matcher.identify.assignment import _Groups
+    from matcher.identify.assignment import PeakGroups
     from matcher.identify.window_search import window_pairs
     from matcher.identify.evidence import score_pairs
 
@@ -438,7 +438,7 @@ def _shift_profile(home: PreparedClass, peaks: PeakInput, model: Model, w: np.nd
     pairs = window_pairs(home.entries.ri, xs, w[ok] * 2.0)
     sub = _subset(peaks, np.flatnonzero(ok))
     hints = _hints_for_fit(sub)
-    groups = _Groups(pairs.peak, len(xs))  # per peak: log(1 + Σ_j w_pj), the "1" being not-in-library
+    groups = PeakGroups(pairs.peak, len(xs))  # per peak: log(1 + Σ_j w_pj), the "1" being not-in-library
     best_b, best_ll = 0.0, -np.inf
     for b in np.arange(-reach, reach + SHIFT_STEP / 2, SHIFT_STEP):
         sc = score_pairs(pairs, xs + b, home.entries, home.compounds, home.mass_bg, model, hints, home.ion_masks,
