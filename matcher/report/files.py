@@ -396,6 +396,8 @@ class CsvStream:
     part's columns (:func:`output_columns`); every part must have the same columns.
     """
 
+    BATCH = 20_000  # rows turned into text at once
+
     def __init__(self, path: str | os.PathLike) -> None:
         self.path = Path(path)
         self.columns: list[str] | None = None
@@ -417,8 +419,10 @@ class CsvStream:
             self.columns = output_columns(frame)
             self._writer.writerow(self.columns)
         frame = frame.reindex(columns=self.columns)
-        cells = csv_cells(frame)
-        self._writer.writerows(zip(*(cells[c] for c in self.columns)))
+        for start in range(0, len(frame), self.BATCH):  # text cells of a few rows at a time: memory stays flat
+            part = frame.iloc[start:start + self.BATCH]
+            cells = csv_cells(part)
+            self._writer.writerows(zip(*(cells[c] for c in self.columns)))
         self.rows += len(frame)
 
     def finish(self, result: ScreenResult) -> list[Path]:
