@@ -1,0 +1,95 @@
+"""What a detected electron-ionisation spectrum says on its own: a molecular-ion hint, n-alkane evidence.
+
+**Molecular-ion hint** (:func:`molecular_ion`). The candidate is the highest
+nominal m/z whose intensity is at least :data:`MOL_ION_MIN` (2 %) of the base
+peak; if the one below it is so much stronger that the candidate can be its
+carbon-13 isotope peak (ratio under 1.1 % per carbon, with carbons
+estimated as m/14, plus 5 %), the one below is the candidate. It is given
+as a hint only when it is even (the nitrogen rule for compounds without
+nitrogen; McLafferty and Tureček, *Interpretation of Mass Spectra*, 4th ed.,
+1993) and no ion of at least 2 % lies 4 to 13 below it (losses of 4–13 u
+from a molecular ion are implausible, same source; then the highest ion is
+a fragment and the spectrum gives no hint). A wrong hint costs more than
+none, so the rules lean to silence.
+
+**n-Alkanes** (:func:`alkane_evidence`). An n-alkane's EI spectrum is the
+CnH2n+1+ series 43, 57, 71, 85, 99, … falling smoothly after m/z 57, with a
+weak molecular ion at 14n + 2 (NIST/EPA/NIH reference spectra of n-alkanes;
+common practice, no single source). A spectrum is alkane-like when m/z 57
+is at least half the base peak and 57 > 71 > 85 > 0, and the series
+43/57/71/85/99 carries at least 35 % of the spectrum's intensity. The carbon
+number is read from the highest ion when it is of the form 14n + 2, is at
+least 0.3 % of the base peak, and outweighs the ion one below it (an
+isotope peak of a CnH2n+1 fragment sits above a stronger fragment);
+otherwise it is not known from the spectrum.
+
+>>> mz = np.array([43., 57, 71, 85, 99, 113, 142]); y = np.array([80., 100, 55, 30, 15, 8, 3])
+>>> alkane_evidence(mz, y)
+(True, 10)
+>>> molecular_ion(np.array([41., 68, 93, 121, 136]), np.array([30., 100, 45, 20, 18]))
+136
+>>> molecular_ion(np.array([41., 68, 93, 121, 127]), np.array([30., 100, 45, 20, 18])) is None   # 127 is odd
+True
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+#: Least relative intensity of a molecular-ion hint (fraction of the base peak).
+MOL_ION_MIN = 0.02
+#: Least relative intensity of an n-alkane's molecular ion.
+ALKANE_M_MIN = 0.003
+ALKANE_SERIES = (43, 57, 71, 85, 99)
+
+
+def _at(mz: np.ndarray, y: np.ndarray, m: int) -> float:
+    k = np.searchsorted(mz, m)
+    return float(y[k]) if k < len(mz) and mz[k] == m else 0.0
+
+
+def molecular_ion(mz, intensity) -> int | None:
+    """A molecular-ion hint from a centroided spectrum (sorted m/z), or ``None``; see the module doc."""
+    mz = np.asarray(mz, dtype=np.float64)
+    y = np.asarray(intensity, dtype=np.float64)
+    if mz.size == 0 or not np.any(y > 0):
+        return None
+    rel = y / y.max()
+    big = np.flatnonzero(rel >= MOL_ION_MIN)
+    m = int(round(mz[big[-1]]))
+    below = _at(mz, rel, m - 1)
+    if below > 0 and rel[big[-1]] <= below * (0.011 * m / 14.0 + 0.05):
+        m -= 1
+    if m % 2:
+        return None
+    near = (mz >= m - 13) & (mz <= m - 4) & (rel >= MOL_ION_MIN)
+    if np.any(near):
+        return None
+    return m
+
+
+def alkane_evidence(mz, intensity) -> tuple[bool, int | None]:
+    """(alkane-like, carbon number from the molecular ion or ``None``); see the module doc."""
+    mz = np.asarray(mz, dtype=np.float64)
+    y = np.asarray(intensity, dtype=np.float64)
+    if mz.size == 0 or not np.any(y > 0):
+        return False, None
+    base = float(y.max())
+    i57, i71, i85 = (_at(mz, y, m) for m in (57, 71, 85))
+    series = sum(_at(mz, y, m) for m in ALKANE_SERIES)
+    like = i57 >= 0.5 * base and i57 > i71 > i85 > 0 and series >= 0.35 * float(y.sum())
+    if not like:
+        return False, None
+    rel = y / base
+    sig = np.flatnonzero(rel >= ALKANE_M_MIN)
+    top = int(round(mz[sig[-1]]))
+    if (top - 3) % 14 == 0 and _at(mz, y, top - 1) >= 3.0 * _at(mz, y, top):  # M+1 of a visible M
+        top -= 1
+    if (top - 2) % 14 or top < 44:
+        return True, None
+    if _at(mz, y, top - 1) >= _at(mz, y, top):
+        return True, None
+    return True, (top - 2) // 14
+
+
+__all__ = ["molecular_ion", "alkane_evidence", "MOL_ION_MIN", "ALKANE_M_MIN"]
