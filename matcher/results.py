@@ -137,6 +137,8 @@ class RunResult:
     notices: list[str] = field(default_factory=list)
     peak_count: int = 0
     checksum: str = ""               # SHA-256 of the peak table's normalised content (matcher.io.peak_tables.content_checksum)
+    #: a run file's decimated TIC and detected peaks, for the report (matcher.io.run_peaks); None for a peak table
+    chromatogram: dict[str, Any] | None = None
 
 
 @dataclass
