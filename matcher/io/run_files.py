@@ -219,7 +219,7 @@ def _read_mzml(p: str) -> RunData:
     try:
         from pyteomics import mzml
     except ImportError:
-        raise InputError('an mzML file: reading it needs the pyteomics and lxml packages (pip install "matcher[runs]")',
+        raise InputError('an mzML file: reading it needs the pyteomics, psims and lxml packages (pip install "matcher[runs]")',
                          file=p) from None
     times, mzs, ys, counts = [], [], [], []
     try:

@@ -58,7 +58,9 @@ cluster holding at least 5 % of the peak's ion signal is a component. A TIC
 peak with two or more components is split: each component takes its
 intensity-weighted ion apex time, its strongest ion as model ion, and a
 share of the TIC at each scan in proportion to its model-ion profile times
-its ion signal (area and height from that share).
+its amount, found by non-negative least squares of the TIC on the model-ion
+profiles (Lawson and Hanson, *Solving Least Squares Problems*, 1974; area and
+height from that share).
 
 **7. Spectra.** Each peak's spectrum is the apex scan (nearest scan to the
 apex) at nominal mass (m/z rounded as floor(m/z + 0.3), common practice for
@@ -362,8 +364,18 @@ def _split(comps, matrix, ion_sigma, masses, raw, s, base, t, L, R, sigma) -> li
         col = np.clip(col - min(col[0], col[-1]), 0, None)
         apex = int(np.clip(round(c["pos"]), L, R))
         top = col[apex - L] if col[apex - L] > 0 else (col.max() or 1.0)
-        prof.append(c["weight"] * col / top)
+        prof.append(col / top)
     prof = np.array(prof)
+    # each component's TIC follows its model ion: TIC ≈ Σ a_c · profile_c, a_c ≥ 0 (non-negative least squares)
+    from scipy.optimize import nnls
+
+    try:
+        coef = nnls(prof.T, np.clip(raw[span], 0, None))[0]
+    except (ValueError, RuntimeError):
+        coef = np.array([c["weight"] for c in comps], dtype=np.float64)
+    if not np.any(coef > 0):
+        coef = np.array([c["weight"] for c in comps], dtype=np.float64)
+    prof = prof * coef[:, None]
     tot = prof.sum(axis=0)
     with np.errstate(divide="ignore", invalid="ignore"):
         share = np.where(tot > 0, prof / tot, 1.0 / len(comps))
