@@ -227,6 +227,14 @@ def test_noise_only_run_gives_few_peaks():
         assert len(found) <= 2
 
 
+def test_single_scan_spikes_are_not_peaks():
+    sim = simulate([], minutes=30, scans=10_000, noise=40.0, seed=4)
+    tic = sim["matrix"].sum(axis=1)
+    rng = np.random.default_rng(4)
+    tic[rng.choice(10_000, 40, replace=False)] += rng.uniform(500, 3000, 40)   # 40 spikes of 12-75 noise SDs
+    assert len(detect_peaks(sim["times"], tic)) <= 2
+
+
 def test_coeluting_compounds_are_resolved_on_extracted_ions():
     # 3 s apart, σ 1.5 s: the TIC shows one maximum; unique ions 91 and 105 peak 3 s apart
     a = Compound("a", 300.0, 2e5, {41: 30.0, 43: 60.0, 91: 100.0, 134: 25.0}, sigma_s=1.5)
@@ -276,6 +284,16 @@ def test_alkane_molecular_ions_follow_14n_plus_2():
     spec.pop(170)
     mz = np.array(sorted(spec), dtype=float)
     assert alkane_evidence(mz, np.array([spec[int(m)] for m in mz])) == (True, None)
+
+
+def test_an_octane_shaped_spectrum_is_alkane_like():
+    # n-octane's EI spectrum as recalled from memory of published reference spectra (base 43; 57 ~ 1/3;
+    # 85 above 71; M+ 114 a few per cent): alkane-like, C8 from 14n + 2 = 114
+    mz = np.array([27., 29, 41, 42, 43, 56, 57, 70, 71, 84, 85, 114])
+    y = np.array([15., 25, 30, 12, 100, 10, 33, 8, 19, 4, 28, 7])
+    assert alkane_evidence(mz, y) == (True, 8)
+    # a monoterpene-like pattern (68, 93, 136) is not
+    assert alkane_evidence(np.array([41., 57, 68, 71, 85, 93, 136]), np.array([30., 10, 100, 5, 3, 60, 20]))[0] is False
 
 
 def test_molecular_ion_hint_rules():

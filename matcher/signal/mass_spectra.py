@@ -14,10 +14,13 @@ none, so the rules lean to silence.
 
 **n-Alkanes** (:func:`alkane_evidence`). An n-alkane's EI spectrum is the
 CnH2n+1+ series 43, 57, 71, 85, 99, … falling smoothly after m/z 57, with a
-weak molecular ion at 14n + 2 (NIST/EPA/NIH reference spectra of n-alkanes;
-common practice, no single source). A spectrum is alkane-like when m/z 57
-is at least half the base peak and 57 > 71 > 85 > 0, and the series
-43/57/71/85/99 carries at least 35 % of the spectrum's intensity. The carbon
+weak molecular ion at 14n + 2 (the shape of published reference spectra of
+n-alkanes, recalled from memory: n-octane has base peak 43 with 57, 71 and 85
+at roughly 20–35 %; common practice, no single source). A spectrum is
+alkane-like when its base peak is m/z 43 or 57, m/z 57 is at least a quarter
+of the base peak, 71 and 85 are present and both below 57, and the
+CnH2n+1 ions (m/z 29, 43, 57, 71, … = 14k + 1) carry at least 35 % of the
+spectrum's intensity. The carbon
 number is read from the highest ion when it is of the form 14n + 2, is at
 least 0.3 % of the base peak, and outweighs the ion one below it (an
 isotope peak of a CnH2n+1 fragment sits above a stronger fragment);
@@ -40,7 +43,6 @@ import numpy as np
 MOL_ION_MIN = 0.02
 #: Least relative intensity of an n-alkane's molecular ion.
 ALKANE_M_MIN = 0.003
-ALKANE_SERIES = (43, 57, 71, 85, 99)
 
 
 def _at(mz: np.ndarray, y: np.ndarray, m: int) -> float:
@@ -75,9 +77,12 @@ def alkane_evidence(mz, intensity) -> tuple[bool, int | None]:
     if mz.size == 0 or not np.any(y > 0):
         return False, None
     base = float(y.max())
+    base_mz = int(round(mz[int(np.argmax(y))]))
     i57, i71, i85 = (_at(mz, y, m) for m in (57, 71, 85))
-    series = sum(_at(mz, y, m) for m in ALKANE_SERIES)
-    like = i57 >= 0.5 * base and i57 > i71 > i85 > 0 and series >= 0.35 * float(y.sum())
+    nominal = np.rint(mz).astype(np.int64)
+    series = float(y[(nominal >= 29) & (nominal % 14 == 1)].sum())
+    like = (base_mz in (43, 57) and i57 >= 0.25 * base and 0 < i71 < i57 and 0 < i85 < i57
+            and series >= 0.35 * float(y.sum()))
     if not like:
         return False, None
     rel = y / base
