@@ -55,9 +55,11 @@ ion's level at the peak's edges, and is *sharp*: its curvature width
 :math:`\\sqrt{-y/y''}` is at most 1.35 × the run's typical peak sigma (a
 shared ion of two overlapping compounds has a broad, flat maximum; choosing
 sharp ions as model ions is the approach of Dromey et al., Anal. Chem. 48,
-1368, 1976). The apex times of the counted ions are clustered (a new
-cluster where consecutive times are more than one peak sigma apart), and a
-cluster holding at least 5 % of the peak's ion signal is a component. A TIC
+1368, 1976). The components are the modes of the intensity-weighted density
+of the counted ions' apex times (Gaussian kernel of 0.3 peak sigma; modes at
+least 0.8 sigma apart); an ion within half a sigma of a mode belongs to it,
+one between modes (shared by overlapping compounds) to none, and a mode
+holding at least 5 % of the peak's counted ion signal is a component. A TIC
 peak with two or more components is split: each component takes its
 intensity-weighted ion apex time, its strongest ion as model ion, and a
 share of the TIC at each scan in proportion to its model-ion profile times
@@ -92,6 +94,8 @@ MIN_SNR = 5.0
 ION_SNR = 5.0
 #: Sharp ions: curvature width at most this many times the run's typical peak sigma.
 SHARPNESS = 1.35
+#: Two components' apex times differ by at least this many peak sigmas.
+MODE_SEPARATION = 0.8
 #: A component needs at least this share of its peak's counted ion signal.
 MIN_COMPONENT_SHARE = 0.05
 #: Baseline window, in typical peak widths at half height.
@@ -370,15 +374,20 @@ def _components(smooth, matrix, ion_sigma, yc, L, R, sig_ref, t) -> list[dict]:
     d, top = _parabola(A[rows - 1, cols], A[rows, cols], A[rows + 1, cols])
     pos = L + rows + d
     wgt = top - edge[cols]
-    order = np.argsort(pos)
-    pos, wgt, cols = pos[order], wgt[order], cols[order]
-    breaks = np.flatnonzero(np.diff(pos) > sig_ref) + 1
-    groups = np.split(np.arange(len(pos)), breaks)
+    # modes of the intensity-weighted density of apex times (bandwidth 0.3 sigma); ions near a mode join it,
+    # ions between modes (shared by overlapping compounds) join none
+    diff = pos[:, None] - pos[None, :]
+    dens = (wgt[None, :] * np.exp(-0.5 * (diff / (0.3 * sig_ref)) ** 2)).sum(axis=1)
+    near = np.abs(diff) <= MODE_SEPARATION * sig_ref
+    is_mode = np.all(~near | (dens[:, None] > dens[None, :]) | ((dens[:, None] == dens[None, :]) &
+                                                                 (np.arange(len(pos))[:, None] <= np.arange(len(pos))[None, :])), axis=1)
+    modes = np.sort(pos[is_mode])
     total = float(wgt.sum())
     comps = []
-    for g in groups:
+    for m in modes:
+        g = np.flatnonzero(np.abs(pos - m) <= 0.5 * sig_ref)
         w = float(wgt[g].sum())
-        if w < MIN_COMPONENT_SHARE * total:
+        if not len(g) or w < MIN_COMPONENT_SHARE * total:
             continue
         p = float(np.sum(pos[g] * wgt[g]) / w)
         model = int(cols[g][np.argmax(wgt[g])])

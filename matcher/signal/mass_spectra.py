@@ -21,10 +21,12 @@ alkane-like when its base peak is m/z 43 or 57, m/z 57 is at least a quarter
 of the base peak, 71 and 85 are present and both below 57, and the
 CnH2n+1 ions (m/z 29, 43, 57, 71, … = 14k + 1) carry at least 35 % of the
 spectrum's intensity. The carbon
-number is read from the highest ion when it is of the form 14n + 2, is at
-least 0.3 % of the base peak, and outweighs the ion one below it (an
-isotope peak of a CnH2n+1 fragment sits above a stronger fragment);
-otherwise it is not known from the spectrum.
+number is read from the highest ion of the form 14n + 2 that is at least
+0.3 % of the base peak and outweighs the ion one below it (an isotope peak
+of a CnH2n+1 fragment sits above a stronger fragment), provided no CnH2n+1
+ion of at least 0.3 % stands above it (a fragment cannot outweigh the
+molecule's mass); otherwise it is not known from the spectrum. Ions of
+other forms above it (noise, an impurity) are ignored.
 
 >>> mz = np.array([43., 57, 71, 85, 99, 113, 142]); y = np.array([80., 100, 55, 30, 15, 8, 3])
 >>> alkane_evidence(mz, y)
@@ -86,13 +88,15 @@ def alkane_evidence(mz, intensity) -> tuple[bool, int | None]:
     if not like:
         return False, None
     rel = y / base
-    sig = np.flatnonzero(rel >= ALKANE_M_MIN)
-    top = int(round(mz[sig[-1]]))
-    if (top - 3) % 14 == 0 and _at(mz, y, top - 1) >= 3.0 * _at(mz, y, top):  # M+1 of a visible M
-        top -= 1
-    if (top - 2) % 14 or top < 44:
+    sig = rel >= ALKANE_M_MIN
+    # molecular-ion candidates: 14n + 2, outweighing the ion below (not a fragment's 13C peak)
+    cand = [int(m) for m, ok in zip(nominal, sig) if ok and m >= 58 and (m - 2) % 14 == 0
+            and _at(mz, y, m) > _at(mz, y, m - 1)]
+    if not cand:
         return True, None
-    if _at(mz, y, top - 1) >= _at(mz, y, top):
+    top = max(cand)
+    # no CnH2n+1 fragment may stand above a molecular ion
+    if np.any(sig & (nominal > top) & (nominal % 14 == 1)):
         return True, None
     return True, (top - 2) // 14
 
