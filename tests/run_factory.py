@@ -88,6 +88,14 @@ def simulate(compounds, *, minutes: float = 30.0, scans: int = 10_000, noise: fl
     return {"times": t, "masses": np.asarray(masses, dtype=float), "matrix": mat}
 
 
+def counting_noise(compounds, *, background: float = 20.0, masses=range(35, 301), seed: int = 1, **kw) -> dict:
+    """Like :func:`simulate`, but every mass in ``masses`` carries a chemical background of ``background``
+    counts and every intensity is a Poisson count (ion-counting noise on every m/z of every scan)."""
+    sim = simulate(compounds, ion_noise_masses=tuple(masses), noise=0.0, baseline=0.0, drift=0.0, seed=seed, **kw)
+    sim["matrix"] = np.random.default_rng(seed).poisson(sim["matrix"] + background).astype(float)
+    return sim
+
+
 def write_e2077(path, sim: dict, *, keep_zeros: bool = False, version: int = 1) -> None:
     """Write the simulated run as an ASTM E2077 netCDF-3 file with :class:`scipy.io.netcdf_file`."""
     from scipy.io import netcdf_file

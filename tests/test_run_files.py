@@ -26,7 +26,8 @@ from matcher.io.run_files import read_run, sniff_run
 from matcher.io.run_peaks import decimate, detect_run
 from matcher.signal.chromatogram import detect_peaks
 from matcher.signal.mass_spectra import alkane_evidence, molecular_ion
-from run_factory import Compound, alkane_spectrum, invented_spectrum, ladder_compounds, simulate, write_e2077
+from run_factory import (Compound, alkane_spectrum, counting_noise, invented_spectrum, ladder_compounds, simulate,
+                         write_e2077)
 
 runner = CliRunner()
 MATCHER = str(Path(sys.executable).with_name("matcher"))
@@ -323,6 +324,38 @@ def test_ladder_run_calibrates_with_every_carbon_and_apex(tmp_path, ladder_run):
     assert run["format"] == "netcdf3" and len(run["taken"]) == 13
     assert {t["carbons_from"] for t in run["taken"]} == {"molecular ion"}
     matcher.retention.calibration.Calibration.load(out)       # valid against the schema
+
+
+def test_ladder_under_counting_noise_on_every_mass(tmp_path):
+    # Poisson noise on m/z 35-300 in every scan, molecular ions at 1 % of the base peak
+    lad = ladder_compounds(8, 20, start_s=200.0, height=1e5)
+    for c in lad:
+        c.spectrum[14 * int(c.name[1:]) + 2] = 1.0
+    path = tmp_path / "noisy.cdf"
+    write_e2077(path, counting_noise(lad, seed=2))
+    cal = matcher.calibrate(path)
+    assert cal.carbons == list(range(8, 21))
+    assert np.max(np.abs(cal.rt - [c.apex_s / 60 for c in lad])) < 0.01      # minutes
+    noise_only = tmp_path / "blank.cdf"
+    write_e2077(noise_only, counting_noise([], seed=2))
+    assert len(detect_run(noise_only)) <= 4
+
+
+def test_close_pairs_of_wider_peaks_under_counting_noise():
+    # 33 invented compounds, every third one 3 s after the previous, sigma 2 s (3 s = 1.5 sigma)
+    rng = np.random.default_rng(5)
+    comps, t = [], 200.0
+    for i in range(33):
+        t += 3.0 if i % 3 == 1 else rng.uniform(15, 50)
+        mi = int(rng.integers(60, 150)) * 2
+        comps.append(Compound(f"x{i}", t, rng.uniform(2e4, 3e5), invented_spectrum(rng, mi), sigma_s=2.0, mol_ion=mi))
+    sim = counting_noise(comps, seed=5)
+    keep = sim["matrix"] > 0
+    counts = keep.sum(axis=1)
+    found = detect_peaks(sim["times"], sim["matrix"].sum(axis=1), np.r_[0, np.cumsum(counts)[:-1]], counts,
+                         np.broadcast_to(sim["masses"], keep.shape)[keep], sim["matrix"][keep])
+    hits = sum(bool(np.min(np.abs(found.rt_s - c.apex_s)) < 0.5) for c in comps)
+    assert hits >= 31 and len(found) <= 35
 
 
 def test_ladder_without_molecular_ions_needs_carbons(tmp_path):
