@@ -174,6 +174,9 @@ def test_mislabelled_file_is_refused(tmp_path):
     fake.write_text("rt,area\n5.2,100\n", encoding="utf-8")
     msg = refused("peaks", fake, "-o", tmp_path / "p.csv")
     assert "not a GC-MS run file" in msg and "the name says run file" in msg
+    lib = tmp_path / "lab.sqlite"
+    msg = refused("screen", fake, "--class", "nonpolar", "-o", tmp_path / "o.csv", "--db", lib)
+    assert "not a GC-MS run file" in msg and not (tmp_path / "o.csv").exists()
     png = tmp_path / "picture.mzML"
     png.write_bytes(b"\x89PNG\r\n\x1a\n" + bytes(200))
     with pytest.raises(InputError, match="binary data of another kind"):

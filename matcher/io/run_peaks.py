@@ -11,7 +11,8 @@ detection room (:mod:`matcher.signal`):
   (:func:`matcher.signal.mass_spectra.molecular_ion`) and its spectrum in
   ``spectra``.
 * :func:`read_peaks_or_run` decides from the file's content whether a path is
-  a run file or a peak table.
+  a run file or a peak table; a file named like a run file (``.cdf``, ``.nc``,
+  ``.mzML``) whose content is not one is refused as a mislabelled run file.
 * :func:`ladder_from_run` finds the n-alkanes of a ladder run
   (:func:`matcher.signal.ladder_search.find_alkanes`) and returns a
   :class:`~matcher.retention.ladder.Ladder` plus what the calibration file
@@ -136,9 +137,10 @@ def read_peaks_or_run(path, *, rt_unit: str | None = None, overrides: dict | Non
                       min_snr: float | None = None) -> PeakTable:
     """A run file (decided by content) through :func:`detect_run`, anything else through the peak-table reader."""
     from matcher.io.peak_tables import read_peaks
-    from matcher.io.run_files import sniff_run
+    from matcher.io.run_files import looks_like_run_name, sniff_run
 
-    if isinstance(path, (str, os.PathLike)) and sniff_run(path):
+    if isinstance(path, (str, os.PathLike)) and (sniff_run(path) or looks_like_run_name(path)):
+        # a name ending like a run file whose content is not one is refused by the run reader, by name
         return detect_run(path, min_snr=min_snr)
     return read_peaks(path, rt_unit=rt_unit, overrides=overrides)
 
