@@ -172,14 +172,14 @@ def _odd(v: float, lo: int, hi: int) -> int:
     return k if k % 2 else k + 1
 
 
-def _savgol(y: np.ndarray, window: int, axis: int = 0) -> np.ndarray:
+def _savgol(y: np.ndarray, window: int, axis: int = 0, mode: str = "interp") -> np.ndarray:
     from scipy.signal import savgol_filter
 
     n = y.shape[axis]
     if n < 5:
         return y.astype(np.float64, copy=True)
     window = min(window, n if n % 2 else n - 1)
-    return savgol_filter(y, window, 2, axis=axis, mode="interp")
+    return savgol_filter(y, window, 2, axis=axis, mode=mode)
 
 
 def baseline_of(s: np.ndarray, window: int, sigma: float) -> np.ndarray:
@@ -222,10 +222,14 @@ def ion_matrix(n_scans: int, scan_index, point_count, mz, intensity) -> tuple[np
     pos = np.repeat(idx, cnt) + (np.arange(total) - np.repeat(np.cumsum(cnt) - cnt, cnt))
     nominal = np.floor(np.asarray(mz, dtype=np.float64)[pos] + 0.3).astype(np.int64)
     y = np.asarray(intensity, dtype=np.float64)[pos]
-    masses, col = np.unique(nominal, return_inverse=True)
-    m = len(masses)
-    flat = np.bincount(scan_of * m + col, weights=y, minlength=n_scans * m)
-    return masses.astype(np.float64), flat.reshape(n_scans, m)
+    lo = int(nominal.min())
+    col = nominal - lo
+    m = int(col.max()) + 1
+    mat = np.bincount(scan_of * m + col, weights=y, minlength=n_scans * m).reshape(n_scans, m)
+    used = np.flatnonzero(np.bincount(col, minlength=m))
+    if len(used) < m:
+        mat = mat[:, used]
+    return (used + lo).astype(np.float64), mat
 
 
 def detect_peaks(time_s, tic, scan_index=None, point_count=None, mz=None, intensity=None, *,
@@ -350,7 +354,7 @@ def detect_peaks(time_s, tic, scan_index=None, point_count=None, mz=None, intens
     }
     if matrix is not None and matrix.shape[1]:
         ion_sigma = _column_noise(matrix)
-        smooth = _savgol(matrix, window) if deconvolve else None
+        smooth = _RegionSmoother(matrix, window) if deconvolve else None
         replaced: dict[int, list] = {}
         for k in range(len(pk)):
             L, R = int(left[k]), int(right[k])
@@ -394,6 +398,20 @@ def _areas(t: np.ndarray, raw: np.ndarray, left: np.ndarray, right: np.ndarray) 
     return cum[right] - cum[left]
 
 
+class _RegionSmoother:
+    """The extracted-ion chromatograms smoothed like the TIC, computed only for the scans a peak spans
+    (with a margin of one window, so the result equals smoothing the whole run there)."""
+
+    def __init__(self, matrix: np.ndarray, window: int) -> None:
+        self.matrix, self.window = matrix, window
+
+    def rows(self, a: int, b: int) -> np.ndarray:
+        n = self.matrix.shape[0]
+        lo, hi = max(0, a - self.window), min(n, b + self.window)
+        # the margin keeps the slice's own edges (mode "nearest") away from the rows returned
+        return _savgol(self.matrix[lo:hi], self.window, mode="nearest")[a - lo:b - lo]
+
+
 def _column_noise(matrix: np.ndarray) -> np.ndarray:
     """Per-mass noise SD (step 1 on each extracted-ion chromatogram), floored for silent masses."""
     step = max(1, matrix.shape[0] // 4000)  # a sample of rows is enough for a median
@@ -409,7 +427,7 @@ def _components(smooth, matrix, ion_sigma, yc, L, R, sig_ref, t) -> list[dict]:
 
     if R - L < 4:
         return []
-    A = smooth[L:R + 1]
+    A = smooth.rows(L, R + 1)
     edge = np.minimum(A[:2].mean(axis=0), A[-2:].mean(axis=0))
     h = max(1, int(round(sig_ref * 1.18)))
     peakmax = maximum_filter1d(A, size=2 * h + 1, axis=0, mode="nearest")
