@@ -38,6 +38,7 @@ _LAZY = {
     "Library": "matcher.api",
     "calibrate": "matcher.api",
     "read_peaks": "matcher.api",
+    "detect_peaks": "matcher.api",
     "screen": "matcher.api",
     "query": "matcher.api",
     "evaluate": "matcher.api",

@@ -10,6 +10,7 @@ function                   does                                          returns
                            or the user data folder)
 ``calibrate(ladder)``      fit and check a ladder (path or DataFrame)    :class:`~matcher.retention.calibration.Calibration`
 ``read_peaks(path)``       read and check a peak table                   :class:`~matcher.io.peak_tables.PeakTable`
+``detect_peaks(run)``      peaks of a GC-MS run file, with spectra       :class:`~matcher.signal.run_peaks.RunPeakTable`
 ``screen(peaks, ...)``     shortlist every peak of one run or a batch    :class:`~matcher.results.ScreenResult`
 ``query(ri, cls, ...)``    shortlist one index                           :class:`~matcher.identify.query.QueryResult`
 ``evaluate(...)``          self-check of the library                     :class:`Evaluation`
@@ -51,6 +52,7 @@ from matcher.errors import MatcherError
 if TYPE_CHECKING:  # pragma: no cover
     from matcher.retention.calibration import Calibration
     from matcher.io.peak_tables import PeakTable
+    from matcher.signal.run_peaks import RunPeakTable
     from matcher.identify.query import QueryResult
     from matcher.results import ScreenResult
     from matcher.store.snapshot import LibrarySnapshot
@@ -241,12 +243,18 @@ def _snapshot(library: Any) -> "LibrarySnapshot":
 
 def calibrate(ladder: Any, *, mode: str = "programmed", holdup: str | None = None, dead_time: float | None = None,
               marker: float | None = None, series: str | None = None, rt_unit: str | None = None,
-              header_map: dict[str, str] | None = None) -> "Calibration":
+              header_map: dict[str, str] | None = None, carbons: Any = None,
+              min_snr: float | None = None) -> "Calibration":
     """Fit and check a reference ladder; returns the :class:`~matcher.retention.calibration.Calibration`.
 
     ``ladder`` is a ladder file (CSV, TSV, XLSX), a pandas DataFrame with the
     same columns (``rt`` in minutes, ``carbons`` or ``index``, optional
-    ``name``) or a :class:`~matcher.retention.ladder.Ladder`. ``mode`` is
+    ``name``), a :class:`~matcher.retention.ladder.Ladder`, or a GC-MS **run
+    file** of the ladder (ASTM E2077 netCDF or mzML, told by its content): its
+    n-alkanes are found (m/z 57/71/85 series, regular spacing) and numbered
+    from their molecular ions, or from ``carbons=(first, last)`` / ``"8-20"``;
+    ``min_snr`` is the detection threshold (see :mod:`matcher.signal.chromatogram`),
+    and the calibration's ``source["run"]`` records the run and the peaks taken. ``mode`` is
     ``programmed`` (van den Dool & Kratz) or ``isothermal`` (Kováts, with a
     hold-up time: ``dead_time``, ``marker`` or ``holdup`` method). Save it with
     ``.save(path)``; convert times with ``.convert(rt_minutes)``.
@@ -257,11 +265,43 @@ def calibrate(ladder: Any, *, mode: str = "programmed", holdup: str | None = Non
     from matcher.rules import choice
     from matcher.retention.series import SERIES
 
+    from matcher.signal.run_peaks import is_run_file, ladder_from_run
+    from matcher.rules import check_carbons, check_min_snr
+
     holdup = choice(holdup, METHODS, "--holdup")
     series = choice(series, tuple(SERIES), "--series")
+    carbons = check_carbons(carbons)
+    min_snr = None if min_snr is None else check_min_snr(min_snr)
+    if not isinstance(ladder, Ladder) and is_run_file(ladder):
+        if series not in (None, "alkanes"):
+            raise MatcherError(f"--series {series}: a ladder found in a run file is an n-alkane ladder")
+        lad, record, found_warnings = ladder_from_run(ladder, carbons=carbons, min_snr=min_snr)
+        cal = _calibrate(lad, mode=mode, holdup=holdup, dead_time=dead_time, marker=marker)
+        cal.source["run"] = record
+        cal.warnings = list(found_warnings) + list(cal.warnings)
+        return cal
+    if carbons is not None or min_snr is not None:
+        raise MatcherError("--carbons and --min-snr apply to a ladder run file (ASTM E2077 netCDF or mzML), "
+                           "not to a ladder table")
     lad = ladder if isinstance(ladder, Ladder) else read_ladder(ladder, series=series, rt_unit=rt_unit,
                                                                   overrides=header_map)
     return _calibrate(lad, mode=mode, holdup=holdup, dead_time=dead_time, marker=marker)
+
+
+def detect_peaks(run: Any, *, min_snr: float | None = None, deconvolve: bool = True) -> "RunPeakTable":
+    """Detect the peaks of a GC-MS run file (ASTM E2077 netCDF or mzML, told by its content).
+
+    Returns a :class:`~matcher.signal.run_peaks.RunPeakTable`: a peak table (apex
+    ``rt`` in minutes, ``area``, molecular-ion hints, ``spectra``) that
+    :func:`screen` accepts, with ``.detection`` (heights, S/N, edges, the
+    chromatogram) and ``.to_csv(path)`` / ``.to_jcamp(path)`` (``matcher peaks``).
+    ``min_snr`` is the prominence threshold in units of the run's noise (default
+    5); ``deconvolve=False`` keeps co-eluting compounds as one TIC peak. See
+    :mod:`matcher.signal.chromatogram` for the method.
+    """
+    from matcher.signal.run_peaks import detect_run
+
+    return detect_run(run, min_snr=min_snr, deconvolve=deconvolve)
 
 
 def read_peaks(path: Any, *, rt_unit: str | None = None, header_map: dict[str, str] | None = None) -> "PeakTable":
@@ -278,7 +318,8 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
            homologues: bool = False, adaptive: bool = False, anchors: str | os.PathLike | None = None,
            measurement_sd: float | None = None, crowding: str | float | None = None, split_peaks: bool = False,
            labels: Sequence[str] | None = None, progress: Callable[[int], None] | None = None,
-           output: str | os.PathLike | None = None, report: str | os.PathLike | None = None) -> "ScreenResult":
+           min_snr: float | None = None, output: str | os.PathLike | None = None,
+           report: str | os.PathLike | None = None) -> "ScreenResult":
     """Shortlist every peak of one run, or of a batch, against one class of the library.
 
     ``peaks``: a peak table (path, DataFrame or :class:`~matcher.io.peak_tables.PeakTable`)
@@ -292,7 +333,10 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
     screen`` writes. ``crowding`` is the prior on compounds not in the library
     (``sparse``, ``moderate``, ``crowded``, ``dense`` or unlisted peaks per 100
     index units; the run refines it); ``split_peaks=True`` lets one compound
-    explain several peaks.
+    explain several peaks. A path whose content is a GC-MS run file (ASTM
+    E2077 netCDF or mzML) stands for a peak table: its peaks are detected
+    (``min_snr``, see :func:`detect_peaks`) and their spectra and molecular-ion
+    hints go into the screen; ``ladder`` may be the ladder's run file.
 
     ``output`` writes the shortlist (``.csv`` with its provenance sidecar, ``.json``
     or ``.xlsx``) and ``report`` the HTML report, both checked before any work
@@ -310,7 +354,7 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
                        window_percent=window_percent, top=top, fallback=fallback, homologues=homologues,
                        adaptive=adaptive, anchors=None if anchors is None else os.fspath(anchors),
                        measurement_sd=measurement_sd, crowding=crowding, split_peaks=split_peaks, labels=labels,
-                       progress=progress, sink=sink)
+                       progress=progress, min_snr=min_snr, sink=sink)
 
     if output is None and report is None:
         return run()
@@ -424,4 +468,4 @@ def _tiny_snapshot():
         np.array([1, 1, 2]), np.array(["slightly-polar"] * 3), np.array([1029.0, 1031.0, 1000.0]))
 
 
-__all__ = ["Library", "open_library", "calibrate", "read_peaks", "screen", "query", "evaluate", "Evaluation"]
+__all__ = ["Library", "open_library", "calibrate", "read_peaks", "detect_peaks", "screen", "query", "evaluate", "Evaluation"]

@@ -244,6 +244,35 @@ def check_noise(noise: Any) -> float:
     return v
 
 
+#: Peak detection threshold (``--min-snr``): prominence in units of the run's TIC noise SD.
+MIN_SNR_RANGE: tuple[float, float] = (1.0, 1000.0)
+
+
+def check_min_snr(value: Any) -> float:
+    """``--min-snr``: 1-1000 (default 5, see :mod:`matcher.signal.chromatogram`)."""
+    lo, hi = MIN_SNR_RANGE
+    v = _number(value, "--min-snr", f"a number between {lo:g} and {hi:g}")
+    if not lo <= v <= hi:
+        raise MatcherError(f"--min-snr must be between {lo:g} and {hi:g}, got {_fmt(v)}")
+    return v
+
+
+def check_carbons(text: Any) -> tuple[int, int] | None:
+    """``--carbons FIRST-LAST``: the chain lengths of a ladder run's first and last alkane (1-200, rising)."""
+    if text is None:
+        return None
+    if isinstance(text, (tuple, list)) and len(text) == 2:
+        parts = [str(text[0]), str(text[1])]
+    else:
+        parts = str(text).strip().split("-")
+    if len(parts) != 2 or not all(p.strip().isdigit() for p in parts):
+        raise MatcherError(f"--carbons must be FIRST-LAST, for example 8-20, got {str(text)[:30]!r}")
+    a, b = int(parts[0]), int(parts[1])
+    if not 1 <= a < b <= 200:
+        raise MatcherError(f"--carbons {a}-{b}: the first chain length must be below the last, both 1-200")
+    return a, b
+
+
 def _suffix(path: Any) -> str:
     return os.path.splitext(os.fspath(path))[1].lower()
 
@@ -268,4 +297,5 @@ __all__ = [
     "SHORTLIST_SUFFIXES", "REPORT_SUFFIXES",
     "choice", "check_class", "check_mode", "check_rt_unit", "check_ri", "check_top", "check_window",
     "check_ions", "check_hit_score", "check_noise", "check_shortlist_path", "check_report_path",
+    "MIN_SNR_RANGE", "check_min_snr", "check_carbons",
 ]

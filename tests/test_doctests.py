@@ -30,6 +30,7 @@ PUBLISHED_METHODS = [
     ("matcher.retention.holdup", "peterson_hirsch"), ("matcher.retention.holdup", "fit_holdup"),
     ("matcher.retention.phases", "classify"), ("matcher.chem.cas", "check_digit"), ("matcher.chem.formula", "nominal_mass"),
     ("matcher.retention.series", "assigned_index"), ("matcher.retention.series", "lee_index"),
+    ("matcher.signal.chromatogram", "detect_peaks"),
 ]
 
 

@@ -20,6 +20,7 @@ LEVELS: list[set[str]] = [
     {"chem"},
     {"io"},
     {"retention"},
+    {"signal"},
     {"store"},
     {"identify"},
     {"curate"},

@@ -19,6 +19,11 @@ Ladder file (times in minutes unless --rt-unit s or the header says [s]):
     rt,carbons,name
     4.12,8,octane
     6.30,9,nonane
+\b
+The ladder's own GC-MS run (ASTM E2077 netCDF or mzML): the n-alkanes are found
+and numbered from their molecular ions (14n + 2), or give the first and last:
+    matcher calibrate alkanes_0514.cdf -o cal.json
+    matcher calibrate alkanes_0514.cdf --carbons 8-20 -o cal.json
 """
 
 RI_EXAMPLE = """\b
@@ -54,6 +59,19 @@ def qc_table(cal) -> str:
     return format_table(headers, rows, align=align)
 
 
+def found_table(cal) -> str:
+    """The alkanes found in a ladder run: peak, apex time, carbon number and how it was known."""
+    from matcher.report.terminal import format_table
+
+    run = cal.source["run"]
+    rows = [[t["peak"], round(t["rt"], 4), f"C{t['carbons']}", t["carbons_from"],
+             "" if t.get("mol_ion") is None else t["mol_ion"]] for t in run["taken"]]
+    head = (f"run file: {run['format']}, {run['scans']} scans, {run['peaks_detected']} peaks detected, "
+            f"{run['alkane_like']} with an n-alkane spectrum, {len(run['taken'])} taken")
+    return head + "\n" + format_table(["peak", "apex (min)", "alkane", "numbered from", "M+ seen"], rows,
+                                      align="lrlll")
+
+
 def summary(cal) -> str:
     from matcher.retention.calibration import FORMULA
     from matcher.retention.series import SERIES
@@ -78,12 +96,13 @@ def register(app: typer.Typer) -> None:
     @app.command(
         "calibrate",
         help="Fit and check a reference ladder (n-alkanes, FAMEs, PAHs or your own series), print its QC table "
-        "and save the calibration for 'matcher ri' and 'matcher screen'. A ladder whose times go backwards, with "
+        "and save the calibration for 'matcher ri' and 'matcher screen'. The ladder is a table, or the ladder's "
+        "GC-MS run file, in which the n-alkanes are found. A ladder whose times go backwards, with "
         "duplicate or fractional chain lengths, or with fewer than two standards is refused and nothing is written.",
         epilog=CALIBRATE_EXAMPLE,
     )
     def calibrate_cmd(
-        ladder: Annotated[str, typer.Argument(help="Ladder CSV (or .xlsx): rt plus carbons or index, optional name.")],
+        ladder: Annotated[str, typer.Argument(help="Ladder CSV (or .xlsx): rt plus carbons or index, optional name; or the ladder's run file (ASTM E2077 netCDF, mzML).")],
         output: Annotated[str, typer.Option("-o", "--output", help="Where to save the calibration (JSON).")],
         mode: Annotated[str, typer.Option("--mode", help="programmed (van den Dool & Kratz) or isothermal (Kovats).")] = "programmed",
         dead_time: Annotated[Optional[float], typer.Option("--dead-time", help="Hold-up time in minutes, if you know it.")] = None,
@@ -92,6 +111,8 @@ def register(app: typer.Typer) -> None:
         series: Annotated[Optional[str], typer.Option("--series", help="Reference series: alkanes, fame, pah or custom (default: alkanes with a carbons column, custom with an index column).")] = None,
         rt_unit: Annotated[Optional[str], typer.Option("--rt-unit", help="Unit of the ladder's times: min or s (default: from the header, else min).")] = None,
         mapping: Annotated[Optional[List[str]], typer.Option("--map", help="Use this header for a column, e.g. --map rt='Ret.Time'. Repeatable.")] = None,
+        carbons: Annotated[Optional[str], typer.Option("--carbons", metavar="FIRST-LAST", help="Run files: chain lengths of the first and last alkane, e.g. 8-20 (needed when no molecular ion is visible).")] = None,
+        min_snr: Annotated[Optional[float], typer.Option("--min-snr", metavar="K", help="Run files: a peak needs a prominence of K x the run's noise (default 5).")] = None,
         as_json: JsonFlag = False,
     ) -> None:
         import json
@@ -101,11 +122,14 @@ def register(app: typer.Typer) -> None:
 
         guard_output(output, inputs=[("the ladder", ladder)], db=None, allow_stream=True)
         cal = calibrate(ladder, mode=mode, holdup=holdup, dead_time=dead_time, marker=marker, series=series,
-                        rt_unit=rt_unit, header_map=parse_map(mapping))
+                        rt_unit=rt_unit, header_map=parse_map(mapping), carbons=carbons, min_snr=min_snr)
         cal.save(output)
         if as_json:
             say(json.dumps(cal.to_dict(), indent=2, ensure_ascii=False))
         else:
+            if "run" in cal.source:
+                say(found_table(cal))
+                say()
             say(qc_table(cal))
             say()
             say(summary(cal))

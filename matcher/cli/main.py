@@ -53,6 +53,7 @@ def _register_all() -> None:
 
     for name in (
         "calibrate_cmds",
+        "peaks_cmds",
         "library_cmds",
         "copy_cmds",
         "phases_cmds",

@@ -24,6 +24,11 @@ Examples
   A peak table whose time column is called 'Ret.Time':
 
     matcher screen export.csv --ladder alkanes.csv --class nonpolar --map rt=Ret.Time -o out.xlsx
+
+  The GC-MS run file itself (ASTM E2077 netCDF or mzML), calibrated with the ladder's run:
+
+    matcher calibrate alkanes_0514.cdf -o cal.json
+    matcher screen run-042.cdf --calibration cal.json --class nonpolar -o shortlist.csv --report run-042.html
 """
 
 
@@ -31,15 +36,17 @@ def register(app: typer.Typer) -> None:
     @app.command(
         "screen",
         help="Shortlist every peak of one or more runs against the house library and flag what needs review. "
+        "A run is a peak table or the GC-MS run file itself (ASTM E2077 netCDF or mzML, told by content), whose "
+        "peaks, spectra and molecular-ion hints are detected. "
         "A peak table with an 'ri' column needs no ladder or calibration.\n\n" + CAUTION,
         epilog=EXAMPLE,
     )
     def screen_cmd(
-        peaks: Annotated[List[str], typer.Argument(metavar="PEAKS.csv...", help="Peak table(s): CSV, TSV or XLSX; one per run.")],
+        peaks: Annotated[List[str], typer.Argument(metavar="PEAKS.csv|RUN...", help="Peak table(s) (CSV, TSV or XLSX) or GC-MS run files (ASTM E2077 netCDF, mzML); one per run, mixed freely.")],
         phase_class: Annotated[str, typer.Option("--class", metavar="CLASS", help=CLASS_HELP)],
         out: Annotated[str, typer.Option("-o", "--out", metavar="OUT", help="Shortlist file: .csv, .json or .xlsx.")],
         calibration: Annotated[Optional[List[str]], typer.Option("--calibration", metavar="CAL.json", help="Saved calibration (from 'matcher calibrate'); once for all runs or once per run.")] = None,
-        ladder: Annotated[Optional[List[str]], typer.Option("--ladder", metavar="LADDER.csv", help="Ladder CSV to calibrate with; once for all runs or once per run.")] = None,
+        ladder: Annotated[Optional[List[str]], typer.Option("--ladder", metavar="LADDER.csv", help="Ladder CSV, or the ladder's run file, to calibrate with; once for all runs or once per run.")] = None,
         mode: Annotated[str, typer.Option(metavar="MODE", help="Ladder mode when --ladder is given: programmed or isothermal.")] = "programmed",
         dead_time: Annotated[Optional[float], typer.Option("--dead-time", metavar="MIN", help="Hold-up time in minutes (isothermal ladders).")] = None,
         rt_unit: Annotated[Optional[str], typer.Option("--rt-unit", metavar="UNIT", help="Unit of retention times: min or s (default: read from the header, else minutes).")] = None,
@@ -55,6 +62,7 @@ def register(app: typer.Typer) -> None:
         sd: Annotated[Optional[float], typer.Option("--sd", metavar="UNITS", help="Index scatter of your runs (default: 0.3 x the class window; estimated with --adaptive).")] = None,
         crowding: Annotated[Optional[str], typer.Option("--crowding", metavar="TYPE|N", help="How crowded the sample is with compounds not in the library, as a prior: sparse, moderate (default), crowded, dense, or unlisted peaks per 100 index units. The run's own peaks refine it.")] = None,
         split_peaks: Annotated[bool, typer.Option("--split-peaks", help="Let one compound explain several peaks (split or overloaded peaks); by default a compound explains at most one peak of a run.")] = False,
+        min_snr: Annotated[Optional[float], typer.Option("--min-snr", metavar="K", help="Run files: a peak needs a prominence of K x the run's noise (default 5).")] = None,
         quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bar and no summary.")] = False,
         db: DbOption = None,
     ) -> None:
@@ -78,7 +86,8 @@ def register(app: typer.Typer) -> None:
                             dead_time=dead_time, rt_unit=rt_unit, header_map=parse_map(header_map) or None,
                             window=window, window_percent=window_percent, top=top, fallback=fallback,
                             homologues=homologues, adaptive=adaptive, anchors=anchors, measurement_sd=sd,
-                            crowding=crowding, split_peaks=split_peaks, progress=progress, output=out, report=report)
+                            crowding=crowding, split_peaks=split_peaks, progress=progress, min_snr=min_snr,
+                            output=out, report=report)
         finally:
             if bar is not None:
                 bar.__exit__(None, None, None)

@@ -95,13 +95,20 @@ def plan_runs(peak_files: Any, calibration: Any = None, ladder: Any = None,
     return runs
 
 
-def _calibrate(run: RunInput, mode: str, dead_time: float | None, rt_unit: str | None):
+def _calibrate(run: RunInput, mode: str, dead_time: float | None, rt_unit: str | None, min_snr: float | None = None):
+    from matcher.signal.run_peaks import is_run_file, ladder_from_run
     from matcher.retention.calibration import Calibration, calibrate
     from matcher.retention.ladder import Ladder, read_ladder
 
     if run.calibration is not None:
         return run.calibration if isinstance(run.calibration, Calibration) else Calibration.load(run.calibration)
     if run.ladder is not None:
+        if not isinstance(run.ladder, Ladder) and is_run_file(run.ladder):  # the ladder's own GC-MS run
+            lad, record, found_warnings = ladder_from_run(run.ladder, min_snr=min_snr)
+            cal = calibrate(lad, mode=mode, dead_time=dead_time)
+            cal.source["run"] = record
+            cal.warnings = list(found_warnings) + list(cal.warnings)
+            return cal
         lad = run.ladder if isinstance(run.ladder, Ladder) else read_ladder(run.ladder, rt_unit=rt_unit)
         return calibrate(lad, mode=mode, dead_time=dead_time)
     return None
@@ -614,6 +621,7 @@ def screen(
     crowding: str | float | None = None,
     split_peaks: bool = False,
     progress: Callable[[int], None] | None = None,
+    min_snr: float | None = None,
     sink: Callable[[Any], None] | None = None,
 ) -> ScreenResult:
     """Screen runs against one class of the house library; see the module doc.
@@ -628,10 +636,15 @@ def screen(
     (paths or :class:`~matcher.retention.calibration.Calibration` objects) or
     ``ladder`` (paths, DataFrames or ladders): one for all runs or one per
     run. ``labels`` names the runs (default: the file stem, ``run`` for a
-    table in memory). Settings are checked by :mod:`matcher.rules`.
+    table in memory). A path whose content is a GC-MS run file (ASTM E2077
+    netCDF or mzML) has its peaks detected (:mod:`matcher.signal.chromatogram`,
+    threshold ``min_snr``): apex times, areas, molecular-ion hints and spectra
+    (``PeakTable.spectra``) go into the screen; a ladder may be a run file too.
+    Settings are checked by :mod:`matcher.rules`.
     """
     from matcher.limits import check_sd
-    from matcher.io.peak_tables import PeakTable, read_peaks
+    from matcher.io.peak_tables import PeakTable
+    from matcher.signal.run_peaks import read_peaks_or_run
     from matcher.identify.unlisted import crowding_density
 
     phase_class = check_class(phase_class)
@@ -640,6 +653,8 @@ def screen(
     mode = R.check_mode(mode)
     rt_unit = R.check_rt_unit(rt_unit)
     crowding_density(crowding)  # a bad crowding value fails before any file is read
+    if min_snr is not None:
+        min_snr = R.check_min_snr(min_snr)
     if measurement_sd is not None:
         measurement_sd = check_sd(measurement_sd)
     plan = plan_runs(peak_files, calibration, ladder, labels)
@@ -648,13 +663,14 @@ def screen(
     # read and convert every run before any heavy work, so a bad file fails fast
     loaded = []
     for run in plan:
-        table = run.peaks if isinstance(run.peaks, PeakTable) else read_peaks(run.peaks, rt_unit=rt_unit, overrides=header_map)
+        table = run.peaks if isinstance(run.peaks, PeakTable) else read_peaks_or_run(
+            run.peaks, rt_unit=rt_unit, overrides=header_map, min_snr=min_snr)
         cal = None
         extrap = np.zeros(len(table.peak), dtype=bool)
         if table.has_ri:
             x = np.asarray(table.ri, dtype=float)
         else:
-            cal = _calibrate(run, mode, dead_time, rt_unit)
+            cal = _calibrate(run, mode, dead_time, rt_unit, min_snr)
             if cal is None:
                 raise MatcherError(f"{run.peaks_path}: the table has no 'ri' column; give --calibration CAL.json or --ladder LADDER.csv")
             x, extrap = cal.convert(np.asarray(table.rt, dtype=float))
@@ -707,7 +723,7 @@ def screen(
             table=df, calibration=None if cal is None else cal.to_dict(), correction=prep.correction,
             measurement_sd=prep.model.measurement_sd, notices=prep.notices + sorted(notes),
             peak_count=len(table.peak), run_model=prep.info, checksum=getattr(table, "checksum", ""),
-            streamed=sink is not None,
+            streamed=sink is not None, chromatogram=getattr(table, "chromatogram", None) or None,
         ))
 
     return ScreenResult(
@@ -719,5 +735,6 @@ def screen(
         caution=CAUTION,
         settings={"class": phase_class, "top": top, "fallback": fallback, "homologues": homologues,
                   "adaptive": adaptive, "anchors": anchors, "window": window, "window_percent": window_percent,
-                  "measurement_sd": measurement_sd, "crowding": crowding, "split_peaks": split_peaks},
+                  "measurement_sd": measurement_sd, "crowding": crowding, "split_peaks": split_peaks,
+                  **({"min_snr": min_snr} if min_snr is not None else {})},
     )

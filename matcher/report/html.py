@@ -75,6 +75,7 @@ table.kv th { background: none; border-bottom: 1px solid var(--line); font-weigh
 .grid { display: flex; flex-wrap: wrap; gap: 18px 28px; align-items: flex-start; }
 .grid > .plotbox { flex: 1 1 420px; max-width: 560px; }
 .grid > .plotbox svg.plot { width: 100%; height: auto; }
+.plotbox.wide svg.plot { width: 100%; max-width: 900px; height: auto; }
 td.n, td.cas, td.formula, td.mark, td.peak { white-space: nowrap; }
 td.name { min-width: 11em; }
 .status { display: inline-block; min-width: 3.6em; text-align: center; font-weight: 700; font-size: 12px;
@@ -458,6 +459,52 @@ def _shortlists(run: RunResult, max_peaks: int) -> str:
             f'<table class="shortlist">{_SHORT_HEAD}{"".join(bodies)}</table>')
 
 
+def _chromatograms(i: int, run: RunResult) -> str:
+    """The run's TIC with its detected peaks numbered, and the ladder run's TIC with its alkanes labelled.
+
+    Both come already decimated (min/max per bucket, :func:`matcher.signal.run_peaks.decimate`); only runs read
+    from a run file, and ladders found in one, have them.
+    """
+    parts = []
+    chrom = run.chromatogram if isinstance(run.chromatogram, dict) else None
+    if chrom and chrom.get("rt"):
+        peaks = [p for p in chrom.get("peaks") or [] if isinstance(p, dict)]
+        names: dict[str, str] = {}
+        t = run.table
+        if t is not None and len(t):
+            first = t[t["rank"] == 1]
+            names = {str(p): str(n) for p, n in zip(first["peak"], first["name"])}
+        tips = [f"peak {p.get('peak')}: {_num(p.get('rt'), 3)} min" + (f", {names[str(p.get('peak'))]}"
+                                                                       if str(p.get("peak")) in names else "")
+                for p in peaks]
+        svg = plots.trace_plot(chrom["rt"], chrom["tic"], [p.get("rt") for p in peaks], [p.get("tic") for p in peaks],
+                               [p.get("peak") for p in peaks], tips=tips,
+                               title=f"Total-ion chromatogram: {len(peaks)} peaks detected (numbers as in the shortlist)")
+        parts.append(f'<h3>Chromatogram</h3><div class="plotbox wide">{svg}</div>')
+    source = (run.calibration or {}).get("source") if isinstance(run.calibration, dict) else None
+    lrun = source.get("run") if isinstance(source, dict) else None
+    if isinstance(lrun, dict) and isinstance(lrun.get("chromatogram"), dict):
+        lc = lrun["chromatogram"]
+        taken = [p for p in lrun.get("taken") or [] if isinstance(p, dict)]
+        rt_l, tic_l = lc.get("rt") or [], lc.get("tic") or []
+        ys = [_interp(rt_l, tic_l, p.get("rt")) for p in taken]
+        svg = plots.trace_plot(rt_l, tic_l, [p.get("rt") for p in taken], ys, [f"C{p.get('carbons')}" for p in taken],
+                               tips=[f"C{p.get('carbons')} ({p.get('carbons_from')}): {_num(p.get('rt'), 3)} min"
+                                     for p in taken],
+                               title=f"Ladder run: {len(taken)} n-alkanes found")
+        parts.append(f'<h3>Ladder chromatogram</h3><div class="plotbox wide">{svg}</div>')
+    return f'<div id="run-{i}-chromatograms">' + "".join(parts) + "</div>" if parts else ""
+
+
+def _interp(xs: Sequence, ys: Sequence, x: Any) -> float:
+    import numpy as np
+
+    try:
+        return float(np.interp(float(x), np.asarray(xs, dtype=float), np.asarray(ys, dtype=float)))
+    except (TypeError, ValueError):
+        return float("nan")
+
+
 def _run_section(i: int, run: RunResult, summary: dict[str, Any], max_peaks: int) -> str:
     facts = [
         ("peak file", e(mask_secrets(str(run.source)))),
@@ -471,6 +518,7 @@ def _run_section(i: int, run: RunResult, summary: dict[str, Any], max_peaks: int
         f'<section class="run" id="run-{i}"><h2>Run {i}: {e(run.label)}</h2>'
         + _kv_table(facts)
         + (f'<h3>Notices</h3><ul class="notices">{notices}</ul>' if notices else "")
+        + _chromatograms(i, run)
         + f'<div id="run-{i}-calibration">{_calibration(run.calibration)}</div>'
         + f'<div id="run-{i}-correction">{_correction(run)}</div>'
         + f'<div id="run-{i}-shortlists">{_shortlists(run, max_peaks)}</div>'

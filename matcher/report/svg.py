@@ -193,3 +193,67 @@ def xy_plot(
         parts.append(f'<text x="{lx + 22}" y="{y}" fill="{INK}">{html_text(layer.name)}</text>')
     parts.append("</svg>")
     return "".join(parts)
+
+
+def trace_plot(x: Sequence, y: Sequence, marks_x: Sequence, marks_y: Sequence, mark_labels: Sequence, *,
+               tips: Sequence | None = None, title: str = "", x_label: str = "retention time (min)",
+               y_label: str = "total ion current", width: int = 900, height: int = 280, max_labels: int = 150) -> str:
+    """A chromatogram: one trace (already decimated) with marked, labelled peaks; an SVG element as text.
+
+    Labels (escaped) stand above their markers; beyond ``max_labels`` marks only the tallest are labelled,
+    every mark keeps its tooltip.
+
+    >>> svg = trace_plot([0, 1, 2], [0, 5, 0], [1], [5], ["<1>"], title="TIC")
+    >>> svg.count("<circle"), "&lt;1&gt;" in svg and "<1>" not in svg
+    (1, True)
+    """
+    xs, ys = _clean(x, y)
+    left, right, top, bottom = 64, 16, 36 if title else 20, 46
+    pw, ph = width - left - right, height - top - bottom
+    parts = [f'<svg class="plot trace" viewBox="0 0 {width} {height}" width="{width}" height="{height}" role="img" '
+             f'aria-label="{html_text(title or y_label)}" font-family="system-ui, sans-serif" font-size="10">']
+    if title:
+        parts.append(f'<text x="{left}" y="16" fill="{INK}" font-size="12" font-weight="600">{html_text(title)}</text>')
+    if len(xs) < 2:
+        parts.append(f'<text x="{left + pw / 2}" y="{top + ph / 2}" text-anchor="middle" fill="{COLOURS["muted"]}">'
+                     "no data to plot</text></svg>")
+        return "".join(parts)
+    x0, x1 = min(xs), max(xs)
+    y0, y1 = min(0.0, min(ys)), max(ys) * 1.08 or 1.0
+    x1 = x1 if x1 > x0 else x0 + 1
+
+    def sx(v: float) -> float:
+        return round(left + (v - x0) / (x1 - x0) * pw, 2)
+
+    def sy(v: float) -> float:
+        return round(top + ph - (v - y0) / (y1 - y0) * ph, 2)
+
+    for v in nice_ticks(x0, x1, 10):
+        if x0 <= v <= x1:
+            parts.append(f'<line x1="{sx(v)}" y1="{top}" x2="{sx(v)}" y2="{top + ph}" stroke="{GRID}"/>')
+            parts.append(f'<text x="{sx(v)}" y="{top + ph + 14}" text-anchor="middle" fill="{INK}">{_fmt_tick(v)}</text>')
+    for v in nice_ticks(y0, y1, 4):
+        if y0 <= v <= y1:
+            parts.append(f'<text x="{left - 6}" y="{sy(v) + 4}" text-anchor="end" fill="{INK}">{_fmt_tick(v)}</text>')
+    parts.append(f'<rect x="{left}" y="{top}" width="{pw}" height="{ph}" fill="none" stroke="{INK}"/>')
+    parts.append(f'<text x="{left + pw / 2}" y="{height - 8}" text-anchor="middle" fill="{INK}">{html_text(x_label)}</text>')
+    parts.append(f'<text transform="translate(14 {top + ph / 2}) rotate(-90)" text-anchor="middle" fill="{INK}">'
+                 f'{html_text(y_label)}</text>')
+    path = " ".join(f"{sx(a)},{sy(b)}" for a, b in zip(xs, ys))
+    parts.append(f'<polyline points="{path}" fill="none" stroke="{COLOURS["primary"]}" stroke-width="1"/>')
+    mx, my = list(marks_x), list(marks_y)
+    labels = [str(v) for v in mark_labels]
+    tips = [str(v) for v in tips] if tips is not None else labels
+    order = sorted(range(len(mx)), key=lambda i: -float(my[i]) if _clean([mx[i]], [my[i]])[0] else 0.0)
+    labelled = set(order[:max_labels])
+    colour = COLOURS["secondary"]
+    for i, (a, b) in enumerate(zip(mx, my)):
+        if not _clean([a], [b])[0]:
+            continue
+        a, b = float(a), float(b)
+        tip = f"<title>{html_text(tips[i] if i < len(tips) else '')}</title>"
+        parts.append(f'<circle cx="{sx(a)}" cy="{sy(b)}" r="2.6" fill="#ffffff" stroke="{colour}" stroke-width="1.4">{tip}</circle>')
+        if i in labelled and i < len(labels):
+            parts.append(f'<text x="{sx(a)}" y="{sy(b) - 5}" text-anchor="middle" fill="{colour}">{html_text(labels[i])}</text>')
+    parts.append("</svg>")
+    return "".join(parts)

@@ -1,0 +1,1 @@
+"""Signal processing of GC-MS runs: peak detection, spectra, ladders found in a run (pure computation, no files)."""
