@@ -616,7 +616,7 @@ def test_kill_9_during_a_100000_row_import_leaves_the_library_whole(tmp_path, bi
         t["proc"] = subprocess.Popen([SCRIPT, "library", "import", str(big_library_csv), "--db", str(t["db"])],
                                      stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     pending = dict(trials)
-    while pending and time.monotonic() - start < 40:
+    while pending and time.monotonic() - start < 120:  # generous: a loaded machine is slow to start three imports
         now = time.monotonic() - start
         for stage, t in list(pending.items()):
             if t["proc"].poll() is not None:  # finished before we could kill it
