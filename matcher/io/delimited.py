@@ -45,11 +45,12 @@ What is read, and how (documented behaviour):
 
 from __future__ import annotations
 
+import array
 import csv
 import io
 import re
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Sequence
 
 from matcher.errors import InputError
 
@@ -91,7 +92,7 @@ class RawTable:
     delimiter: str = ","
     decimal_comma: bool = False
     encoding: str = "utf-8"
-    lines: list[int] = field(default_factory=list, repr=False)
+    lines: Sequence[int] = field(default_factory=list, repr=False)  # a list, or array('q') for a file
 
     def __len__(self) -> int:
         return len(self.frame)
@@ -237,10 +238,12 @@ def load_table(path, *, what: str = "table") -> RawTable:
 
     _raise_csv_limit()
     body = "\n".join(lines[skip:])
+    del lines, text  # a long file is held once, as the body
     reader = csv.reader(io.StringIO(body, newline=""), delimiter=delim)
     header: list[str] | None = None
-    rows: list[list[str]] = []
-    line_numbers: list[int] = []
+    columns: list[list[str]] = []  # cell by cell into columns: no list object per row stays alive
+    n_rows = 0
+    line_numbers = array.array("q")
     prev = 0
     try:
         for record in reader:
@@ -248,6 +251,7 @@ def load_table(path, *, what: str = "table") -> RawTable:
             prev = reader.line_num
             if header is None:
                 header = [h.strip() for h in record]
+                columns = [[] for _ in header]
                 first_line = start
                 continue
             if not record or all(not c.strip() for c in record):
@@ -259,7 +263,7 @@ def load_table(path, *, what: str = "table") -> RawTable:
                     raise InputError(
                         f"{len(record)} fields but the header has {len(header)} "
                         f"(delimiter {_DELIM_NAME[delim]}); a field may hold an unquoted delimiter",
-                        file=path, row=len(rows) + 1, line=start, column=f"(column {at})",
+                        file=path, row=n_rows + 1, line=start, column=f"(column {at})",
                     )
                 record = record[: len(header)]
             elif len(record) < len(header):
@@ -268,24 +272,31 @@ def load_table(path, *, what: str = "table") -> RawTable:
                     f"{len(record)} field{'s' if len(record) != 1 else ''} but the header has {len(header)} "
                     f"(delimiter {_DELIM_NAME[delim]}); a missing field cannot be told from a shifted one, "
                     f"so write an empty cell as an empty field",
-                    file=path, row=len(rows) + 1, line=start, column=" ".join(missing.split()),
+                    file=path, row=n_rows + 1, line=start, column=" ".join(missing.split()),
                 )
             for i, c in enumerate(record):
                 if len(c) > MAX_CELL:
                     raise InputError(
                         f"a cell of {len(c)} characters (at most {MAX_CELL} are accepted; "
                         f"a quote may be left open): {echo(c)}",
-                        file=path, row=len(rows) + 1, line=start,
+                        file=path, row=n_rows + 1, line=start,
                         column=" ".join(header[i].split()) or f"(column {i + 1})",
                     )
-            rows.append(record)
+            for col, c in zip(columns, record):
+                col.append(c)
+            n_rows += 1
             line_numbers.append(start)
     except csv.Error as exc:
         raise InputError(f"cannot split the line into fields ({exc})", file=path, line=skip + prev + 1)
 
     assert header is not None
     header = _clean_header(header, path, first_line)
-    frame = pd.DataFrame(rows, columns=header, dtype=object) if rows else pd.DataFrame({h: pd.Series([], dtype=object) for h in header})
+    if n_rows:
+        frame = pd.DataFrame({k: pd.Series(col, dtype=object) for k, col in enumerate(columns)})
+        frame.columns = header
+    else:
+        frame = pd.DataFrame({h: pd.Series([], dtype=object) for h in header})
+    del columns
     return RawTable(
         path=path, frame=frame, header=header, first_line=first_line, delimiter=delim,
         decimal_comma=(delim == ";"), encoding=enc, lines=line_numbers,
