@@ -271,14 +271,16 @@ def read_peaks(path: Any, *, rt_unit: str | None = None, header_map: dict[str, s
     return _read_peaks(path, rt_unit=rt_unit, overrides=header_map)
 
 
-def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any = None, library: Any = None,
+def screen(peaks: Any, *, phase_class: str | Sequence[str], calibration: Any = None, ladder: Any = None, library: Any = None,
            mode: str = "programmed", dead_time: float | None = None, rt_unit: str | None = None,
            header_map: dict[str, str] | None = None, window: float | None = None,
            window_percent: float | None = None, top: int | None = None, fallback: bool = False,
            homologues: bool = False, adaptive: bool = False, anchors: str | os.PathLike | None = None,
-           measurement_sd: float | None = None, crowding: str | float | None = None, split_peaks: bool = False,
-           labels: Sequence[str] | None = None, progress: Callable[[int], None] | None = None) -> "ScreenResult":
-    """Shortlist every peak of one run, or of a batch, against one class of the library.
+           index_scatter: float | None = None, crowding: str | float | None = None, split_peaks: bool = False,
+           labels: Sequence[str] | None = None, sample: str | None = None, analyst: str | None = None,
+           instrument: str | None = None, column: str | None = None,
+           progress: Callable[[int], None] | None = None) -> "ScreenResult":
+    """Shortlist every peak of one run, or of a batch, against the library.
 
     ``peaks``: a peak table (path, DataFrame or :class:`~matcher.io.peak_tables.PeakTable`)
     or a list of them. Times become indices through ``calibration`` (a
@@ -291,7 +293,9 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
     screen`` writes. ``crowding`` is the prior on compounds not in the library
     (``sparse``, ``moderate``, ``crowded``, ``dense`` or unlisted peaks per 100
     index units; the run refines it); ``split_peaks=True`` lets one compound
-    explain several peaks.
+    explain several peaks. ``phase_class`` is one polarity class for all runs or a list with one
+    per run, in order. ``sample``, ``analyst``, ``instrument`` and ``column`` go into every
+    output's provenance and the report header (a peak table's preamble fills what is not given).
     """
     from matcher.identify.screening import screen as _screen
 
@@ -299,19 +303,20 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
                    dead_time=dead_time, rt_unit=rt_unit, header_map=header_map, window=window,
                    window_percent=window_percent, top=top, fallback=fallback, homologues=homologues,
                    adaptive=adaptive, anchors=None if anchors is None else os.fspath(anchors),
-                   measurement_sd=measurement_sd, crowding=crowding, split_peaks=split_peaks, labels=labels,
+                   index_scatter=index_scatter, crowding=crowding, split_peaks=split_peaks, labels=labels,
+                   record={"sample": sample, "analyst": analyst, "instrument": instrument, "column": column},
                    progress=progress)
 
 
 def query(ri: float, phase_class: str, *, library: Any = None, window: float | None = None,
           window_percent: float | None = None, mol_ion: float | None = None, ions: Any = None,
-          hit: str | None = None, hit_score: float | None = None, top: int | None = None,
-          fallback: bool = False, homologues: bool = False, measurement_sd: float | None = None,
+          hit: str | None = None, hit_match: float | None = None, top: int | None = None,
+          fallback: bool = False, homologues: bool = False, index_scatter: float | None = None,
           crowding: str | float | None = None) -> "QueryResult":
     """Ranked candidates for one retention index; returns a :class:`~matcher.identify.query.QueryResult`.
 
     ``ions`` are key ions (whole m/z: a list or text such as ``"93 136"``);
-    ``hit`` and ``hit_score`` (0-100) are your spectral search's proposal.
+    ``hit`` and ``hit_match`` (0-100) are your spectral search's proposal.
     ``result.candidates`` lists records in rank order, ``result.table`` the
     same as a DataFrame, ``result.to_dict()`` is the ``matcher query --json``
     document.
@@ -319,8 +324,8 @@ def query(ri: float, phase_class: str, *, library: Any = None, window: float | N
     from matcher.identify.query import query as _query
 
     return _query(ri, phase_class, **_source(library), window=window, window_percent=window_percent,
-                  mol_ion=mol_ion, ions=ions, hit=hit, hit_score=hit_score, top=top, fallback=fallback,
-                  homologues=homologues, measurement_sd=measurement_sd, crowding=crowding)
+                  mol_ion=mol_ion, ions=ions, hit=hit, hit_match=hit_match, top=top, fallback=fallback,
+                  homologues=homologues, index_scatter=index_scatter, crowding=crowding)
 
 
 @dataclass

@@ -148,7 +148,7 @@ def test_evaluate_json_reports_top1_and_top3(tmp_path):
 def test_demo_from_an_unrelated_folder(tmp_path):
     work = tmp_path / "somewhere"
     work.mkdir()
-    proc = subprocess.run([MATCHER, "demo", "--out", "demo-out"], cwd=work, capture_output=True, text=True)
+    proc = subprocess.run([MATCHER, "demo", "--output", "demo-out"], cwd=work, capture_output=True, text=True)
     assert proc.returncode == 0, proc.stderr
     out = work / "demo-out"
     df = pd.read_csv(out / "shortlist.csv")

@@ -466,7 +466,7 @@ def test_the_python_functions_apply_the_same_rules(lab):
     from matcher.identify.query import query
 
     with pytest.raises(MatcherError, match="--sd must be a finite number greater than 0"):
-        query(1000, "nonpolar", db=str(lab["db"]), measurement_sd=0)
+        query(1000, "nonpolar", db=str(lab["db"]), index_scatter=0)
     with pytest.raises(MatcherError, match="--mol-ion must be a whole m/z between 1 and 5000"):
         query(1000, "nonpolar", db=str(lab["db"]), mol_ion=136.5)
 

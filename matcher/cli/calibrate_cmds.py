@@ -83,15 +83,15 @@ def register(app: typer.Typer) -> None:
         epilog=CALIBRATE_EXAMPLE,
     )
     def calibrate_cmd(
-        ladder: Annotated[str, typer.Argument(help="Ladder CSV (or .xlsx): rt plus carbons or index, optional name.")],
-        output: Annotated[str, typer.Option("-o", "--output", help="Where to save the calibration (JSON).")],
-        mode: Annotated[str, typer.Option("--mode", help="programmed (van den Dool & Kratz) or isothermal (Kovats).")] = "programmed",
-        dead_time: Annotated[Optional[float], typer.Option("--dead-time", help="Hold-up time in minutes, if you know it.")] = None,
-        marker: Annotated[Optional[float], typer.Option("--marker", help="Time in minutes of an unretained marker peak (e.g. methane).")] = None,
-        holdup: Annotated[Optional[str], typer.Option("--holdup", help="Hold-up method: given, marker, peterson-hirsch or fit (isothermal default: fit, unless --dead-time/--marker).")] = None,
-        series: Annotated[Optional[str], typer.Option("--series", help="Reference series: alkanes, fame, pah or custom (default: alkanes with a carbons column, custom with an index column).")] = None,
-        rt_unit: Annotated[Optional[str], typer.Option("--rt-unit", help="Unit of the ladder's times: min or s (default: from the header, else min).")] = None,
-        mapping: Annotated[Optional[List[str]], typer.Option("--map", help="Use this header for a column, e.g. --map rt='Ret.Time'. Repeatable.")] = None,
+        ladder: Annotated[str, typer.Argument(metavar="LADDER.csv", help="Ladder CSV (or .xlsx): rt plus carbons or index, optional name.")],
+        output: Annotated[str, typer.Option("-o", "--output", metavar="OUT", help="Where to save the calibration (JSON).")],
+        mode: Annotated[str, typer.Option("--mode", metavar="MODE", help="programmed (van den Dool & Kratz) or isothermal (Kovats).")] = "programmed",
+        dead_time: Annotated[Optional[float], typer.Option("--dead-time", metavar="MIN", help="Hold-up time in minutes, if you know it.")] = None,
+        marker: Annotated[Optional[float], typer.Option("--marker", metavar="MIN", help="Time in minutes of an unretained marker peak (e.g. methane).")] = None,
+        holdup: Annotated[Optional[str], typer.Option("--holdup", metavar="METHOD", help="Hold-up method: given, marker, peterson-hirsch or fit (isothermal default: fit, unless --dead-time/--marker).")] = None,
+        series: Annotated[Optional[str], typer.Option("--series", metavar="SERIES", help="Reference series: alkanes, fame, pah or custom (default: alkanes with a carbons column, custom with an index column).")] = None,
+        rt_unit: Annotated[Optional[str], typer.Option("--rt-unit", metavar="UNIT", help="Unit of the ladder's times: min or s (default: from the header, else min).")] = None,
+        mapping: Annotated[Optional[List[str]], typer.Option("--map", metavar="COLUMN=HEADER", help="Use this header for a column, e.g. --map rt='Time of apex'. Repeatable.")] = None,
         as_json: JsonFlag = False,
     ) -> None:
         import json
@@ -120,12 +120,12 @@ def register(app: typer.Typer) -> None:
         epilog=RI_EXAMPLE,
     )
     def ri_cmd(
-        calibration: Annotated[str, typer.Option("--calibration", "-c", help="Calibration file from 'matcher calibrate'.")],
-        times: Annotated[Optional[List[str]], typer.Argument(help="Retention times (minutes unless --rt-unit s).", show_default=False)] = None,
-        peaks: Annotated[Optional[str], typer.Option("--peaks", help="Peak table CSV (or .xlsx) with a time column.")] = None,
-        rt_unit: Annotated[Optional[str], typer.Option("--rt-unit", help="Unit of the times: min or s (peak tables: default from the header, else min).")] = None,
-        output: Annotated[Optional[str], typer.Option("-o", "--output", help="Write the CSV here instead of standard output.")] = None,
-        mapping: Annotated[Optional[List[str]], typer.Option("--map", help="Use this header for a peak-table column, e.g. --map rt='Ret.Time'.")] = None,
+        calibration: Annotated[str, typer.Option("--calibration", "-c", metavar="CAL.json", help="Calibration file from 'matcher calibrate'.")],
+        times: Annotated[Optional[List[str]], typer.Argument(metavar="TIME...", help="Retention times (minutes unless --rt-unit s).", show_default=False)] = None,
+        peaks: Annotated[Optional[str], typer.Option("--peaks", metavar="PEAKS.csv", help="Peak table CSV (or .xlsx) with a time column.")] = None,
+        rt_unit: Annotated[Optional[str], typer.Option("--rt-unit", metavar="UNIT", help="Unit of the times: min or s (peak tables: default from the header, else min).")] = None,
+        output: Annotated[Optional[str], typer.Option("-o", "--output", metavar="OUT", help="Write the CSV here instead of standard output.")] = None,
+        mapping: Annotated[Optional[List[str]], typer.Option("--map", metavar="COLUMN=HEADER", help="Use this header for a peak-table column, e.g. --map rt='Time of apex'.")] = None,
         as_json: JsonFlag = False,
     ) -> None:
         import json
