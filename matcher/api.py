@@ -160,12 +160,16 @@ class Library:
 
     def confirm(self, results: str | os.PathLike, peak: Any, name: str, *, run: str | None = None,
                 source: str | None = None, analyst: str | None = None, force: bool = False, new: bool = False,
-                as_existing: str | None = None, measured: bool = False, ask: Callable | None = None):
-        """Add a peak of a screening output confirmed with a standard (``matcher confirm``)."""
+                as_existing: str | None = None, measured: bool = False, ask: Callable | None = None,
+                cas: str | None = None, formula: str | None = None, phase: str | None = None):
+        """Add a peak of a screening output confirmed with a standard (``matcher confirm``).
+
+        ``cas``, ``formula`` and ``phase`` are recorded with the compound and observation, as for :meth:`add`."""
         from matcher.curate.library_edits import confirm_from_results
 
         return confirm_from_results(self.db, results, peak, name, run=run, source=source, analyst=analyst,
-                                    force=force, new=new, as_existing=as_existing, measured=measured, ask=ask)
+                                    force=force, new=new, as_existing=as_existing, measured=measured, ask=ask,
+                                    cas=cas, formula=formula, phase=phase)
 
     def retire(self, observation: int, why: str, *, analyst: str | None = None) -> dict:
         """Stop using an observation (the row stays, with the reason)."""

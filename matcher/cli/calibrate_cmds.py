@@ -34,13 +34,14 @@ computed from the nearest pair of standards).
 def qc_table(cal) -> str:
     """The ladder's QC table, one row per standard."""
     from matcher.report.terminal import format_table
+    from matcher.report.wording import format_time
 
     qc = cal.qc
     ratio = [None] + list(qc["spacing_ratio"])
     rows = []
     for k in range(len(cal.rt)):
         fit = qc["fit_residual"][k] if qc["fit_residual"] else None
-        rows.append([cal.names[k], round(float(cal.rt[k]), 4), round(float(cal.index[k]), 2),
+        rows.append([cal.names[k], format_time(cal.rt[k]), round(float(cal.index[k]), 2),
                      None if ratio[k] is None else round(ratio[k], 2),
                      None if qc["loo_residual"][k] is None else round(qc["loo_residual"][k], 1),
                      None if fit is None else round(fit, 2), qc["flags"][k]])
@@ -55,6 +56,7 @@ def qc_table(cal) -> str:
 
 
 def summary(cal) -> str:
+    from matcher.report.wording import format_time, gap_text
     from matcher.retention.calibration import FORMULA
     from matcher.retention.series import SERIES
 
@@ -63,14 +65,14 @@ def summary(cal) -> str:
     lines = [
         f"series: {SERIES[cal.series].label} ({SERIES[cal.series].scale}); {len(cal.rt)} standards",
         f"mode: {cal.mode} ({FORMULA[cal.mode]})",
-        f"covers index {lo:g} to {hi:g} ({t0:g} to {t1:g} min); outside that, indices are extrapolated and flagged",
+        f"covers index {lo:g} to {hi:g} ({format_time(t0)} to {format_time(t1)} min); outside that, indices are extrapolated and flagged",
         f"ladder times in {cal.source.get('rt_unit', 'min')}, decided by {cal.source.get('rt_unit_source', '')}",
     ]
     if cal.holdup is not None:
         use = "" if cal.holdup_used else " (recorded only; it cancels in programmed mode)"
         lines.append(f"hold-up time: {cal.holdup.value:.4f} min, method {cal.holdup.method}: {cal.holdup.detail}{use}")
     for gap in cal.qc.get("gaps", []):
-        lines.append(f"gap: {gap['from']:g} to {gap['to']:g} (no {', '.join(gap['missing'])})")
+        lines.append(f"gap: {gap_text(gap)}")
     return "\n".join(lines)
 
 

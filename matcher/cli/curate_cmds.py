@@ -17,7 +17,7 @@ from matcher.cli.common import CLASS_HELP, DbOption, JsonFlag, is_terminal, note
 EX_CONFIRM = (
     "Example: peak 11 of this morning's run was confirmed with an authentic standard of gamma-terpinene\n\n"
     "    matcher confirm shortlist.csv --peak 11 --name \"gamma-terpinene\" --source \"std lot G-221\" --analyst ana --db lab.sqlite\n\n"
-    "    matcher confirm batch.json --peak 7 --run lot-0412 --name sabinene --db lab.sqlite\n\n"
+    "    matcher confirm batch.json --peak 7 --run lot-0412 --name sabinene --cas 3387-41-5 --formula C10H16 --db lab.sqlite\n\n"
     "The index, class, calibration and date come from the screening output (a CSV with its .meta.json, or the JSON); "
     "the observation's source names the file, run and peak."
 )
@@ -102,13 +102,17 @@ def register(app: typer.Typer) -> None:
         new: New = False,
         as_existing: As = None,
         measured: Annotated[bool, typer.Option("--measured", help="Use ri_measured (before the run's adaptive correction).")] = False,
+        cas: Annotated[Optional[str], typer.Option("--cas", metavar="CAS", help="CAS Registry Number of the compound (check digit verified).")] = None,
+        formula: Annotated[Optional[str], typer.Option("--formula", metavar="FORMULA", help="Molecular formula, e.g. C10H16 (gives the nominal mass the molecular-ion evidence needs).")] = None,
+        phase: Annotated[Optional[str], typer.Option("--phase", metavar="PHASE", help="Stationary phase of the column (generic composition).")] = None,
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
         from matcher.api import open_library
 
         result = open_library(db).confirm(results, peak, name, run=run, source=source, analyst=analyst, force=force,
-                                      new=new, as_existing=as_existing, measured=measured, ask=_asker())
+                                      new=new, as_existing=as_existing, measured=measured, ask=_asker(),
+                                      cas=cas, formula=formula, phase=phase)
         _render_add(result, as_json)
 
     @lib.command("add", help="Add one confirmed retention index; the name finds its compound, an outlier is refused.",
@@ -171,7 +175,7 @@ def register(app: typer.Typer) -> None:
             return
         after = doc["after"]
         rest = "no active observation left in that class" if after is None else (
-            f"centre now {after['centre']:.1f} (spread {after['spread']:.1f}, {after['count']} observations)")
+            f"centre now {after['centre']:.1f} (spread {after['spread']:.1f}, {after['count']} observation{'' if after['count'] == 1 else 's'})")
         say(f"retired observation {doc['observation']} of {doc['compound']!r} ({doc['phase_class']} {doc['ri']:g}); {rest}")
 
     @lib.command("merge", help="Merge another library into this one; conflicts are reported, nothing is overwritten.",

@@ -91,8 +91,8 @@ def register(app: typer.Typer) -> None:
         if not hits:
             say(f"nothing in the library resembles {text!r}")
             return
-        say(format_table(["score", "name", "cas", "formula", "matched"],
-                         [[h.score, h.name, h.cas, h.formula, f"{h.field}: {h.matched}"] for h in hits], align="rllll"))
+        say(format_table(["name similarity", "name", "cas", "formula", "matched"],
+                         [[h.name_similarity, h.name, h.cas, h.formula, f"{h.field}: {h.matched}"] for h in hits], align="rllll"))
 
     @lib.command("show", help="One compound: identity, per-class centre/spread/count and every observation with its provenance.", epilog=EX_SHOW)
     def show_cmd(
