@@ -121,6 +121,12 @@ def run() -> None:
     except Exception as exc:  # last resort: never a traceback at the bench
         if os.environ.get("MATCHER_DEBUG"):
             raise
+        if isinstance(exc, ModuleNotFoundError) and exc.name in ("psycopg", "psycopg2", "psycopg_binary", "psycopg_c"):
+            from matcher.store.database import POSTGRES_INSTALL
+
+            typer.echo(f"error: the PostgreSQL driver is not installed ({exc.name}); install it with: "
+                       f"{POSTGRES_INSTALL}", err=True)
+            sys.exit(2)
         from matcher.store.location import mask_secrets
 
         from matcher.safe_text import terminal_text
