@@ -64,10 +64,10 @@ def register(app: typer.Typer) -> None:
         crowding: Annotated[Optional[str], typer.Option("--crowding", metavar="TYPE|N", help="How crowded the sample is with compounds not in the library, as a prior: sparse, moderate (default), crowded, dense, or unlisted peaks per 100 index units. The run's own peaks refine it.")] = None,
         split_peaks: Annotated[bool, typer.Option("--split-peaks", help="Let one compound explain several peaks (split or overloaded peaks); by default a compound explains at most one peak of a run.")] = False,
         quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bar and no summary.")] = False,
-        sample: Annotated[Optional[str], typer.Option("--sample", metavar="TEXT", help="Sample or lot, for the QC record (default: from the peak table's preamble).")] = None,
+        sample: Annotated[Optional[str], typer.Option("--sample", metavar="SAMPLE", help="Sample or lot, for the QC record (default: from the peak table's preamble).")] = None,
         analyst: Annotated[Optional[str], typer.Option("--analyst", metavar="WHO", help="Who ran and reviewed the screen, for the QC record.")] = None,
-        instrument: Annotated[Optional[str], typer.Option("--instrument", metavar="TEXT", help="The GC (and detector) the run was made on, for the QC record.")] = None,
-        column: Annotated[Optional[str], typer.Option("--column", metavar="TEXT", help="The column: phase, length x inner diameter x film, for the QC record.")] = None,
+        instrument: Annotated[Optional[str], typer.Option("--instrument", metavar="INSTRUMENT", help="The GC (and detector) the run was made on, for the QC record.")] = None,
+        column: Annotated[Optional[str], typer.Option("--column", metavar="COLUMN", help="The column: phase, length x inner diameter x film, for the QC record.")] = None,
         db: DbOption = None,
     ) -> None:
         import sys
