@@ -39,7 +39,7 @@ SETTING_DEFAULTS: dict[str, str] = {
     "top": "all candidates in the window",
     "window": "class default",
     "window_percent": "not used",
-    "index_scatter": "class default (0.3 × the window), estimated from the anchors with the adaptive correction",
+    "index_scatter": "class default (0.3 × the window)",
     "crowding": "moderate (default)",
     "anchors": "none",
 }
@@ -123,6 +123,9 @@ def settings_rows(settings: dict[str, Any] | None) -> list[tuple[str, str]]:
     """The settings as (label, value) rows, known ones first in display order."""
     settings = dict(settings or {})
     rows = [(label, setting_text(key, settings.get(key))) for key, label in SETTING_LABELS.items() if key in settings]
+    if settings.get("adaptive") and settings.get("index_scatter") is None:
+        rows = [(label, value + ", estimated per run from the adaptive fit's kept anchors"
+                 if label == SETTING_LABELS["index_scatter"] else value) for label, value in rows]
     rows += [(key.replace("_", " "), setting_text(key, v)) for key, v in settings.items() if key not in SETTING_LABELS]
     return rows
 
