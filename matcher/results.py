@@ -164,6 +164,13 @@ class RunResult:
     peak_count: int = 0
     checksum: str = ""               # SHA-256 of the peak table's normalised content (matcher.io.peak_tables.content_checksum)
     record: dict[str, Any] = field(default_factory=dict)  # RECORD_FIELDS given or read from the preamble, and 'preamble'
+    rt_decimals: dict[str, int] = field(default_factory=dict)  # peak id -> decimals its time was given with
+
+    def time_text(self, peak: Any, minutes: Any) -> str:
+        """The peak's retention time as text, as precise as it was given (see matcher.report.wording.format_time)."""
+        from matcher.report.wording import format_time
+
+        return format_time(minutes, self.rt_decimals.get(str(peak)))
 
 
 @dataclass

@@ -287,3 +287,25 @@ def test_the_demo_report_and_its_juniper_berry_oil(tmp_path):
     text = visible_text(open(out.report, encoding="utf-8").read())
     assert "invented" in text and "Composition" in text
     assert_no_raw_values(text, "demo report")
+
+
+def test_calibrate_and_screen_show_times_as_given(tmp_path, library):
+    ladder = tmp_path / "ladder.csv"
+    ladder.write_text("rt,carbons\n3.10,8\n5.02,9\n7.998,10\n9.2,11\n12.5,12\n", encoding="utf-8")  # invented
+    res = runner.invoke(app, ["calibrate", str(ladder), "-o", str(tmp_path / "cal.json")])
+    assert res.exit_code == 0, res.output
+    rows = {ln.split()[0]: ln.split()[1] for ln in res.output.splitlines() if ln.startswith("C")}
+    assert rows == {"C8": "3.10", "C9": "5.02", "C10": "7.998", "C11": "9.2", "C12": "12.5"}
+    doc = json.loads((tmp_path / "cal.json").read_text(encoding="utf-8"))
+    assert [s["rt_decimals"] for s in doc["standards"]] == [2, 2, 3, 1, 1]
+    run = tmp_path / "run.csv"
+    run.write_text("peak,rt\n1,4.2150\n2,9.95\n3,11.1\n", encoding="utf-8")
+    out = tmp_path / "s.csv"
+    res = runner.invoke(app, ["screen", str(run), "--calibration", str(tmp_path / "cal.json"), "--class",
+                              "slightly-polar", "-o", str(out), "--db", library.db, "-q"])
+    assert res.exit_code == 0, res.output
+    import csv
+
+    with open(out, newline="", encoding="utf-8") as fh:
+        times = {r["peak"]: r["rt"] for r in csv.DictReader(fh)}
+    assert times == {"1": "4.2150", "2": "9.95", "3": "11.1"}

@@ -41,7 +41,8 @@ def qc_table(cal) -> str:
     rows = []
     for k in range(len(cal.rt)):
         fit = qc["fit_residual"][k] if qc["fit_residual"] else None
-        rows.append([cal.names[k], format_time(cal.rt[k]), round(float(cal.index[k]), 2),
+        given = cal.rt_decimals[k] if k < len(cal.rt_decimals or []) else None
+        rows.append([cal.names[k], format_time(cal.rt[k], given), round(float(cal.index[k]), 2),
                      None if ratio[k] is None else round(ratio[k], 2),
                      None if qc["loo_residual"][k] is None else round(qc["loo_residual"][k], 1),
                      None if fit is None else round(fit, 2), qc["flags"][k]])

@@ -26,7 +26,7 @@ def register(app: typer.Typer) -> None:
         epilog=EXAMPLE,
     )
     def evaluate_cmd(
-        phase_class: Annotated[Optional[str], typer.Option("--class", metavar="CLASS", help="Evaluate one class only.")] = None,
+        phase_class: Annotated[Optional[str], typer.Option("--class", metavar="CLASS", help="Evaluate one polarity class only (default: every class of the library).")] = None,
         noise: Annotated[float, typer.Option(metavar="UNITS", help="Add Gaussian noise of this many index units to every query.")] = 0.0,
         window: Annotated[Optional[float], typer.Option(metavar="UNITS", help="Half-width of the window (default: the class default).")] = None,
         crowded: Annotated[bool, typer.Option("--crowded", help="Crowded-sample check: remove every other compound along the index scale and screen all of them together as one run, plain and adaptive.")] = False,

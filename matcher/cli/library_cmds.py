@@ -156,7 +156,7 @@ def render_show(doc: dict) -> str:
         lines.append("  synonyms: " + "; ".join(doc["synonyms"]))
     if doc["classes"]:
         lines.append("")
-        lines.append(format_table(["class", "index", "spread", "n"],
+        lines.append(format_table(["class", "index", "spread", "observations"],
                                   [[c, round(v["ri"], 1), round(v["sd"], 1), v["n"]] for c, v in doc["classes"].items()]))
     lines.append("")
     rows = [[o["id"], o["phase_class"], o["ri"], o["ri_sd"], o["n"], o["mode"], o["phase"], o["source"],

@@ -602,6 +602,8 @@ def screen(
             table=df, calibration=None if cal is None else cal.to_dict(), correction=public_correction(correction),
             index_scatter=model.index_scatter, notices=notices, peak_count=len(table.peak), run_model=info,
             checksum=getattr(table, "checksum", ""), record=_record(table, record),
+            rt_decimals={str(p): int(d) for p, d in zip(table.peak, getattr(table, "rt_decimals", ()) or ())
+                         if d is not None},
         ))
 
     homes = [prepared[c][0] for c in dict.fromkeys(classes)]

@@ -610,6 +610,27 @@ def numbers(
     return out
 
 
+def decimals(raw: RawTable, column: str) -> list[int | None]:
+    """How many decimals each number of ``column`` was written with (None for an empty cell or an exponent).
+
+    So that a time is shown as precise as it was given: ``7.998`` stays ``7.998`` and ``3.10`` stays ``3.10``.
+
+    >>> import pandas as pd
+    >>> decimals(RawTable("t.csv", pd.DataFrame({"x": ["7.998", "3.10", "8", "", "1e3"]}, dtype=object), ["x"], 1), "x")
+    [3, 2, 0, None, None]
+    """
+    out: list[int | None] = []
+    for c in _column(raw, column):
+        c = c.strip()
+        if raw.decimal_comma and "," in c and "." not in c:
+            c = c.replace(",", ".")
+        if not c or "e" in c.lower() or not _NUMBER.fullmatch(c.replace("\u2212", "-")):
+            out.append(None)
+            continue
+        out.append(len(c.split(".", 1)[1]) if "." in c else 0)
+    return out
+
+
 def texts(raw: RawTable, column: str, *, required: bool = False) -> list[str]:
     """The text of ``column``, stripped at both ends and otherwise literal (a quoted newline stays).
 
@@ -699,7 +720,7 @@ def map_headers(
     return result
 
 
-__all__ = ["RawTable", "load_table", "numbers", "texts", "map_headers", "normalize_header", "strip_units", "echo",
+__all__ = ["RawTable", "load_table", "numbers", "decimals", "texts", "map_headers", "normalize_header", "strip_units", "echo",
            "from_frame", "as_table"]
 
 

@@ -141,6 +141,8 @@ class PeakTable:
     metadata: dict | None = None
     #: the preamble as read: (key, value) pairs, one per line
     preamble: tuple = ()
+    #: decimals each time was written with (None: unknown or converted from seconds), to show it as given
+    rt_decimals: tuple = ()
     #: one entry per peak: ``(mz, intensity)`` float64 arrays sorted by m/z, or None (no spectrum);
     #: an empty tuple when the table has no spectra at all
     spectra: tuple = ()
@@ -231,7 +233,7 @@ def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | 
 
     A DataFrame gets exactly the checks a file gets (see :func:`matcher.io.delimited.from_frame`).
     """
-    from matcher.io.delimited import as_table, echo, map_headers, numbers, texts
+    from matcher.io.delimited import as_table, decimals, echo, map_headers, numbers, texts
 
     raw = as_table(path, what="peak table", is_header=_is_header)
     cols = map_headers(raw, ALIASES, overrides)
@@ -261,8 +263,10 @@ def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | 
         unit, source = time_unit(cols["rt"], rt_unit)
         factor = 60.0 if unit == "s" else 1.0
         rt = numbers(raw, cols["rt"], required="ri" not in cols, positive=True, maximum=MAX_RT_MIN * factor) / factor
+        rt_given = tuple(decimals(raw, cols["rt"])) if unit == "min" else ()
     else:
         rt = nan.copy()
+        rt_given = ()
     ri = numbers(raw, cols["ri"], required="rt" not in cols, minimum=0.0, maximum=MAX_RI) if "ri" in cols else nan.copy()
     if "rt" in cols and "ri" in cols:
         both_empty = np.isnan(rt) & np.isnan(ri)
@@ -315,7 +319,7 @@ def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | 
         has_rt="rt" in cols, has_ri="ri" in cols, rt_unit_source=source, columns=cols,
         lines=np.array([raw.line_of(k + 1) for k in range(n)], dtype=np.int64),
         spectra=spectra, area_percent=area_percent, area_percent_source=percent_source,
-        metadata=metadata, preamble=pairs,
+        metadata=metadata, preamble=pairs, rt_decimals=rt_given,
     )
 
 

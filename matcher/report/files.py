@@ -387,6 +387,14 @@ def write_csv(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
     path = Path(path)
     frame = combined_table(result)
     cells = csv_cells(frame)
+    given = [(run, run.table) for run in result.runs if run.rt_decimals and run.table is not None]
+    if given and len(frame) == sum(len(r.table) for r in result.runs if r.table is not None):
+        texts = []  # times as precise as they were given in the peak table
+        for run in result.runs:
+            if run.table is None:
+                continue
+            texts += [run.time_text(p, t) for p, t in zip(run.table["peak"].tolist(), run.table["rt"].tolist())]
+        cells["rt"] = texts
     side = sidecar_path(path)
     doc = results_document(result, content="provenance", table_file=path.name, table_columns=list(frame.columns))
     with atomic_write(side) as fh:
@@ -544,6 +552,8 @@ def _runs_sheet_rows(result: ScreenResult):
                                      "check": (qc.get("flags") or [""] * len(cal["standards"]))[i]
                                      if len(qc.get("flags") or []) == len(cal["standards"]) else ""})
                          for i, s_ in enumerate(cal.get("standards") or [])]
+            for s_ in standards:
+                s_["rt"] = format_time(s_.get("rt"), s_.get("rt_decimals"))
             yield from _table_rows("ladder standards", standards,
                                    {"name": "standard", "rt": "time (min)", "index": "index",
                                     "loo": "leave-one-out deviation", "check": "check"})

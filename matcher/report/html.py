@@ -190,7 +190,7 @@ def _caution(result: ScreenResult, where: str) -> str:
 
 
 def _summary(result: ScreenResult, summaries: list[dict[str, Any]]) -> str:
-    head = ("<tr><th>run</th><th>class</th><th>window</th><th class=\"n\">peaks</th>"
+    head = ("<tr><th>run</th><th>polarity class</th><th>window</th><th class=\"n\">peaks</th>"
             "<th class=\"n\">with candidates</th><th class=\"n\">flagged for review</th>"
             "<th class=\"n\">no candidate</th><th class=\"n\">not in library (most likely)</th></tr>")
     rows = []
@@ -275,7 +275,7 @@ def _calibration(cal: dict[str, Any] | None) -> str:
     gaps = [g for g in (qc.get("gaps") or []) if isinstance(g, dict)]
     facts = [
         ("ladder file", e(source.get("ladder")) if isinstance(source, dict) else ""),
-        ("reference series", _text(cal.get("series")) + (f" ({e(cal.get('index_scale'))})" if cal.get("index_scale") else "")),
+        ("reference series", _series_text(cal.get("series"), cal.get("index_scale"))),
         ("temperature mode", _text(cal.get("mode")) + (f" – {e(cal.get('formula'))}" if cal.get("formula") else "")),
         ("hold-up time", _holdup_text(cal.get("holdup"))),
         ("index range covered", " to ".join(_num(v, 0) for v in index_range)
@@ -322,7 +322,7 @@ def _calibration(cal: dict[str, Any] | None) -> str:
                 + ('<th class="n">deviation from the log line</th>' if fit else "")
                 + ("<th>check</th>" if marks else ""))
         body = "".join(
-            f"<tr><td>{e(s.get('name'))}</td><td class=\"n\">{e(format_time(s.get('rt')))}</td>"
+            f"<tr><td>{e(s.get('name'))}</td><td class=\"n\">{e(format_time(s.get('rt'), s.get('rt_decimals')))}</td>"
             f"<td class=\"n\">{_num(s.get('index'), 1)}</td>"
             + (f'<td class="n">{_num(spacing[i], 2) if spacing[i] is not None else ""}</td>' if spacing else "")
             + (f'<td class="n">{_num(loo[i], 1) if loo[i] is not None else ""}</td>' if loo else "")
@@ -353,6 +353,14 @@ def _calibration(cal: dict[str, Any] | None) -> str:
     if std_table or plot:
         parts.append(f'<div class="grid"><div>{std_table}</div><div class="plotbox">{plot}</div></div>')
     return "".join(parts)
+
+
+def _series_text(series: Any, scale: Any) -> str:
+    from matcher.retention.series import SERIES
+
+    known = SERIES.get(str(series))
+    name = known.label if known else readable(series)
+    return e(name) + (f"; index scale: {e(scale)}" if scale else "")
 
 
 def _check_mark(mark: Any) -> str:
@@ -482,7 +490,7 @@ def _composition(run: RunResult) -> str:
         ranked = _finite(first.get("rank"))
         needs = any(row_needs_review(f, engine_marks=marks) for f in group["flags"])
         rows.append(
-            f"<tr><td>{e(first.get('peak'))}</td><td class=\"n\">{e(format_time(first.get('rt')))}</td>"
+            f"<tr><td>{e(first.get('peak'))}</td><td class=\"n\">{e(run.time_text(first.get('peak'), first.get('rt')))}</td>"
             f"<td class=\"n\">{_num(first.get('ri'), 1)}</td><td class=\"n\">{_num(first.get('area'), 0) if _finite(first.get('area')) else ''}</td>"
             f"<td class=\"n\">{_num(p, 2)}</td>"
             f"<td>{e(first.get('name')) if ranked else '<span class=empty>no candidate</span>'}</td>"
@@ -541,7 +549,7 @@ def _shortlists(run: RunResult, max_peaks: int) -> str:
                 f'<tr class="{"needs-review" if needs else "ok"}">'
                 f'<td class="mark">{"review" if needs else ""}</td>'
                 f'<td class="peak">{e(rec.get("peak")) if first else ""}</td>'
-                f'<td class="n">{e(format_time(rec.get("rt"))) if first else ""}</td>'
+                f'<td class="n">{e(run.time_text(rec.get("peak"), rec.get("rt"))) if first else ""}</td>'
                 f'<td class="n">{_num(rec.get("ri"), 1) if first else ""}</td>'
                 f'<td class="n">{_num(rec.get("area_percent"), 2) if first and _finite(rec.get("area_percent")) else ""}</td>'
                 f'<td class="n">{_int(rec.get("rank"))}</td>'

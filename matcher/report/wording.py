@@ -90,14 +90,21 @@ def readable(value: Any) -> str:
     return str(value)
 
 
-def format_time(minutes: Any) -> str:
-    """A retention time in minutes as shown everywhere: at least 2 and at most 4 decimals, as precise as given."""
+def format_time(minutes: Any, decimals: Any = None) -> str:
+    """A retention time in minutes as shown everywhere: with the ``decimals`` it was given with when known,
+    else at least 2 and at most 4 decimals, as precise as the value.
+
+    >>> format_time(3.1, 2), format_time(12.5, 1), format_time(7.998, 3)
+    ('3.10', '12.5', '7.998')
+    """
     try:
         v = float(minutes)
     except (TypeError, ValueError):
         return ""
     if not math.isfinite(v):
         return ""
+    if isinstance(decimals, int) and not isinstance(decimals, bool) and 0 <= decimals <= 12:
+        return f"{v:.{decimals}f}"
     text = f"{v:.4f}".rstrip("0")
     whole, _, frac = text.partition(".")
     return f"{whole}.{frac:0<2}"
