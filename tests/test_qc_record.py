@@ -309,3 +309,40 @@ def test_calibrate_and_screen_show_times_as_given(tmp_path, library):
     with open(out, newline="", encoding="utf-8") as fh:
         times = {r["peak"]: r["rt"] for r in csv.DictReader(fh)}
     assert times == {"1": "4.2150", "2": "9.95", "3": "11.1"}
+
+
+# --------------------------------------------------------------------------- preamble property
+
+from hypothesis import given, settings, strategies as st  # noqa: E402
+
+def _not_a_column_name(word: str) -> bool:
+    """Preamble words that no peak-table header spelling matches (a line naming two columns would be a header)."""
+    from matcher.io.delimited import normalize_header
+    from matcher.io.peak_tables import ALIASES
+
+    known = {normalize_header(a) for canon, names in ALIASES.items() for a in [canon, *names]}
+    return normalize_header(word) not in known
+
+
+_WORDS = (st.text(alphabet="abcdefghijklmnopqrstuvwxyz ", min_size=1, max_size=12).map(str.strip)
+          .filter(bool).filter(_not_a_column_name))
+_LINE = st.one_of(
+    st.tuples(_WORDS, _WORDS).map(lambda kv: f"{kv[0]},{kv[1]}"),
+    st.tuples(_WORDS, _WORDS).map(lambda kv: f"{kv[0]}: {kv[1]}"),
+    _WORDS.map(lambda w: f"[{w}]"),
+    st.just(""),
+)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(_LINE, min_size=0, max_size=8))
+def test_any_key_value_preamble_leaves_the_peaks_unchanged(tmp_path_factory, lines):
+    from matcher.io.peak_tables import read_peaks
+
+    body = "Peak#,R.Time,Area,Area%\n1,5.012,1200,12.5\n2,6.500,8400,87.5\n"
+    path = tmp_path_factory.mktemp("pre") / "export.csv"
+    path.write_text("".join(ln + "\n" for ln in lines) + body, encoding="utf-8")
+    table = read_peaks(str(path))
+    assert table.peak.tolist() == ["1", "2"] and table.rt.tolist() == [5.012, 6.5]
+    assert table.area_percent.tolist() == [12.5, 87.5]
+    assert len(table.preamble) <= len(lines)
