@@ -382,19 +382,35 @@ def sidecar_path(csv_path: str | os.PathLike) -> Path:
     return p.with_name(p.name + SIDECAR_SUFFIX)
 
 
+def _given_times(result: ScreenResult, frame: pd.DataFrame) -> list[str]:
+    """The ``rt`` cells with the decimals each peak's time was given with (vectorised per decimals value)."""
+    parts = []
+    for run in result.runs:
+        if run.table is None:
+            continue
+        ids = run.table["peak"].astype(str)
+        parts.append(ids.map(run.rt_decimals).to_numpy(dtype=float, na_value=np.nan) if run.rt_decimals
+                     else np.full(len(ids), np.nan))
+    given = np.concatenate(parts) if parts else np.zeros(0)
+    x = pd.to_numeric(frame["rt"], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    out = np.empty(len(x), dtype=object)
+    unknown = np.isnan(given)
+    if unknown.any():
+        out[unknown] = _distinct(x[unknown], format_time)
+    for d in np.unique(given[~unknown]):
+        sel = given == d
+        out[sel] = _fmt_fixed(x[sel], int(d))
+    return out.tolist()
+
+
 def write_csv(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
     """The shortlist CSV and its provenance sidecar; returns both paths."""
     path = Path(path)
     frame = combined_table(result)
     cells = csv_cells(frame)
-    given = [(run, run.table) for run in result.runs if run.rt_decimals and run.table is not None]
-    if given and len(frame) == sum(len(r.table) for r in result.runs if r.table is not None):
-        texts = []  # times as precise as they were given in the peak table
-        for run in result.runs:
-            if run.table is None:
-                continue
-            texts += [run.time_text(p, t) for p, t in zip(run.table["peak"].tolist(), run.table["rt"].tolist())]
-        cells["rt"] = texts
+    if any(run.rt_decimals for run in result.runs) and len(frame) == sum(
+            len(r.table) for r in result.runs if r.table is not None):
+        cells["rt"] = _given_times(result, frame)
     side = sidecar_path(path)
     doc = results_document(result, content="provenance", table_file=path.name, table_columns=list(frame.columns))
     with atomic_write(side) as fh:
