@@ -71,7 +71,7 @@ def render(doc: dict) -> str:
     else:
         rows = [[c["rank"], c["name"], f"{c['library_ri']:.1f}", f"{c['delta_ri']:+.1f}", f"{c['probability']:.3f}",
                  ";".join(c["flags"])] for c in doc["candidates"]]
-        body = format_table(["rank", "name", "library index", "deviation", "probability", "flags"], rows, align="rlrrrl")
+        body = format_table(["rank", "name", "library RI", "ΔRI", "probability", "flags"], rows, align="rlrrrl")
         body += f"\nnot in library: {doc['not_in_library']:.3f}"
     notes = "".join(f"\nnote: {n}" for n in doc["notes"])
     return f"{head}\n\n{body}{notes}\n\n{doc['caution']}"
