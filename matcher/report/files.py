@@ -486,7 +486,9 @@ def _xlsx_shortlist_rows(frame: pd.DataFrame):
 def _cell(value: Any) -> Any:
     """A runs-sheet cell: numbers stay numbers, everything else readable text (never a program value)."""
     value = jsonable(value)
-    if isinstance(value, (int, float)) and not isinstance(value, bool):
+    if isinstance(value, float):
+        return round(value, 4)  # a figure for the record; the shortlist sheet and the JSON keep full precision
+    if isinstance(value, int) and not isinstance(value, bool):
         return value
     return spreadsheet_text(readable(value))
 
@@ -507,9 +509,16 @@ RUN_LABELS: dict[str, str] = {
     "index_scatter": "index scatter (index units)", "peak_count": "peaks",
 }
 SUMMARY_LABELS: dict[str, str] = {
-    "peaks": "peaks", "rows": "rows", "with_candidates": "peaks with candidates", "review": "peaks flagged for review",
+    "rows": "shortlist rows", "with_candidates": "peaks with candidates", "review": "peaks flagged for review",
     "no_candidate": "peaks without candidate", "not_in_library": "peaks most likely not in the library",
 }
+
+
+def _series_label(series: Any) -> str:
+    from matcher.retention.series import SERIES
+
+    known = SERIES.get(str(series))
+    return known.label if known else readable(series)
 
 
 def _window_text(window: Any) -> str:
@@ -552,7 +561,7 @@ def _runs_sheet_rows(result: ScreenResult):
             qc = cal.get("qc") or {}
             hold = cal.get("holdup") or {}
             yield ["ladder file", _cell((cal.get("source") or {}).get("ladder"))]
-            yield ["reference series", _cell(cal.get("series"))]
+            yield ["reference series", _cell(_series_label(cal.get("series")))]
             yield ["temperature mode", _cell(f"{cal.get('mode')}: {cal.get('formula')}")]
             if hold:
                 yield ["hold-up time (min)", _cell(hold.get("value"))]
