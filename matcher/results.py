@@ -58,7 +58,7 @@ DETAIL_COLUMNS: tuple[str, ...] = (
 
 
 #: The evidence columns (natural-log likelihood ratios against not-in-library); a
-#: candidate record's ``evidence`` object holds them without the ``ev_`` prefix.
+#: candidate record's ``evidence`` object holds them without the ``evidence_`` prefix.
 EVIDENCE_COLUMNS: tuple[str, ...] = ("evidence_index", "evidence_mol_ion", "evidence_ions", "evidence_hit")
 
 #: Prefix of the evidence columns; a candidate record's ``evidence`` object holds them without it.
@@ -128,7 +128,7 @@ def candidate_record(get: Callable[[str], Any], flags: Iterable[str], *,
     ``get(column)`` returns the row's value of an output column (for example
     ``row.get`` of a record, or ``lambda c: columns[c][i]``). Keys:
     :data:`CANDIDATE_KEYS`, ``flags`` (a list), ``evidence`` (the evidence
-    columns without ``ev_``), then any ``extra`` columns. Empty CAS numbers and
+    columns without ``evidence_``), then any ``extra`` columns. Empty CAS numbers and
     formulas become ``None``; ``rank``, ``library_observations`` and ``nominal_mass`` are
     integers.
     """

@@ -3,21 +3,28 @@
 ``write_report(result, "report.html")`` writes (atomically) a page with
 
 * the caution (:data:`matcher.CAUTION` as carried by the result), at the top and the bottom;
-* provenance: tool version, creation time, library (password masked), settings;
+* the QC record (sample or lot, analyst, instrument, column: ``RunResult.record``), provenance
+  (tool version, creation time, library with any password masked) and the settings in words;
 * a run summary: peaks, peaks with candidates, peaks flagged for review,
   peaks with no candidate, peaks most likely not in the library, and per
   flag the number of peaks carrying it (rules in :mod:`matcher.report.summary`);
-* per run: the ladder's QC checks and standards, a calibration plot
-  (retention time against index of the standards, with the interpolation
-  the method uses between them: straight segments for the linear index of
-  van den Dool & Kratz, J. Chromatogr. 11, 463, 1963; log-adjusted-time
-  segments for the Kováts index, Helv. Chim. Acta 41, 1915, 1958); the
-  adaptive correction (Zenkevich, Molecules 30, 4706, 2025) with a plot of
-  the deviation RIref − RIexp against the index for its anchors and the
-  fitted line ΔRI = a·RIexp + b (without anchors, the confident matches of
-  the run are shown: rank 1, probability ≥ 0.9, not marked for review);
+* per run: which index the RI column holds; what the ladder checks found, read from the calibration
+  file's own keys (``qc.findings`` and ``warnings``: a probable mislabelled or missing standard;
+  ``qc.gaps`` as readable lines; ``holdup.value`` with its method), the standards with their
+  leave-one-out deviations, a calibration plot (retention time against index of the standards, with
+  the interpolation the method uses between them: straight segments for the linear index of
+  van den Dool & Kratz, J. Chromatogr. 11, 463, 1963; log-adjusted-time segments for the Kováts
+  index, Helv. Chim. Acta 41, 1915, 1958); the adaptive correction (Zenkevich, Molecules 30, 4706,
+  2025) in the one sign convention of every output, ΔRI = measured − library = slope·RI + offset,
+  with its anchors (without anchors, the confident matches of the run are shown: rank 1,
+  probability ≥ 0.9, not marked for review); the composition (area % per peak and its most
+  probable candidate);
 * each peak's shortlist with its flags; rows needing review are marked in
-  words (and colour).
+  words (and colour);
+* a review and sign-off block (screened by, reviewed by, date, signature).
+
+No program value (None, True/False, NaN, a dict or list) reaches the visible text: every value goes
+through :func:`matcher.report.wording.readable` or a number format.
 
 Nothing is loaded from anywhere: inline CSS, inline SVG drawn by
 :mod:`matcher.report.svg`, no scripts at all. Every piece of library or user
