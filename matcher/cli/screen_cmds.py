@@ -23,7 +23,7 @@ Examples
 
   Two runs on two columns, with the facts for the QC record (an export's preamble fills what is not given):
 
-    matcher screen lot7-db5.csv lot7-wax.csv --calibration db5.json --calibration wax.json
+    matcher screen lot7-phenyl.csv lot7-peg.csv --calibration phenyl.json --calibration peg.json
         --class slightly-polar --class polar --sample "lot 7" --analyst ana --instrument "GC-2"
         --column "5 % phenyl 30 m x 0.25 mm x 0.25 um" -o lot7.xlsx --report lot7.html
 
