@@ -495,13 +495,16 @@ def _composition(run: RunResult) -> str:
             continue
         total_pct += float(p)
         ranked = _finite(first.get("rank"))
+        if ranked and _finite(first.get("not_in_library")) and _finite(first.get("probability")) \
+                and float(first["not_in_library"]) > float(first["probability"]):
+            ranked = False  # none of the listed compounds is as probable as "not in library"
         needs = any(row_needs_review(f, engine_marks=marks) for f in group["flags"])
         rows.append(
             f"<tr><td>{e(first.get('peak'))}</td><td class=\"n\">{e(run.time_text(first.get('peak'), first.get('rt')))}</td>"
             f"<td class=\"n\">{_num(first.get('ri'), 1)}</td><td class=\"n\">{_num(first.get('area'), 0) if _finite(first.get('area')) else ''}</td>"
             f"<td class=\"n\">{_num(p, 2)}</td>"
-            f"<td>{e(first.get('name')) if ranked else '<span class=empty>no candidate</span>'}</td>"
-            f"<td class=\"n\">{_num(first.get('probability'), 3) if ranked else ''}</td>"
+            f"<td>{e(first.get('name')) if ranked else '<span class=empty>most likely not in the library</span>'}</td>"
+            f"<td class=\"n\">{_num(first.get('probability'), 3) if ranked else _num(first.get('not_in_library'), 3)}</td>"
             f"<td>{'review' if needs else ''}</td></tr>"
         )
     source = (run.record or {}).get("area_percent", "")
