@@ -346,3 +346,18 @@ def test_any_key_value_preamble_leaves_the_peaks_unchanged(tmp_path_factory, lin
     assert table.peak.tolist() == ["1", "2"] and table.rt.tolist() == [5.012, 6.5]
     assert table.area_percent.tolist() == [12.5, 87.5]
     assert len(table.preamble) <= len(lines)
+
+
+def test_a_workbook_with_a_preamble_reads_like_the_csv(tmp_path):
+    from matcher.io.peak_tables import read_peaks
+
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    for row in (["[Header]"], ["Sample Name", "oil lot 9"], ["Operator", "ana"], [], ["Peak#", "R.Time", "Area", "Area%"],
+                [1, 5.012, 1200, 12.5], [2, 6.5, 8400, 87.5]):
+        ws.append(row)
+    wb.save(tmp_path / "export.xlsx")
+    table = read_peaks(str(tmp_path / "export.xlsx"))
+    assert table.peak.tolist() == ["1", "2"] and table.rt.tolist() == [5.012, 6.5]
+    assert table.area_percent.tolist() == [12.5, 87.5] and table.lines.tolist() == [6, 7]  # physical rows
+    assert table.metadata == {"sample": "oil lot 9", "analyst": "ana"}
