@@ -2,9 +2,13 @@
 
 Run from the project folder:  python examples/generate_demo_files.py
 The scenario: a distillery's QC lab checks an incoming lot of juniper-berry
-oil on its 5 % phenyl column (slightly-polar class). The times are invented;
-peaks are drawn from the demo library with a small systematic offset, a few
-compounds the library does not hold, and mass-spectral hints on most peaks.
+oil on its 5 % phenyl column (slightly-polar class). The composition is made to
+look like that oil (α-pinene the main peak, then myrcene and sabinene, a
+monoterpene-rich front and a smaller sesquiterpene tail); the percentages are
+rough values of our own, not measurements of any oil and not taken from a
+published analysis. The times are invented; each peak sits at its compound's
+library centre plus a small systematic offset and noise; three compounds the
+library does not hold are added, and mass-spectral hints on most peaks.
 """
 
 from __future__ import annotations
@@ -17,6 +21,21 @@ import numpy as np
 HERE = os.path.dirname(os.path.abspath(__file__))
 HEADER = ("# matcher demo: incoming lot JB-0412 of juniper-berry oil, 5 % phenyl column, oven programmed.\n"
           "# INVENTED NUMBERS FOR THE DEMO, not measurements.\n")
+
+
+#: The oil's invented composition: (library name, area %), monoterpene hydrocarbons first. Rough shares of
+#: our own that make the run look like juniper-berry oil to a practitioner; NOT measured values.
+COMPOSITION: list[tuple[str, float]] = [
+    ("α-thujene", 1.2), ("α-pinene", 36.0), ("camphene", 0.6), ("sabinene", 9.0), ("β-pinene", 3.2),
+    ("myrcene", 12.5), ("δ-3-carene", 1.1), ("α-terpinene", 0.9), ("limonene", 4.8), ("(E)-β-ocimene", 0.5),
+    ("γ-terpinene", 1.6), ("terpinolene", 1.0), ("trans-sabinene hydrate", 0.3), ("linalool", 0.5),
+    ("camphor", 0.2), ("borneol", 0.3), ("terpinen-4-ol", 2.8), ("α-terpineol", 0.6), ("bornyl acetate", 0.5),
+    ("α-cubebene", 0.6), ("α-copaene", 0.4), ("β-elemene", 0.8), ("β-caryophyllene", 2.6), ("α-humulene", 1.5),
+    ("germacrene D", 4.2), ("α-muurolene", 0.5), ("γ-cadinene", 0.9), ("δ-cadinene", 1.6), ("elemol", 0.3),
+    ("caryophyllene oxide", 0.4), ("α-cadinol", 0.3),
+]
+#: Summed peak area of the run (invented detector counts).
+TOTAL_AREA = 40_000_000
 
 
 def ladder_time(index: np.ndarray) -> np.ndarray:
@@ -42,31 +61,29 @@ def main() -> None:
 
     byname: dict[str, list] = {}
     for r in rows:
-        if r.phase_class == "slightly-polar" and not r.name.startswith("n-") and (r.series or "") != "n-alkanes":
+        if r.phase_class == "slightly-polar":
             byname.setdefault(r.name, []).append(r)
-    names = sorted(byname)
-    chosen = list(rng.choice(names, size=min(38, len(names)), replace=False))
     peaks = []
-    for name in chosen:
+    for name, percent in COMPOSITION:
         obs = byname[name]
         centre = float(np.median([o.ri for o in obs]))
-        peaks.append((centre + 3.0 + rng.normal(0, 1.5), name, obs[0].formula))
-    # compounds the demo library does not hold (invented positions)
-    for ri, formula, hit in [(1114.0, "C10H16O", "unknown monoterpenoid"), (1398.0, "C15H24", ""),
-                             (1611.0, "C15H26O", "")]:
-        peaks.append((ri, None, formula))
+        peaks.append((centre + 3.0 + rng.normal(0, 1.5), name, obs[0].formula, percent))
+    # compounds the demo library does not hold (invented positions and shares)
+    for ri, formula, percent in [(1114.0, "C10H16O", 0.4), (1398.0, "C15H24", 0.6), (1611.0, "C15H26O", 0.3)]:
+        peaks.append((ri, None, formula, percent))
     peaks.sort()
     with open(os.path.join(HERE, "run.csv"), "w", newline="", encoding="utf-8") as fh:
         fh.write(HEADER)
         w = csv.writer(fh)
         w.writerow(["Peak #", "Ret. time (min)", "M+", "Library hit", "Match", "Area"])
-        for k, (ri, name, formula) in enumerate(peaks, start=1):
+        for k, (ri, name, formula, percent) in enumerate(peaks, start=1):
             t = float(np.interp(ri, 100.0 * carbons, ladder_time(100.0 * carbons)))
             mol = nominal_mass(formula) if formula and rng.random() < 0.85 else ""
             hit, score = "", ""
             if name and rng.random() < 0.5:
                 hit, score = name, int(rng.integers(72, 96))
-            w.writerow([k, f"{t:.3f}", mol, hit, score, int(rng.integers(2_000, 900_000))])
+            area = int(round(TOTAL_AREA * percent / 100.0 * (1.0 + rng.normal(0, 0.04))))
+            w.writerow([k, f"{t:.3f}", mol, hit, score, area])
 
 
 if __name__ == "__main__":

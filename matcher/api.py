@@ -162,12 +162,16 @@ class Library:
 
     def confirm(self, results: str | os.PathLike, peak: Any, name: str, *, run: str | None = None,
                 source: str | None = None, analyst: str | None = None, force: bool = False, new: bool = False,
-                as_existing: str | None = None, measured: bool = False, ask: Callable | None = None):
-        """Add a peak of a screening output confirmed with a standard (``matcher confirm``)."""
+                as_existing: str | None = None, measured: bool = False, ask: Callable | None = None,
+                cas: str | None = None, formula: str | None = None, phase: str | None = None):
+        """Add a peak of a screening output confirmed with a standard (``matcher confirm``).
+
+        ``cas``, ``formula`` and ``phase`` are recorded with the compound and observation, as for :meth:`add`."""
         from matcher.curate.library_edits import confirm_from_results
 
         return confirm_from_results(self.db, results, peak, name, run=run, source=source, analyst=analyst,
-                                    force=force, new=new, as_existing=as_existing, measured=measured, ask=ask)
+                                    force=force, new=new, as_existing=as_existing, measured=measured, ask=ask,
+                                    cas=cas, formula=formula, phase=phase)
 
     def retire(self, observation: int, why: str, *, analyst: str | None = None) -> dict:
         """Stop using an observation (the row stays, with the reason)."""
@@ -311,16 +315,17 @@ def read_peaks(path: Any, *, rt_unit: str | None = None, header_map: dict[str, s
     return _read_peaks(path, rt_unit=rt_unit, overrides=header_map)
 
 
-def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any = None, library: Any = None,
+def screen(peaks: Any, *, phase_class: str | Sequence[str], calibration: Any = None, ladder: Any = None, library: Any = None,
            mode: str = "programmed", dead_time: float | None = None, rt_unit: str | None = None,
            header_map: dict[str, str] | None = None, window: float | None = None,
            window_percent: float | None = None, top: int | None = None, fallback: bool = False,
            homologues: bool = False, adaptive: bool = False, anchors: str | os.PathLike | None = None,
-           measurement_sd: float | None = None, crowding: str | float | None = None, split_peaks: bool = False,
-           labels: Sequence[str] | None = None, progress: Callable[[int], None] | None = None,
-           min_snr: float | None = None, output: str | os.PathLike | None = None,
-           report: str | os.PathLike | None = None) -> "ScreenResult":
-    """Shortlist every peak of one run, or of a batch, against one class of the library.
+           index_scatter: float | None = None, crowding: str | float | None = None, split_peaks: bool = False,
+           labels: Sequence[str] | None = None, sample: str | None = None, analyst: str | None = None,
+           instrument: str | None = None, column: str | None = None,
+           progress: Callable[[int], None] | None = None, min_snr: float | None = None,
+           output: str | os.PathLike | None = None, report: str | os.PathLike | None = None) -> "ScreenResult":
+    """Shortlist every peak of one run, or of a batch, against the library.
 
     ``peaks``: a peak table (path, DataFrame or :class:`~matcher.io.peak_tables.PeakTable`)
     or a list of them. Times become indices through ``calibration`` (a
@@ -333,7 +338,10 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
     screen`` writes. ``crowding`` is the prior on compounds not in the library
     (``sparse``, ``moderate``, ``crowded``, ``dense`` or unlisted peaks per 100
     index units; the run refines it); ``split_peaks=True`` lets one compound
-    explain several peaks. A path whose content is a GC-MS run file (ASTM
+    explain several peaks. ``phase_class`` is one polarity class for all runs or a list with one
+    per run, in order. ``sample``, ``analyst``, ``instrument`` and ``column`` go into every
+    output's provenance and the report header (a peak table's preamble fills what is not given).
+    A path whose content is a GC-MS run file (ASTM
     E2077 netCDF or mzML) stands for a peak table: its peaks are detected
     (``min_snr``, see :func:`detect_peaks`) and their spectra and molecular-ion
     hints go into the screen; ``ladder`` may be the ladder's run file.
@@ -353,7 +361,8 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
                        dead_time=dead_time, rt_unit=rt_unit, header_map=header_map, window=window,
                        window_percent=window_percent, top=top, fallback=fallback, homologues=homologues,
                        adaptive=adaptive, anchors=None if anchors is None else os.fspath(anchors),
-                       measurement_sd=measurement_sd, crowding=crowding, split_peaks=split_peaks, labels=labels,
+                       index_scatter=index_scatter, crowding=crowding, split_peaks=split_peaks, labels=labels,
+                       record={"sample": sample, "analyst": analyst, "instrument": instrument, "column": column},
                        progress=progress, min_snr=min_snr, sink=sink)
 
     if output is None and report is None:
@@ -368,7 +377,7 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
     if report is not None:
         check_report_path(report)
     csv_out = output is not None and os.fspath(output).lower().endswith(".csv")
-    outs = [("-o", output)] + ([("-o (its provenance sidecar)", str(sidecar_path(output)))] if csv_out else [])
+    outs = [("-o/--output", output)] + ([("-o/--output (its provenance sidecar)", str(sidecar_path(output)))] if csv_out else [])
     listed = peaks if isinstance(peaks, (list, tuple)) else [peaks]
     extra = lambda what, v: [(what, x) for x in (v if isinstance(v, (list, tuple)) else [v])  # noqa: E731
                              if isinstance(x, (str, os.PathLike))]
@@ -404,13 +413,13 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
 
 def query(ri: float, phase_class: str, *, library: Any = None, window: float | None = None,
           window_percent: float | None = None, mol_ion: float | None = None, ions: Any = None,
-          hit: str | None = None, hit_score: float | None = None, top: int | None = None,
-          fallback: bool = False, homologues: bool = False, measurement_sd: float | None = None,
+          hit: str | None = None, hit_match: float | None = None, top: int | None = None,
+          fallback: bool = False, homologues: bool = False, index_scatter: float | None = None,
           crowding: str | float | None = None) -> "QueryResult":
     """Ranked candidates for one retention index; returns a :class:`~matcher.identify.query.QueryResult`.
 
     ``ions`` are key ions (whole m/z: a list or text such as ``"93 136"``);
-    ``hit`` and ``hit_score`` (0-100) are your spectral search's proposal.
+    ``hit`` and ``hit_match`` (0-100) are your spectral search's proposal.
     ``result.candidates`` lists records in rank order, ``result.table`` the
     same as a DataFrame, ``result.to_dict()`` is the ``matcher query --json``
     document.
@@ -418,8 +427,8 @@ def query(ri: float, phase_class: str, *, library: Any = None, window: float | N
     from matcher.identify.query import query as _query
 
     return _query(ri, phase_class, **_source(library), window=window, window_percent=window_percent,
-                  mol_ion=mol_ion, ions=ions, hit=hit, hit_score=hit_score, top=top, fallback=fallback,
-                  homologues=homologues, measurement_sd=measurement_sd, crowding=crowding)
+                  mol_ion=mol_ion, ions=ions, hit=hit, hit_match=hit_match, top=top, fallback=fallback,
+                  homologues=homologues, index_scatter=index_scatter, crowding=crowding)
 
 
 @dataclass

@@ -27,6 +27,11 @@ class DemoOutcome:
     result: object  # ScreenResult
 
 
+#: The demo's QC-record facts (invented, like every number of the demo).
+DEMO_RECORD = {"sample": "juniper-berry oil, incoming lot JB-0412 (demo, invented)", "analyst": "demo analyst",
+               "instrument": "GC-MS 2 (demo)", "column": "5 % phenyl / 95 % dimethylpolysiloxane, 30 m × 0.25 mm × 0.25 µm"}
+
+
 def run_demo(out_dir: str = "matcher-demo") -> DemoOutcome:
     """Run the demo into ``out_dir`` (created if needed; earlier demo files there are replaced)."""
     from matcher.retention.calibration import calibrate
@@ -57,7 +62,8 @@ def run_demo(out_dir: str = "matcher-demo") -> DemoOutcome:
         import_library(db_path, str(lib_csv), who="matcher demo")
         cal = calibrate(read_ladder(str(ladder_csv)))
         cal.save(cal_path)
-        result = screen([str(run_csv)], DEMO_CLASS, db=db_path, calibration=cal_path, adaptive=True, top=3)
+        result = screen([str(run_csv)], DEMO_CLASS, db=db_path, calibration=cal_path, adaptive=True, top=3,
+                        record=DEMO_RECORD)
     for run in result.runs:
         run.source = "examples/run.csv"
     write_results(result, csv_path)

@@ -10,7 +10,7 @@ from a file, with the same one-line message (raised as
 >>> check_sd(float("nan"))
 Traceback (most recent call last):
 ...
-matcher.errors.MatcherError: --sd must be a finite number greater than 0 (index units), got nan
+matcher.errors.MatcherError: --index-scatter must be a finite number greater than 0 (index units), got nan
 >>> check_mol_ion(136.0)
 136
 >>> check_mol_ion(136.5)
@@ -40,7 +40,7 @@ MAX_RT_MIN = 10_000.0
 MAX_RI = 10_000.0
 #: m/z of molecular and key ions: whole numbers 1 to this.
 MAX_MZ = 5_000
-#: Index scatter (``--sd``, a library ``ri_sd``): finite, > 0 (files: >= 0), at most this many index units.
+#: Index scatter (``--index-scatter``, a library ``ri_sd``): finite, > 0 (files: >= 0), at most this many index units.
 MAX_SD = 1_000.0
 #: ``n`` of a library summary (how many measurements an observation stands for): 1 to this.
 MAX_N = 1_000_000
@@ -69,7 +69,7 @@ def _number(value: Any) -> float | None:
         return None
 
 
-def check_sd(value: Any, option: str = "--sd") -> float:
+def check_sd(value: Any, option: str = "--index-scatter") -> float:
     """An index scatter: finite, greater than 0, at most :data:`MAX_SD`."""
     v = _number(value)
     if v is None or not math.isfinite(v) or v <= 0:

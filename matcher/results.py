@@ -14,8 +14,8 @@ lists candidates. A :class:`ScreenResult` writes itself
 shows all runs as one DataFrame (:attr:`ScreenResult.table`).
 
 >>> row = {"rank": 1, "name": "limonene", "cas": "", "formula": "C10H16", "nominal_mass": 136.0,
-...        "library_ri": 1030.0, "library_sd": 1.5, "library_n": 4, "delta_ri": 1.0, "score": 2.5,
-...        "probability": 0.8, "ev_index": 1.2, "ev_mol_ion": 1.3, "ev_ions": 0.0, "ev_hit": 0.0}
+...        "library_ri": 1030.0, "library_spread": 1.5, "library_observations": 4, "delta_ri": 1.0, "score": 2.5,
+...        "probability": 0.8, "evidence_index": 1.2, "evidence_mol_ion": 1.3, "evidence_ions": 0.0, "evidence_hit": 0.0}
 >>> rec = candidate_record(row.get, ["in-window"])
 >>> rec["cas"], rec["nominal_mass"], rec["flags"], rec["evidence"]
 (None, 136, ['in-window'], {'index': 1.2, 'mol_ion': 1.3, 'ions': 0.0, 'hit': 0.0})
@@ -46,31 +46,57 @@ DETAIL_COLUMNS: tuple[str, ...] = (
     "run",              # run label (peak file stem)
     "ri_measured",      # index before the adaptive correction (equals ri when none)
     "not_in_library",   # posterior that the peak is none of the listed library compounds
+    "area",             # peak area as given in the peak table
+    "area_percent",     # the peak's share of the run's summed area, per cent (given, else computed from area)
     "formula",
     "nominal_mass",
-    "library_sd",       # spread of the library entry used in the index likelihood
-    "library_n",        # number of observations behind the entry
-    "mol_ion", "hit", "hit_score",
-    "ev_index",         # log likelihood ratio of the index deviation (vs not-in-library)
-    "ev_mol_ion",       # log LR of the molecular-ion hint
-    "ev_ions",          # log LR of the key-ion hint
-    "ev_hit",           # log LR of the spectral-search name hint
+    "library_spread",       # spread of the library entry used in the index likelihood
+    "library_observations",        # number of observations behind the entry
+    "mol_ion", "hit", "hit_match",
+    "evidence_index",         # log likelihood ratio of the index deviation (vs not-in-library)
+    "evidence_mol_ion",       # log LR of the molecular-ion hint
+    "evidence_ions",          # log LR of the key-ion hint
+    "evidence_hit",           # log LR of the spectral-search name hint
 )
 
 
 #: The evidence columns (natural-log likelihood ratios against not-in-library); a
-#: candidate record's ``evidence`` object holds them without the ``ev_`` prefix.
-EVIDENCE_COLUMNS: tuple[str, ...] = ("ev_index", "ev_mol_ion", "ev_ions", "ev_hit")
+#: candidate record's ``evidence`` object holds them without the ``evidence_`` prefix.
+EVIDENCE_COLUMNS: tuple[str, ...] = ("evidence_index", "evidence_mol_ion", "evidence_ions", "evidence_hit")
+
+#: Prefix of the evidence columns; a candidate record's ``evidence`` object holds them without it.
+EVIDENCE_PREFIX = "evidence_"
+
+
+def evidence_key(column: str) -> str:
+    """The key of an evidence column in a candidate's ``evidence`` object.
+
+    >>> evidence_key("evidence_mol_ion")
+    'mol_ion'
+    """
+    return column[len(EVIDENCE_PREFIX):] if column.startswith(EVIDENCE_PREFIX) else column
+
 
 #: Keys of one candidate record (query and screen JSON), in order; then ``flags`` and ``evidence``.
-CANDIDATE_KEYS: tuple[str, ...] = ("rank", "name", "cas", "formula", "nominal_mass", "library_ri", "library_sd",
-                                   "library_n", "delta_ri", "score", "probability")
+CANDIDATE_KEYS: tuple[str, ...] = ("rank", "name", "cas", "formula", "nominal_mass", "library_ri", "library_spread",
+                                   "library_observations", "delta_ri", "score", "probability")
 
 #: Keys of one peak in the screen JSON, in order; then ``flags`` and ``candidates``.
-PEAK_KEYS: tuple[str, ...] = ("peak", "rt", "ri", "ri_measured", "class", "mol_ion", "hit", "hit_score",
-                              "not_in_library")
+PEAK_KEYS: tuple[str, ...] = ("peak", "rt", "ri", "ri_measured", "class", "area", "area_percent", "mol_ion", "hit",
+                              "hit_match", "not_in_library")
 
-_INTEGER_KEYS = ("rank", "library_n", "nominal_mass")
+#: Facts of the sample and its run for the QC record (``matcher screen --sample --analyst --instrument
+#: --column``, or the peak table's preamble), in display order, with their labels in reports and sheets.
+RECORD_FIELDS: dict[str, str] = {
+    "sample": "sample / lot",
+    "analyst": "analyst",
+    "instrument": "instrument",
+    "column": "column",
+    "acquired": "acquired",
+    "method": "acquisition method",
+}
+
+_INTEGER_KEYS = ("rank", "library_observations", "nominal_mass")
 _TEXT_OR_NONE = ("cas", "formula")
 
 
@@ -105,8 +131,8 @@ def candidate_record(get: Callable[[str], Any], flags: Iterable[str], *,
     ``get(column)`` returns the row's value of an output column (for example
     ``row.get`` of a record, or ``lambda c: columns[c][i]``). Keys:
     :data:`CANDIDATE_KEYS`, ``flags`` (a list), ``evidence`` (the evidence
-    columns without ``ev_``), then any ``extra`` columns. Empty CAS numbers and
-    formulas become ``None``; ``rank``, ``library_n`` and ``nominal_mass`` are
+    columns without ``evidence_``), then any ``extra`` columns. Empty CAS numbers and
+    formulas become ``None``; ``rank``, ``library_observations`` and ``nominal_mass`` are
     integers.
     """
     rec: dict[str, Any] = {}
@@ -118,7 +144,7 @@ def candidate_record(get: Callable[[str], Any], flags: Iterable[str], *,
             v = int(v)
         rec[key] = v
     rec["flags"] = list(flags)
-    rec["evidence"] = {c[3:]: plain(get(c)) for c in evidence_columns}
+    rec["evidence"] = {evidence_key(c): plain(get(c)) for c in evidence_columns}
     for c in extra:
         rec[c] = plain(get(c))
     return rec
@@ -135,7 +161,7 @@ class RunResult:
     table: Any                       # pandas.DataFrame, columns SHORTLIST_COLUMNS + DETAIL_COLUMNS
     calibration: dict[str, Any] | None = None   # the calibration document used (None when the table had ri)
     correction: dict[str, Any] | None = None    # adaptive fit, see matcher.identify.adaptive
-    measurement_sd: float | None = None          # index scatter assumed for this run
+    index_scatter: float | None = None          # index scatter assumed for this run
     run_model: dict[str, Any] = field(default_factory=dict)  # fitted in-library share and scatter, see matcher.identify.run_model
     notices: list[str] = field(default_factory=list)
     peak_count: int = 0
@@ -144,6 +170,14 @@ class RunResult:
     checksum: str = ""               # SHA-256 of the peak table's normalised content (matcher.io.peak_tables.content_checksum)
     #: a run file's decimated TIC and detected peaks, for the report (matcher.signal.run_peaks); None for a peak table
     chromatogram: dict[str, Any] | None = None
+    record: dict[str, Any] = field(default_factory=dict)  # RECORD_FIELDS given or read from the preamble, and 'preamble'
+    rt_decimals: dict[str, int] = field(default_factory=dict)  # peak id -> decimals its time was given with
+
+    def time_text(self, peak: Any, minutes: Any) -> str:
+        """The peak's retention time as text, as precise as it was given (see matcher.report.wording.format_time)."""
+        from matcher.report.wording import format_time
+
+        return format_time(minutes, self.rt_decimals.get(str(peak)))
 
 
 @dataclass

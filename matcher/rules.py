@@ -15,7 +15,7 @@ time units          :data:`RT_UNITS`, :func:`check_rt_unit`
 index range         0 .. :data:`RI_MAX` (10,000), :func:`check_ri` (from :mod:`matcher.limits`)
 time range          :data:`MAX_RT_MIN` (10,000 min, from :mod:`matcher.limits`)
 ion m/z             whole numbers 1 .. :data:`MAX_MZ` (:mod:`matcher.limits`), :func:`check_ions`
-spectral-hit score  :data:`HIT_SCORE_RANGE` (0-100), :func:`check_hit_score`
+spectral-hit score  :data:`HIT_SCORE_RANGE` (0-100), :func:`check_hit_match`
 candidates kept     top >= 1, :func:`check_top`
 window              > 0 and finite index units, or 0 < percent <= :data:`WINDOW_PERCENT_MAX`,
                     not both: :func:`check_window`
@@ -41,10 +41,10 @@ matcher.errors.MatcherError: --top must be at least 1
 Traceback (most recent call last):
 ...
 matcher.errors.MatcherError: --ions: an m/z must be a whole number from 1 to 5000, got 93.7
->>> check_hit_score(500)
+>>> check_hit_match(500)
 Traceback (most recent call last):
 ...
-matcher.errors.MatcherError: --hit-score must be between 0 and 100, got 500
+matcher.errors.MatcherError: --hit-match must be between 0 and 100, got 500
 """
 
 from __future__ import annotations
@@ -225,14 +225,14 @@ def check_ions(ions: Any, option: str = "--ions") -> tuple[int, ...] | None:
     return tuple(out) or None
 
 
-def check_hit_score(score: Any) -> float | None:
+def check_hit_match(score: Any) -> float | None:
     """A spectral-search score within 0-100 (``None``: not given)."""
     if score is None:
         return None
     lo, hi = HIT_SCORE_RANGE
-    v = _number(score, "--hit-score", f"between {lo:g} and {hi:g}")
+    v = _number(score, "--hit-match", f"between {lo:g} and {hi:g}")
     if not lo <= v <= hi:
-        raise MatcherError(f"--hit-score must be between {lo:g} and {hi:g}, got {_fmt(score)}")
+        raise MatcherError(f"--hit-match must be between {lo:g} and {hi:g}, got {_fmt(score)}")
     return v
 
 
@@ -291,11 +291,41 @@ def check_report_path(path: Any, option: str = "--report") -> str:
     return os.fspath(path)
 
 
+#: Options of the QC record (``matcher screen --sample --analyst --instrument --column``).
+RECORD_OPTIONS = ("sample", "analyst", "instrument", "column")
+
+
+def check_record(record: Any) -> dict[str, str]:
+    """The QC-record facts given to ``screen``: known keys only, one line of text each, at most 1,000 characters.
+
+    >>> check_record({"sample": " juniper-berry oil, lot JB-0412 ", "analyst": None})
+    {'sample': 'juniper-berry oil, lot JB-0412'}
+    >>> check_record({"lot": "7"})
+    Traceback (most recent call last):
+    ...
+    matcher.errors.MatcherError: unknown record field 'lot'; known: sample, analyst, instrument, column
+    """
+    from matcher.limits import MAX_CELL as MAX_TEXT
+
+    out: dict[str, str] = {}
+    for key, value in (record or {}).items():
+        if key not in RECORD_OPTIONS:
+            raise MatcherError(f"unknown record field {key!r}; known: {', '.join(RECORD_OPTIONS)}")
+        if value is None:
+            continue
+        text = " ".join(str(value).split())
+        if len(text) > MAX_TEXT:
+            raise MatcherError(f"--{key} is longer than {MAX_TEXT} characters")
+        if text:
+            out[key] = text
+    return out
+
+
 __all__ = [
     "PHASE_CLASSES", "CLASS_ALIASES", "MODES", "MODE_ALIASES", "RT_UNITS", "RT_UNIT_ALIASES",
     "RI_MAX", "MAX_RT_MIN", "MAX_MZ", "HIT_SCORE_RANGE", "WINDOW_PERCENT_MAX", "NOISE_MAX",
     "SHORTLIST_SUFFIXES", "REPORT_SUFFIXES",
-    "choice", "check_class", "check_mode", "check_rt_unit", "check_ri", "check_top", "check_window",
-    "check_ions", "check_hit_score", "check_noise", "check_shortlist_path", "check_report_path",
+    "RECORD_OPTIONS", "check_record", "choice", "check_class", "check_mode", "check_rt_unit", "check_ri", "check_top", "check_window",
+    "check_ions", "check_hit_match", "check_noise", "check_shortlist_path", "check_report_path",
     "MIN_SNR_RANGE", "check_min_snr", "check_carbons",
 ]

@@ -28,7 +28,7 @@ HOSTILE_NAMES = (
 
 
 def _row(run, peak, rt, ri, cls, rank, name, cas, lib_ri, score, prob, flags, nil,
-         formula="", mass=None, sd=None, n=None, mol_ion=None, hit="", hit_score=None,
+         formula="", mass=None, sd=None, n=None, mol_ion=None, hit="", hit_match=None,
          ev=(0.0, 0.0, 0.0, 0.0), ri_measured=None):
     delta = (ri - lib_ri) if lib_ri is not None else None
     return {
@@ -37,20 +37,39 @@ def _row(run, peak, rt, ri, cls, rank, name, cas, lib_ri, score, prob, flags, ni
         "probability": prob, "flags": flags, "run": run,
         "ri_measured": ri if ri_measured is None else ri_measured,
         "not_in_library": nil, "formula": formula, "nominal_mass": mass,
-        "library_sd": sd, "library_n": n, "mol_ion": mol_ion, "hit": hit,
-        "hit_score": hit_score, "ev_index": ev[0], "ev_mol_ion": ev[1],
-        "ev_ions": ev[2], "ev_hit": ev[3],
+        "library_spread": sd, "library_observations": n, "mol_ion": mol_ion, "hit": hit,
+        "hit_match": hit_match, "evidence_index": ev[0], "evidence_mol_ion": ev[1],
+        "evidence_ions": ev[2], "evidence_hit": ev[3],
     }
+
+
+def _calibration(ladder, mode, rt, carbons, names):
+    """A real calibration document, fitted by matcher from an invented ladder."""
+    import numpy as np
+
+    from matcher.retention.calibration import calibrate
+    from matcher.retention.ladder import Ladder
+
+    lad = Ladder(ladder, "alkanes", np.array(rt, float), np.array(carbons, float) * 100.0, list(names),
+                 np.array(carbons, float), np.arange(1, len(rt) + 1))
+    doc = calibrate(lad, mode=mode).to_dict()
+    doc["created"] = "2026-03-14T09:00:00Z"
+    return doc
+
+
+def _anchor(peak, name, measured, library, residual):
+    return {"peak": peak, "name": name, "ri_measured": measured, "library_ri": library,
+            "delta_ri": round(measured - library, 6), "residual": residual, "kept": residual is not None}
 
 
 def _table(rows):
     frame = pd.DataFrame(rows, columns=list(SHORTLIST_COLUMNS + DETAIL_COLUMNS))
     frame["rank"] = frame["rank"].astype("Int64")
-    for col in ("library_n", "nominal_mass"):
+    for col in ("library_observations", "nominal_mass"):
         frame[col] = frame[col].astype("Int64")
     for col in ("rt", "ri", "library_ri", "delta_ri", "score", "probability", "ri_measured",
-                "not_in_library", "library_sd", "mol_ion", "hit_score",
-                "ev_index", "ev_mol_ion", "ev_ions", "ev_hit"):
+                "not_in_library", "library_spread", "mol_ion", "hit_match",
+                "evidence_index", "evidence_mol_ion", "evidence_ions", "evidence_hit"):
         frame[col] = frame[col].astype(float)
     return frame
 
@@ -70,55 +89,33 @@ def _juniper_run(names):
              "C10H16", 136, 2.5, 12, 136, "", None, (1.40, 0.9, 0.0, 0.0), 1027.2),
         _row(run, "P3", 8.011, 1029.4, cls, 2, names[2], "470-82-6", 1031.0, 1.10, 0.4000, "in-window;ambiguous;mass-mismatch;review", 0.0500,
              "C10H18O", 154, 2.5, 7, 136, "", None, (1.30, -2.3, 0.0, 0.0), 1027.2),
-        _row(run, "P4", 10.250, 1212.3, cls, None, "", "", None, None, None, "no-candidate;likely-unlisted;review", 1.0,
+        _row(run, "P4", 10.250, 1212.3, cls, None, "", "", None, None, None, "no-candidate;likely-not-in-library;review", 1.0,
              mol_ion=150, ri_measured=1210.0),
-        _row(run, "P5", 14.870, 1457.8, cls, 1, names[3], "6753-98-6", 1454.0, 1.75, 0.6200, "window-edge;single-record;extrapolated;review", 0.3800,
+        _row(run, "P5", 14.870, 1457.8, cls, 1, names[3], "6753-98-6", 1454.0, 1.75, 0.6200, "window-edge;single-observation;extrapolated;review", 0.3800,
              "C15H24", 204, 3.5, 1, 204, "humulene", 72.0, (0.45, 0.9, 0.0, 0.5), 1455.1),
     ]
-    calibration = {
-        "series": "n-alkanes",
-        "mode": "programmed",
-        "holdup": {"method": "user", "minutes": 1.12},
-        "standards": [
-            {"name": "octane (C8)", "rt": 3.05, "index": 800.0},
-            {"name": "nonane (C9)", "rt": 5.21, "index": 900.0},
-            {"name": "decane (C10)", "rt": 7.55, "index": 1000.0},
-            {"name": "undecane (C11)", "rt": 9.80, "index": 1100.0},
-            {"name": names[4], "rt": 11.92, "index": 1200.0},
-            {"name": "tridecane (C13)", "rt": 13.90, "index": 1300.0},
-            {"name": "tetradecane (C14)", "rt": 14.60, "index": 1400.0},
-        ],
-        "qc": {
-            "checks": [
-                {"check": "retention rises with index", "status": "pass", "detail": "7 standards in order"},
-                {"check": "spacing trend", "status": "warn", "detail": f"C14 spacing 0.70 min after 1.98 min ({names[0]})"},
-                {"check": "coverage", "status": "pass", "detail": "800 to 1400"},
-                {"check": "hold-up time", "status": "fail", "detail": "given by the user, not checked"},
-            ],
-            "residuals": [0.0, 1.2, -0.8, 0.4, -1.1, 0.9, -3.4],
-            "range": [800.0, 1400.0],
-            "gaps": [],
-        },
-    }
+    # C11 is mislabelled on purpose (its time belongs between C10 and C12 unevenly): the ladder check warns
+    calibration = _calibration("juniper-ladder.csv", "programmed",
+                               [3.05, 5.21, 7.55, 8.60, 11.92, 13.90, 15.80], [8, 9, 10, 11, 12, 13, 14],
+                               ["octane (C8)", "nonane (C9)", "decane (C10)", "undecane (C11)", names[4],
+                                "tridecane (C13)", "tetradecane (C14)"])
     correction = {
         "applied": True,
         "method": "theil-sen",
-        "a": 0.0051,
-        "b": -2.64,
+        "source": "confident matches",
+        "slope": -0.0051,
+        "offset": 2.64,
+        "coarse_offset": 2.0,
         "scatter": 0.6,
         "notice": "",
-        "anchors": [
-            {"peak": "P1", "name": names[0], "ri_measured": 929.9, "ri_reference": 932.0, "residual": 0.0},
-            {"peak": "P2", "name": "myrcene", "ri_measured": 987.0, "ri_reference": 990.0, "residual": 0.6},
-            {"peak": "P3", "name": names[1], "ri_measured": 1027.2, "ri_reference": 1030.0, "residual": 0.2},
-            {"peak": "P7", "name": "beta-caryophyllene", "ri_measured": 1415.2, "ri_reference": 1419.0, "residual": -0.8},
-            {"peak": "P8", "name": "delta-cadinene", "ri_measured": 1518.9, "ri_reference": 1524.0, "residual": 0.0},
-        ],
+        "anchors": [_anchor("P1", names[0], 929.9, 932.0, 0.0), _anchor("P2", "myrcene", 987.0, 990.0, -0.6),
+                    _anchor("P3", names[1], 1027.2, 1030.0, -0.2), _anchor("P7", "beta-caryophyllene", 1415.2, 1419.0, 0.8),
+                    _anchor("P8", "delta-cadinene", 1518.9, 1524.0, 0.0)],
     }
     return RunResult(
         source=f"incoming/{run}.csv", label=run, phase_class=cls,
         window={"mode": "fixed", "value": 10.0}, table=_table(rows),
-        calibration=calibration, correction=correction, measurement_sd=0.6,
+        calibration=calibration, correction=correction, index_scatter=0.6,
         notices=[f"adaptive correction used 5 anchors ({names[3]} kept for review)"], peak_count=5,
     )
 
@@ -133,42 +130,29 @@ def _coriander_run(names):
              "C10H18O", 154, 5.0, 3, None, "", None, (1.1, 0.0, 0.0, 0.0)),
         _row(run, 2, 15.95, 1699.0, cls, 2, "borneol", "507-70-0", 1709.0, 0.9, 0.2300, "window-edge;cross-class;ambiguous;review", 0.3000,
              "C10H18O", 154, 5.0, 3, None, "", None, (0.4, 0.0, 0.0, 0.0)),
-        _row(run, 3, 20.10, 1905.0, cls, None, "", "", None, None, None, "no-candidate;likely-unlisted;review", 1.0),
+        _row(run, 3, 20.10, 1905.0, cls, None, "", "", None, None, None, "no-candidate;likely-not-in-library;review", 1.0),
     ]
-    calibration = {
-        "series": "n-alkanes",
-        "mode": "isothermal",
-        "holdup": {"method": "peterson-hirsch", "minutes": 1.40},
-        "standards": [
-            {"name": "tetradecane (C14)", "rt": 8.10, "index": 1400.0},
-            {"name": "hexadecane (C16)", "rt": 13.70, "index": 1600.0},
-            {"name": "octadecane (C18)", "rt": 19.20, "index": 1800.0},
-            {"name": "eicosane (C20)", "rt": 30.90, "index": 2000.0},
-        ],
-        "qc": {
-            "checks": [
-                {"check": "retention rises with index", "status": "pass", "detail": "4 standards in order"},
-                {"check": "gaps", "status": "warn", "detail": "no odd alkanes; steps of 200"},
-            ],
-            "range": [1400.0, 2000.0],
-            "gaps": [[1400.0, 1600.0], [1600.0, 1800.0], [1800.0, 2000.0]],
-        },
-    }
+    # isothermal: hold-up time fitted over the ladder; heptadecane (C17) is missing, a gap
+    t_m = 1.40
+    iso = [t_m + 6.7 * 1.8 ** ((c - 14)) for c in (14, 15, 16, 18, 19)]
+    calibration = _calibration("coriander-ladder.csv", "isothermal", [round(t, 3) for t in iso], [14, 15, 16, 18, 19],
+                               ["tetradecane (C14)", "pentadecane (C15)", "hexadecane (C16)", "octadecane (C18)",
+                                "nonadecane (C19)"])
     correction = {
         "applied": False,
         "method": "theil-sen",
-        "a": None,
-        "b": None,
+        "source": "confident matches",
+        "slope": None,
+        "offset": None,
+        "coarse_offset": 0.0,
         "scatter": None,
-        "notice": "skipped: 1 confident anchor, at least 5 spread over the range are needed",
-        "anchors": [
-            {"peak": 1, "name": "linalool", "ri_measured": 1548.2, "ri_reference": 1547.0, "residual": math.nan},
-        ],
+        "notice": "not applied: 1 confident anchor, at least 5 spread over the range are needed",
+        "anchors": [_anchor(1, "linalool", 1548.2, 1547.0, None)],
     }
     return RunResult(
         source=f"incoming/{run}.csv", label=run, phase_class=cls,
         window={"mode": "fixed", "value": 20.0}, table=_table(rows),
-        calibration=calibration, correction=correction, measurement_sd=None,
+        calibration=calibration, correction=correction, index_scatter=None,
         notices=[], peak_count=3,
     )
 

@@ -142,7 +142,7 @@ def test_key_ions_and_spectral_hit_raise_the_named_candidate():
     ions = {c["name"]: c for c in query(929, "slightly-polar", snapshot=snap, ions=[93, 91, 77])["candidates"]}
     assert ions["alpha-thujene"]["probability"] > base["alpha-thujene"]
     assert "ions-agree" in ions["alpha-thujene"]["flags"]
-    hit = {c["name"]: c for c in query(929, "slightly-polar", snapshot=snap, hit="α-Thujene", hit_score=90)["candidates"]}
+    hit = {c["name"]: c for c in query(929, "slightly-polar", snapshot=snap, hit="α-Thujene", hit_match=90)["candidates"]}
     assert hit["alpha-thujene"]["evidence"]["hit"] > 0 and "hit-agrees" in hit["alpha-thujene"]["flags"]
     assert hit["alpha-pinene"]["evidence"]["hit"] == 0
 

@@ -1,6 +1,6 @@
 """``matcher confirm`` and ``matcher library add|history|retire|merge|backup`` on the command line.
 
-Index values near the published DB-5 values of Adams, Identification of Essential Oil
+Index values near the published values on a 5 % phenyl (slightly-polar) column in Adams, Identification of Essential Oil
 Components by GC/MS, 4th ed. (2007) (from memory: limonene 1024); CAS 138-86-3 is limonene's
 registry number.
 """

@@ -42,7 +42,7 @@ def demo_url(library_url, demo_csv):
 ])
 def test_find_tolerates_typos_and_variants(demo_url, query, expected):
     hits = find(demo_url, query, limit=3)
-    assert hits and hits[0].name == expected, [(h.name, h.score) for h in hits]
+    assert hits and hits[0].name == expected, [(h.name, h.name_similarity) for h in hits]
 
 
 def test_find_by_formula_lists_isomers(demo_url):

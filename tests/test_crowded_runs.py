@@ -192,8 +192,8 @@ def test_a_hit_naming_a_compound_outside_the_library_is_evidence_for_unlisted():
 
     snap = synthetic_snapshot([1000.0], phase_class="nonpolar", names=["alpha-pinene"])
     base = query(1000.0, "nonpolar", snapshot=snap).not_in_library
-    other = query(1000.0, "nonpolar", snapshot=snap, hit="sabinene", hit_score=90).not_in_library
-    named = query(1000.0, "nonpolar", snapshot=snap, hit="a-pinene", hit_score=90).not_in_library
+    other = query(1000.0, "nonpolar", snapshot=snap, hit="sabinene", hit_match=90).not_in_library
+    named = query(1000.0, "nonpolar", snapshot=snap, hit="a-pinene", hit_match=90).not_in_library
     assert named < base < other
 
 

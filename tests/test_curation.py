@@ -1,7 +1,7 @@
 """Curation API (matcher.curate.library_edits): adding confirmed compounds, the outlier guard, confirm from
 screening outputs, history, retire, merge, backup, and concurrent writers.
 
-Retention indices used as "confirmed" values are close to the published DB-5 values of
+Retention indices used as "confirmed" values are close to the published values on a 5 % phenyl (slightly-polar) column in
 Adams, Identification of Essential Oil Components by GC/MS, 4th ed. (2007) (from memory:
 limonene 1024, alpha-pinene 932, gamma-terpinene 1054); CAS numbers are the registry's
 (limonene 138-86-3, alpha-pinene 80-56-8), whose check digits the CAS rule verifies.

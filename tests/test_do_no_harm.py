@@ -451,9 +451,11 @@ def test_hand_edited_results_for_confirm(lab, tmp_path):
 def test_scatter_must_be_finite_and_positive(lab, tmp_path, sd):
     out = tmp_path / "o.csv"
     refused(run_in(["screen", lab["run"], "--calibration", lab["cal"], "--class", "nonpolar", "-o", out,
-                    "--sd", sd, "--db", lab["db"], "-q"]), "--sd")
+                    "--index-scatter", sd, "--db", lab["db"], "-q"]), "--index-scatter")
     assert not out.exists()
-    refused(run_in(["query", "1000", "--class", "nonpolar", "--sd", sd, "--db", lab["db"]]), "--sd")
+    refused(run_in(["query", "1000", "--class", "nonpolar", "--index-scatter", sd, "--db", lab["db"]]), "--index-scatter")
+    # the old spelling still works as a hidden alias, under the same rule
+    refused(run_in(["query", "1000", "--class", "nonpolar", "--sd", sd, "--db", lab["db"]]), "--index-scatter")
 
 
 @pytest.mark.parametrize("m", ["0", "136.5", "99999999999", "-5", "nan"])
@@ -465,8 +467,8 @@ def test_the_python_functions_apply_the_same_rules(lab):
     from matcher.errors import MatcherError
     from matcher.identify.query import query
 
-    with pytest.raises(MatcherError, match="--sd must be a finite number greater than 0"):
-        query(1000, "nonpolar", db=str(lab["db"]), measurement_sd=0)
+    with pytest.raises(MatcherError, match="--index-scatter must be a finite number greater than 0"):
+        query(1000, "nonpolar", db=str(lab["db"]), index_scatter=0)
     with pytest.raises(MatcherError, match="--mol-ion must be a whole m/z between 1 and 5000"):
         query(1000, "nonpolar", db=str(lab["db"]), mol_ion=136.5)
 

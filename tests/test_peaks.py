@@ -18,11 +18,11 @@ def pk(tmp_path, text, name="peaks.csv"):
 
 
 def test_canonical_columns(tmp_path):
-    t = read_peaks(pk(tmp_path, "peak,rt,mol_ion,ions,hit,hit_score,area\n"
+    t = read_peaks(pk(tmp_path, "peak,rt,mol_ion,ions,hit,hit_match,area\n"
                                 "p1,5.2,136,93 121;136,limonene,91,1200\np2,6.1,,,,,\n"))
     assert t.peak.tolist() == ["p1", "p2"] and t.rt.tolist() == [5.2, 6.1]
     assert t.ions == ((93, 121, 136), ()) and t.hit.tolist() == ["limonene", ""]
-    assert t.mol_ion[0] == 136 and np.isnan(t.mol_ion[1]) and t.hit_score[0] == 91
+    assert t.mol_ion[0] == 136 and np.isnan(t.mol_ion[1]) and t.hit_match[0] == 91
     assert t.has_rt and not t.has_ri
 
 
@@ -33,7 +33,7 @@ def test_canonical_columns(tmp_path):
 def test_lab_spellings_and_units(tmp_path, header, unit):
     t = read_peaks(pk(tmp_path, f"Peak #,{header},M+,Library hit,Match,Area\n1,300,136,limonene,88,5\n"))
     assert t.rt[0] == pytest.approx(5.0 if unit == "s" else 300.0)
-    assert t.mol_ion[0] == 136 and t.hit[0] == "limonene" and t.hit_score[0] == 88 and t.area[0] == 5
+    assert t.mol_ion[0] == 136 and t.hit[0] == "limonene" and t.hit_match[0] == 88 and t.area[0] == 5
     assert (unit == "s") == ("header" in t.rt_unit_source and unit == "s")
 
 
@@ -72,7 +72,7 @@ def test_map_override(tmp_path):
     ("peak,rt\n1,1e9\n", "at most 10000", 1, "rt"),
     ("peak,ri\n1,-5\n", "at least 0", 1, "ri"),
     ("peak,ri\n1,123456\n", "at most 10000", 1, "ri"),
-    ("peak,rt,hit_score\n1,5,130\n", "at most 100", 1, "hit_score"),
+    ("peak,rt,hit_match\n1,5,130\n", "at most 100", 1, "hit_match"),
     ("peak,rt,mol_ion\n1,5,136.5\n", "whole number", 1, "mol_ion"),
     ("peak,rt,ions\n1,5,93 x\n", "not an ion", 1, "ions"),
     ("peak,rt\n", "no peaks", None, None),  # header only: nothing to screen is refused
@@ -96,7 +96,7 @@ def test_time_unit_rules():
 @given(st.text(max_size=200))
 def test_arbitrary_text_only_raises_input_error(tmp_path, text):
     p = tmp_path / "h.csv"
-    p.write_text("peak,rt,ions,hit_score\n" + text, encoding="utf-8")
+    p.write_text("peak,rt,ions,hit_match\n" + text, encoding="utf-8")
     try:
         read_peaks(str(p))
     except InputError:

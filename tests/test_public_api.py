@@ -77,8 +77,8 @@ def test_public_names_and_submodule_of_the_same_name():
     ({"top": 0}, "--top must be at least 1"),
     ({"top": -3}, "--top must be at least 1"),
     ({"top": 2.5}, "--top must be a whole number"),
-    ({"hit_score": 500}, "--hit-score must be between 0 and 100, got 500"),
-    ({"hit_score": -1}, "--hit-score must be between 0 and 100"),
+    ({"hit_match": 500}, "--hit-match must be between 0 and 100, got 500"),
+    ({"hit_match": -1}, "--hit-match must be between 0 and 100"),
     ({"ions": [93.7, -5]}, "--ions: an m/z must be a whole number from 1 to 5000, got 93.7"),
     ({"ions": [-5]}, "got -5"),
     ({"ions": "93 abc"}, "--ions: not an m/z value: 'abc'"),
@@ -143,7 +143,7 @@ def test_query_result_dict_table_and_schema(demo_lib):
 
 def test_query_and_screen_json_use_the_same_candidate_record(demo_lib):
     peaks = pd.DataFrame({"peak": ["x"], "ri": [1031.0], "mol_ion": [136]})
-    screened = matcher.screen(peaks, phase_class="slightly-polar", library=demo_lib, measurement_sd=3.0)
+    screened = matcher.screen(peaks, phase_class="slightly-polar", library=demo_lib, index_scatter=3.0)
     cand_screen = screened.to_dict()["runs"][0]["peaks"][0]["candidates"][0]
     cand_query = matcher.query(1031, "slightly-polar", mol_ion=136, library=demo_lib).candidates[0]
     assert list(cand_screen) == list(cand_query)
@@ -179,9 +179,9 @@ def test_screen_result_writes_every_format(demo_lib, tmp_path):
     assert pd.read_csv(tmp_path / "s.csv").shape[0] == len(result.table)
     result.to_json(tmp_path / "s.json")
     doc = json.loads((tmp_path / "s.json").read_text(encoding="utf-8"))
-    from matcher.report.files import output_schema
+    from matcher.report.files import output_validator
 
-    jsonschema.Draft202012Validator(output_schema()).validate(doc)
+    output_validator().validate(doc)
     assert json.loads(result.to_json())["runs"][0]["peak_count"] == 8
     result.to_xlsx(tmp_path / "s.xlsx")
     result.to_html(tmp_path / "s.html")

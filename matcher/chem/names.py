@@ -165,3 +165,48 @@ def closeness(a: str, b: str) -> float:
 
 
 __all__ = ["GREEK", "matching_key", "search_text", "display_name", "short_greek_key", "rank"]
+
+
+#: Alkane stems by chain length (IUPAC numerical prefixes; 'eicos'/'icos' and 'heneicos'/'henicos' both read).
+CHAIN_STEMS: dict[int, tuple[str, ...]] = {
+    1: ("meth",), 2: ("eth",), 3: ("prop",), 4: ("but",), 5: ("pent",), 6: ("hex",), 7: ("hept",), 8: ("oct",),
+    9: ("non",), 10: ("dec",), 11: ("undec",), 12: ("dodec",), 13: ("tridec",), 14: ("tetradec",),
+    15: ("pentadec",), 16: ("hexadec",), 17: ("heptadec",), 18: ("octadec",), 19: ("nonadec",),
+    20: ("eicos", "icos"), 21: ("heneicos", "henicos"), 22: ("docos",), 23: ("tricos",), 24: ("tetracos",),
+    25: ("pentacos",), 26: ("hexacos",), 27: ("heptacos",), 28: ("octacos",), 29: ("nonacos",), 30: ("triacont",),
+}
+
+
+def homologue_name(member: str, shift: int) -> str | None:
+    """The name of the homologue ``shift`` CH2 units away from ``member``, or None when the chain is not named.
+
+    The chain is the longest alkane stem followed by ``an``/``en``/``yn`` (``1-heptanol``, ``decanal``,
+    ``ethyl butanoate``); its stem is replaced by the stem of the new length (IUPAC numerical prefixes).
+
+    >>> homologue_name("1-heptanol", 0), homologue_name("1-hexanol", 1), homologue_name("ethyl butanoate", 2)
+    ('1-heptanol', '1-heptanol', 'ethyl hexanoate')
+    >>> homologue_name("2-tridecanone", -2), homologue_name("nonadecane", 1), homologue_name("limonene", 1)
+    ('2-undecanone', 'eicosane', None)
+    """
+    import re
+
+    best = None
+    for n, stems in CHAIN_STEMS.items():
+        for stem in stems:
+            for m in re.finditer(re.escape(stem) + r"(?=[aey]n)", member.lower()):
+                if m.start() > 0 and member[m.start() - 1].isalpha() and not any(
+                        member.lower()[:m.start()].endswith(p) for p in ("un", "do", "tri", "tetra", "penta", "hexa",
+                                                                        "hepta", "octa", "nona", "hen", "e", "do")):
+                    continue
+                if best is None or len(stem) > len(best[1]):
+                    best = (n, stem, m.start())
+    if best is None:
+        return None
+    n, stem, at = best
+    target = CHAIN_STEMS.get(n + int(shift))
+    if not target:
+        return None
+    new = target[0]
+    if member[at:at + 1].isupper():
+        new = new.capitalize()
+    return member[:at] + new + member[at + len(stem):]

@@ -39,13 +39,15 @@ computed from the nearest pair of standards).
 def qc_table(cal) -> str:
     """The ladder's QC table, one row per standard."""
     from matcher.report.terminal import format_table
+    from matcher.report.wording import format_time
 
     qc = cal.qc
     ratio = [None] + list(qc["spacing_ratio"])
     rows = []
     for k in range(len(cal.rt)):
         fit = qc["fit_residual"][k] if qc["fit_residual"] else None
-        rows.append([cal.names[k], round(float(cal.rt[k]), 4), round(float(cal.index[k]), 2),
+        given = cal.rt_decimals[k] if k < len(cal.rt_decimals or []) else None
+        rows.append([cal.names[k], format_time(cal.rt[k], given), round(float(cal.index[k]), 2),
                      None if ratio[k] is None else round(ratio[k], 2),
                      None if qc["loo_residual"][k] is None else round(qc["loo_residual"][k], 1),
                      None if fit is None else round(fit, 2), qc["flags"][k]])
@@ -73,6 +75,7 @@ def found_table(cal) -> str:
 
 
 def summary(cal) -> str:
+    from matcher.report.wording import format_time, gap_text
     from matcher.retention.calibration import FORMULA
     from matcher.retention.series import SERIES
 
@@ -81,14 +84,14 @@ def summary(cal) -> str:
     lines = [
         f"series: {SERIES[cal.series].label} ({SERIES[cal.series].scale}); {len(cal.rt)} standards",
         f"mode: {cal.mode} ({FORMULA[cal.mode]})",
-        f"covers index {lo:g} to {hi:g} ({t0:g} to {t1:g} min); outside that, indices are extrapolated and flagged",
+        f"covers index {lo:g} to {hi:g} ({format_time(t0)} to {format_time(t1)} min); outside that, indices are extrapolated and flagged",
         f"ladder times in {cal.source.get('rt_unit', 'min')}, decided by {cal.source.get('rt_unit_source', '')}",
     ]
     if cal.holdup is not None:
         use = "" if cal.holdup_used else " (recorded only; it cancels in programmed mode)"
         lines.append(f"hold-up time: {cal.holdup.value:.4f} min, method {cal.holdup.method}: {cal.holdup.detail}{use}")
     for gap in cal.qc.get("gaps", []):
-        lines.append(f"gap: {gap['from']:g} to {gap['to']:g} (no {', '.join(gap['missing'])})")
+        lines.append(f"gap: {gap_text(gap)}")
     return "\n".join(lines)
 
 
@@ -102,15 +105,15 @@ def register(app: typer.Typer) -> None:
         epilog=CALIBRATE_EXAMPLE,
     )
     def calibrate_cmd(
-        ladder: Annotated[str, typer.Argument(help="Ladder CSV (or .xlsx): rt plus carbons or index, optional name; or the ladder's run file (ASTM E2077 netCDF, mzML).")],
-        output: Annotated[str, typer.Option("-o", "--output", help="Where to save the calibration (JSON).")],
-        mode: Annotated[str, typer.Option("--mode", help="programmed (van den Dool & Kratz) or isothermal (Kovats).")] = "programmed",
-        dead_time: Annotated[Optional[float], typer.Option("--dead-time", help="Hold-up time in minutes, if you know it.")] = None,
-        marker: Annotated[Optional[float], typer.Option("--marker", help="Time in minutes of an unretained marker peak (e.g. methane).")] = None,
-        holdup: Annotated[Optional[str], typer.Option("--holdup", help="Hold-up method: given, marker, peterson-hirsch or fit (isothermal default: fit, unless --dead-time/--marker).")] = None,
-        series: Annotated[Optional[str], typer.Option("--series", help="Reference series: alkanes, fame, pah or custom (default: alkanes with a carbons column, custom with an index column).")] = None,
-        rt_unit: Annotated[Optional[str], typer.Option("--rt-unit", help="Unit of the ladder's times: min or s (default: from the header, else min).")] = None,
-        mapping: Annotated[Optional[List[str]], typer.Option("--map", help="Use this header for a column, e.g. --map rt='Ret.Time'. Repeatable.")] = None,
+        ladder: Annotated[str, typer.Argument(metavar="LADDER", help="Ladder CSV (or .xlsx): rt plus carbons or index, optional name; or the ladder's run file (ASTM E2077 netCDF, mzML).")],
+        output: Annotated[str, typer.Option("-o", "--output", metavar="OUT", help="Where to save the calibration (JSON).")],
+        mode: Annotated[str, typer.Option("--mode", metavar="MODE", help="programmed (van den Dool & Kratz) or isothermal (Kovats).")] = "programmed",
+        dead_time: Annotated[Optional[float], typer.Option("--dead-time", metavar="MIN", help="Hold-up time in minutes, if you know it.")] = None,
+        marker: Annotated[Optional[float], typer.Option("--marker", metavar="MIN", help="Time in minutes of an unretained marker peak (e.g. methane).")] = None,
+        holdup: Annotated[Optional[str], typer.Option("--holdup", metavar="METHOD", help="Hold-up method: given, marker, peterson-hirsch or fit (isothermal default: fit, unless --dead-time/--marker).")] = None,
+        series: Annotated[Optional[str], typer.Option("--series", metavar="SERIES", help="Reference series: alkanes, fame, pah or custom (default: alkanes with a carbons column, custom with an index column).")] = None,
+        rt_unit: Annotated[Optional[str], typer.Option("--rt-unit", metavar="UNIT", help="Unit of the ladder's times: min or s (default: from the header, else min).")] = None,
+        mapping: Annotated[Optional[List[str]], typer.Option("--map", metavar="COLUMN=HEADER", help="Use this header for a column, e.g. --map rt='Time of apex'. Repeatable.")] = None,
         carbons: Annotated[Optional[str], typer.Option("--carbons", metavar="FIRST-LAST", help="Run files: chain lengths of the first and last alkane, e.g. 8-20 (needed when no molecular ion is visible).")] = None,
         min_snr: Annotated[Optional[float], typer.Option("--min-snr", metavar="K", help="Run files: a peak needs a prominence of K x the run's noise (default 5).")] = None,
         as_json: JsonFlag = False,
@@ -144,12 +147,12 @@ def register(app: typer.Typer) -> None:
         epilog=RI_EXAMPLE,
     )
     def ri_cmd(
-        calibration: Annotated[str, typer.Option("--calibration", "-c", help="Calibration file from 'matcher calibrate'.")],
-        times: Annotated[Optional[List[str]], typer.Argument(help="Retention times (minutes unless --rt-unit s).", show_default=False)] = None,
-        peaks: Annotated[Optional[str], typer.Option("--peaks", help="Peak table CSV (or .xlsx) with a time column.")] = None,
-        rt_unit: Annotated[Optional[str], typer.Option("--rt-unit", help="Unit of the times: min or s (peak tables: default from the header, else min).")] = None,
-        output: Annotated[Optional[str], typer.Option("-o", "--output", help="Write the CSV here instead of standard output.")] = None,
-        mapping: Annotated[Optional[List[str]], typer.Option("--map", help="Use this header for a peak-table column, e.g. --map rt='Ret.Time'.")] = None,
+        calibration: Annotated[str, typer.Option("--calibration", "-c", metavar="CAL.json", help="Calibration file from 'matcher calibrate'.")],
+        times: Annotated[Optional[List[str]], typer.Argument(metavar="TIME...", help="Retention times (minutes unless --rt-unit s).", show_default=False)] = None,
+        peaks: Annotated[Optional[str], typer.Option("--peaks", metavar="PEAKS.csv", help="Peak table CSV (or .xlsx) with a time column.")] = None,
+        rt_unit: Annotated[Optional[str], typer.Option("--rt-unit", metavar="UNIT", help="Unit of the times: min or s (peak tables: default from the header, else min).")] = None,
+        output: Annotated[Optional[str], typer.Option("-o", "--output", metavar="OUT", help="Write the CSV here instead of standard output.")] = None,
+        mapping: Annotated[Optional[List[str]], typer.Option("--map", metavar="COLUMN=HEADER", help="Use this header for a peak-table column, e.g. --map rt='Time of apex'.")] = None,
         as_json: JsonFlag = False,
     ) -> None:
         import json

@@ -17,7 +17,7 @@ from matcher.cli.common import CLASS_HELP, DbOption, JsonFlag, is_terminal, note
 EX_CONFIRM = (
     "Example: peak 11 of this morning's run was confirmed with an authentic standard of gamma-terpinene\n\n"
     "    matcher confirm shortlist.csv --peak 11 --name \"gamma-terpinene\" --source \"std lot G-221\" --analyst ana --db lab.sqlite\n\n"
-    "    matcher confirm batch.json --peak 7 --run lot-0412 --name sabinene --db lab.sqlite\n\n"
+    "    matcher confirm batch.json --peak 7 --run lot-0412 --name sabinene --cas 3387-41-5 --formula C10H16 --db lab.sqlite\n\n"
     "The index, class, calibration and date come from the screening output (a CSV with its .meta.json, or the JSON); "
     "the observation's source names the file, run and peak."
 )
@@ -36,13 +36,14 @@ EX_MERGE = (
     "    matcher library merge gc2-export.csv --json --db lab.sqlite\n\n"
     "Observations already present are skipped (merging twice adds nothing); conflicts are reported, never overwritten."
 )
-EX_BACKUP = "Example: a consistent copy while others may be adding\n\n    matcher library backup /backups/lab-2024-05-14.sqlite --db lab.sqlite"
+EX_BACKUP = "Example: a consistent copy while others may be adding\n\n    matcher library backup -o /backups/lab-2024-05-14.sqlite --db lab.sqlite"
 
 Force = Annotated[bool, typer.Option("--force", help="Accept an index beyond the outlier guard (or an extrapolated peak).")]
 New = Annotated[bool, typer.Option("--new", help="Create a new compound even though a library name is close.")]
-As = Annotated[Optional[str], typer.Option("--as", help="Attach to this existing compound (the new spelling becomes a synonym).")]
-Analyst = Annotated[Optional[str], typer.Option("--analyst", help="Who confirmed it (stored with the observation and in the audit log).")]
-Source = Annotated[Optional[str], typer.Option("--source", help="Where the value comes from (standard, lot, notebook page).")]
+As = Annotated[Optional[str], typer.Option("--as", metavar="NAME", help="Attach to this existing compound (the new spelling becomes a synonym).")]
+Analyst = Annotated[Optional[str], typer.Option("--analyst", metavar="WHO", help="Who confirmed it (stored with the observation and in the audit log).")]
+Editor = Annotated[Optional[str], typer.Option("--analyst", metavar="WHO", help="Who makes the change (stored in the audit log).")]
+Source = Annotated[Optional[str], typer.Option("--source", metavar="SOURCE", help="Where the value comes from (standard, lot, notebook page).")]
 
 
 
@@ -91,37 +92,41 @@ def register(app: typer.Typer) -> None:
     @app.command("confirm", help="Add a peak confirmed with an authentic standard to the library, from a screening output.",
                  epilog=EX_CONFIRM)
     def confirm_cmd(
-        results: Annotated[str, typer.Argument(help="Screening output: OUT.csv (with OUT.csv.meta.json) or OUT.json.")],
-        peak: Annotated[str, typer.Option("--peak", help="The peak id, as in the 'peak' column.")],
-        name: Annotated[str, typer.Option("--name", help="The compound the standard confirmed.")],
-        run: Annotated[Optional[str], typer.Option("--run", help="The run label, when the output holds several runs.")] = None,
+        results: Annotated[str, typer.Argument(metavar="RESULTS", help="Screening output: OUT.csv (with OUT.csv.meta.json) or OUT.json.")],
+        peak: Annotated[str, typer.Option("--peak", metavar="PEAK", help="The peak id, as in the 'peak' column.")],
+        name: Annotated[str, typer.Option("--name", metavar="NAME", help="The compound the standard confirmed.")],
+        run: Annotated[Optional[str], typer.Option("--run", metavar="RUN", help="The run label, when the output holds several runs.")] = None,
         source: Source = None,
         analyst: Analyst = None,
         force: Force = False,
         new: New = False,
         as_existing: As = None,
         measured: Annotated[bool, typer.Option("--measured", help="Use ri_measured (before the run's adaptive correction).")] = False,
+        cas: Annotated[Optional[str], typer.Option("--cas", metavar="CAS", help="CAS Registry Number of the compound (check digit verified).")] = None,
+        formula: Annotated[Optional[str], typer.Option("--formula", metavar="FORMULA", help="Molecular formula, e.g. C10H16 (gives the nominal mass the molecular-ion evidence needs).")] = None,
+        phase: Annotated[Optional[str], typer.Option("--phase", metavar="PHASE", help="Stationary phase of the column (generic composition).")] = None,
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
         from matcher.api import open_library
 
         result = open_library(db).confirm(results, peak, name, run=run, source=source, analyst=analyst, force=force,
-                                      new=new, as_existing=as_existing, measured=measured, ask=_asker())
+                                      new=new, as_existing=as_existing, measured=measured, ask=_asker(),
+                                      cas=cas, formula=formula, phase=phase)
         _render_add(result, as_json)
 
     @lib.command("add", help="Add one confirmed retention index; the name finds its compound, an outlier is refused.",
                  epilog=EX_ADD)
     def add_cmd(
-        name: Annotated[str, typer.Argument(help="Compound name (case, spacing and usual spelling variants are folded).")],
-        phase_class: Annotated[str, typer.Option("--class", help=CLASS_HELP)],
-        ri: Annotated[float, typer.Option("--ri", help="The retention index measured.")],
-        formula: Annotated[Optional[str], typer.Option("--formula", help="Molecular formula, e.g. C10H16.")] = None,
-        cas: Annotated[Optional[str], typer.Option("--cas", help="CAS Registry Number (check digit verified).")] = None,
-        inchikey: Annotated[Optional[str], typer.Option("--inchikey", help="InChIKey.")] = None,
-        phase: Annotated[Optional[str], typer.Option("--phase", help="Stationary phase (generic composition).")] = None,
-        mode: Annotated[str, typer.Option("--mode", help="programmed or isothermal.")] = "programmed",
-        date: Annotated[Optional[str], typer.Option("--date", help="Date measured, YYYY-MM-DD (default: today).")] = None,
+        name: Annotated[str, typer.Argument(metavar="NAME", help="Compound name (case, spacing and usual spelling variants are folded).")],
+        phase_class: Annotated[str, typer.Option("--class", metavar="CLASS", help=CLASS_HELP)],
+        ri: Annotated[float, typer.Option("--ri", metavar="RI", help="The retention index measured.")],
+        formula: Annotated[Optional[str], typer.Option("--formula", metavar="FORMULA", help="Molecular formula, e.g. C10H16.")] = None,
+        cas: Annotated[Optional[str], typer.Option("--cas", metavar="CAS", help="CAS Registry Number (check digit verified).")] = None,
+        inchikey: Annotated[Optional[str], typer.Option("--inchikey", metavar="INCHIKEY", help="InChIKey.")] = None,
+        phase: Annotated[Optional[str], typer.Option("--phase", metavar="PHASE", help="Stationary phase (generic composition).")] = None,
+        mode: Annotated[str, typer.Option("--mode", metavar="MODE", help="programmed or isothermal.")] = "programmed",
+        date: Annotated[Optional[str], typer.Option("--date", metavar="YYYY-MM-DD", help="Date measured, YYYY-MM-DD (default: today).")] = None,
         source: Source = None,
         analyst: Analyst = None,
         force: Force = False,
@@ -139,7 +144,7 @@ def register(app: typer.Typer) -> None:
 
     @lib.command("history", help="The audit trail of one compound: when, who, what, before and after.", epilog=EX_HISTORY)
     def history_cmd(
-        name: Annotated[str, typer.Argument(help="Name, synonym or CAS number.")],
+        name: Annotated[str, typer.Argument(metavar="NAME", help="Name, synonym or CAS number.")],
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
@@ -156,9 +161,9 @@ def register(app: typer.Typer) -> None:
     @lib.command("retire", help="Stop using an observation; the row stays, with the reason, and history shows it.",
                  epilog=EX_RETIRE)
     def retire_cmd(
-        observation: Annotated[int, typer.Argument(help="Observation id (see: matcher library show NAME).")],
-        why: Annotated[str, typer.Option("--why", help="Why it is retired.")],
-        analyst: Analyst = None,
+        observation: Annotated[int, typer.Argument(metavar="ID", help="Observation id (see: matcher library show NAME).")],
+        why: Annotated[str, typer.Option("--why", metavar="REASON", help="Why it is retired.")],
+        analyst: Editor = None,
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
@@ -170,14 +175,14 @@ def register(app: typer.Typer) -> None:
             return
         after = doc["after"]
         rest = "no active observation left in that class" if after is None else (
-            f"centre now {after['centre']:.1f} (spread {after['spread']:.1f}, {after['count']} observations)")
+            f"centre now {after['centre']:.1f} (spread {after['spread']:.1f}, {after['count']} observation{'' if after['count'] == 1 else 's'})")
         say(f"retired observation {doc['observation']} of {doc['compound']!r} ({doc['phase_class']} {doc['ri']:g}); {rest}")
 
     @lib.command("merge", help="Merge another library into this one; conflicts are reported, nothing is overwritten.",
                  epilog=EX_MERGE)
     def merge_cmd(
-        other: Annotated[str, typer.Argument(help="The other library: a path or URL, or a library CSV/XLSX.")],
-        analyst: Analyst = None,
+        other: Annotated[str, typer.Argument(metavar="OTHER", help="The other library: a path or URL, or a library CSV/XLSX.")],
+        analyst: Editor = None,
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
@@ -194,10 +199,18 @@ def register(app: typer.Typer) -> None:
     @lib.command("backup", help="A consistent copy of a SQLite library (online backup), safe while others write.",
                  epilog=EX_BACKUP)
     def backup_cmd(
-        path: Annotated[str, typer.Argument(help="The copy to write.")],
+        path: Annotated[Optional[str], typer.Argument(metavar="COPY.sqlite", help="The copy to write (or give -o).", show_default=False)] = None,
+        output: Annotated[Optional[str], typer.Option("-o", "--output", metavar="COPY.sqlite", help="The copy to write.")] = None,
         overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace an existing file.")] = False,
         db: DbOption = None,
     ) -> None:
         from matcher.api import open_library
+        from matcher.errors import MatcherError
+
+        if path is not None and output is not None and path != output:
+            raise MatcherError("give the copy's path once: as the argument or as -o/--output")
+        path = path if path is not None else output
+        if path is None:
+            raise MatcherError("where should the copy go? give -o COPY.sqlite")
 
         say(open_library(db).backup(path, overwrite=overwrite).summary())

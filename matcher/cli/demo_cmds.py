@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Annotated
+from typing import Annotated, Optional
 
 import typer
 
@@ -12,7 +12,7 @@ from matcher.cli.common import say
 EXAMPLE = """
 Example
 
-    matcher demo --out demo-output
+    matcher demo -o demo-output
 
 Then open demo-output/report.html in a browser, or read demo-output/shortlist.csv.
 """
@@ -27,8 +27,10 @@ def register(app: typer.Typer) -> None:
         epilog=EXAMPLE,
     )
     def demo_cmd(
-        out: Annotated[str, typer.Option("--out", metavar="DIR", help="Folder for the demo files (created if needed).")] = "matcher-demo",
+        out: Annotated[str, typer.Option("-o", "--output", metavar="DIR", help="Folder for the demo files (created if needed).")] = "matcher-demo",
+        old_out: Annotated[Optional[str], typer.Option("--out", hidden=True, metavar="DIR")] = None,
     ) -> None:
+        out = old_out if old_out is not None else out
         from matcher.demo import run_demo
         from matcher.cli.screen_cmds import summary
 

@@ -26,7 +26,7 @@ def register(app: typer.Typer) -> None:
         epilog=EXAMPLE,
     )
     def evaluate_cmd(
-        phase_class: Annotated[Optional[str], typer.Option("--class", metavar="CLASS", help="Evaluate one class only.")] = None,
+        phase_class: Annotated[Optional[str], typer.Option("--class", metavar="CLASS", help="Evaluate one polarity class only (default: every class of the library).")] = None,
         noise: Annotated[float, typer.Option(metavar="UNITS", help="Add Gaussian noise of this many index units to every query.")] = 0.0,
         window: Annotated[Optional[float], typer.Option(metavar="UNITS", help="Half-width of the window (default: the class default).")] = None,
         crowded: Annotated[bool, typer.Option("--crowded", help="Crowded-sample check: remove every other compound along the index scale and screen all of them together as one run, plain and adaptive.")] = False,
@@ -73,7 +73,7 @@ def render(report: dict) -> str:
                      _pct(mi.get("top1")), _pct(r.get("coverage")),
                      "-" if r.get("ece") is None else f"{r['ece']:.3f}", _pct(r.get("not_in_library_detection"))])
     out = [format_table(["class", "entries", "held out", "first", "in top 3", "first with M+", "in window",
-                         "calibration error", "absent detected"], rows, align="lrrrrrrrr")]
+                         "probability error", "not in library answered"], rows, align="lrrrrrrrr")]
     for cls, r in report["classes"].items():
         pairs = r.get("confusable_pairs") or []
         if pairs:
@@ -97,6 +97,6 @@ def render_crowded(report: dict) -> str:
                 continue
             rows.append([cls, how, e["peaks"], e["removed"], e["confident_calls"], _pct(e["confident_precision"]),
                          _pct(e["listed_first"]), f"{e['mean_top_probability_removed']:.3f}", f"{e['ece']:.3f}"])
-    return (format_table(["class", "screen", "peaks", "not listed", "calls p>=0.9", "of them right", "listed first",
-                          "mean p of unlisted", "probability error"], rows, align="llrrrrrrr")
+    return (format_table(["class", "screen", "peaks", "not in library", "calls p>=0.9", "of them right", "listed first",
+                          "mean p of not in library", "probability error"], rows, align="llrrrrrrr")
             + f"\nrun shifted by {report['offset']:+g} index units; every other compound along the scale removed from the library")

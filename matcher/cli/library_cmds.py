@@ -48,10 +48,10 @@ def register(app: typer.Typer) -> None:
 
     @lib.command("import", help="Import a library CSV or XLSX: every row is checked first; a refused file changes nothing.", epilog=EX_IMPORT)
     def import_cmd(
-        file: Annotated[str, typer.Argument(help="Library file (.csv, .txt or .xlsx).")],
+        file: Annotated[str, typer.Argument(metavar="LIBRARY.csv", help="Library file (.csv, .txt or .xlsx).")],
         replace: Annotated[bool, typer.Option("--replace", help="Replace the library's compounds and observations by the file's (one transaction).")] = False,
         dry_run: Annotated[bool, typer.Option("--dry-run", help="Check the file and report what would change; write nothing.")] = False,
-        analyst: Annotated[Optional[str], typer.Option("--analyst", help="Who is importing (for the audit log; default: your login).")] = None,
+        analyst: Annotated[Optional[str], typer.Option("--analyst", metavar="WHO", help="Who is importing (for the audit log; default: your login).")] = None,
         db: DbOption = None,
     ) -> None:
         from matcher.api import open_library
@@ -63,7 +63,7 @@ def register(app: typer.Typer) -> None:
 
     @lib.command("export", help="Export the whole library as a library CSV (or .xlsx); re-importing it is lossless.", epilog=EX_EXPORT)
     def export_cmd(
-        output: Annotated[Optional[str], typer.Option("-o", "--output", help="File to write (.csv or .xlsx); default: standard output.")] = None,
+        output: Annotated[Optional[str], typer.Option("-o", "--output", metavar="OUT", help="File to write (.csv or .xlsx); default: standard output.")] = None,
         db: DbOption = None,
     ) -> None:
         from matcher.api import open_library
@@ -76,8 +76,8 @@ def register(app: typer.Typer) -> None:
 
     @lib.command("find", help="Search names, synonyms, CAS numbers and formulas, tolerant of typos and spelling variants.", epilog=EX_FIND)
     def find_cmd(
-        text: Annotated[str, typer.Argument(help="Name, part of a name, CAS number or formula.")],
-        limit: Annotated[int, typer.Option("--limit", min=1, help="At most this many compounds.")] = 10,
+        text: Annotated[str, typer.Argument(metavar="SEARCH", help="Name, part of a name, CAS number or formula.")],
+        limit: Annotated[int, typer.Option("--limit", metavar="N", min=1, help="At most this many compounds.")] = 10,
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
@@ -91,12 +91,12 @@ def register(app: typer.Typer) -> None:
         if not hits:
             say(f"nothing in the library resembles {text!r}")
             return
-        say(format_table(["score", "name", "cas", "formula", "matched"],
-                         [[h.score, h.name, h.cas, h.formula, f"{h.field}: {h.matched}"] for h in hits], align="rllll"))
+        say(format_table(["name similarity", "name", "cas", "formula", "matched"],
+                         [[h.name_similarity, h.name, h.cas, h.formula, f"{h.field}: {h.matched}"] for h in hits], align="rllll"))
 
     @lib.command("show", help="One compound: identity, per-class centre/spread/count and every observation with its provenance.", epilog=EX_SHOW)
     def show_cmd(
-        name: Annotated[str, typer.Argument(help="Name, synonym or CAS number.")],
+        name: Annotated[str, typer.Argument(metavar="NAME", help="Name, synonym or CAS number.")],
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
@@ -156,7 +156,7 @@ def render_show(doc: dict) -> str:
         lines.append("  synonyms: " + "; ".join(doc["synonyms"]))
     if doc["classes"]:
         lines.append("")
-        lines.append(format_table(["class", "index", "spread", "n"],
+        lines.append(format_table(["class", "index", "spread", "observations"],
                                   [[c, round(v["ri"], 1), round(v["sd"], 1), v["n"]] for c, v in doc["classes"].items()]))
     lines.append("")
     rows = [[o["id"], o["phase_class"], o["ri"], o["ri_sd"], o["n"], o["mode"], o["phase"], o["source"],

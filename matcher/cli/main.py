@@ -15,6 +15,35 @@ import typer
 
 from matcher import CAUTION, __version__
 
+def _readable_arguments() -> None:
+    """Arguments shown by their metavar alone (``RESULTS``), not ``{results}`` or ``RESULTS <str>``.
+
+    The installed Typer prints a type placeholder beside every argument and braces around required
+    ones in the usage line; a chromatographer reads neither. Every argument and option of matcher has
+    a readable metavar (tests/test_cli_help.py checks the help texts), so the type is not shown.
+    """
+    core = getattr(typer, "core", None)
+    cls = getattr(core, "TyperArgument", None)
+    if cls is None or getattr(cls, "_matcher_readable", False):
+        return
+
+    def display_type(self, ctx):  # noqa: ARG001 - the metavar says what to give
+        return None
+
+    def usage_name(self):
+        name = self.metavar or self.name.upper()
+        name = name if self.required else f"[{name}]"
+        return name + ("..." if self.nargs != 1 and not name.endswith("...") else "")
+
+    if hasattr(cls, "display_type"):
+        cls.display_type = display_type
+    if hasattr(cls, "_usage_display_name"):
+        cls._usage_display_name = usage_name
+    cls._matcher_readable = True
+
+
+_readable_arguments()
+
 app = typer.Typer(
     name="matcher",
     no_args_is_help=True,
@@ -29,7 +58,7 @@ app = typer.Typer(
     context_settings={"help_option_names": ["-h", "--help"]},
     epilog=(
         "Example: the whole workflow on the bundled demo (invented numbers)\n\n"
-        "    matcher demo --out demo-output\n\n"
+        "    matcher demo -o demo-output\n\n"
         "    matcher screen run.csv --ladder alkanes.csv --class slightly-polar -o shortlist.csv --report run.html"
     ),
 )
@@ -93,6 +122,12 @@ def run() -> None:
     except Exception as exc:  # last resort: never a traceback at the bench
         if os.environ.get("MATCHER_DEBUG"):
             raise
+        if isinstance(exc, ModuleNotFoundError) and exc.name in ("psycopg", "psycopg2", "psycopg_binary", "psycopg_c"):
+            from matcher.store.database import POSTGRES_INSTALL
+
+            typer.echo(f"error: the PostgreSQL driver is not installed ({exc.name}); install it with: "
+                       f"{POSTGRES_INSTALL}", err=True)
+            sys.exit(2)
         from matcher.location import mask_secrets
 
         from matcher.safe_text import terminal_text

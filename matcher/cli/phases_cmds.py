@@ -45,11 +45,11 @@ def register(app: typer.Typer) -> None:
 
     @grp.command("classify", help="Polarity class from five McReynolds constants (x' y' z' u' s').", epilog=EX_CLASSIFY)
     def classify_cmd(
-        x: Annotated[float, typer.Argument(help="x' (benzene)")],
-        y: Annotated[float, typer.Argument(help="y' (1-butanol)")],
-        z: Annotated[float, typer.Argument(help="z' (2-pentanone)")],
-        u: Annotated[float, typer.Argument(help="u' (1-nitropropane)")],
-        s: Annotated[float, typer.Argument(help="s' (pyridine)")],
+        x: Annotated[float, typer.Argument(metavar="X", help="x' (benzene)")],
+        y: Annotated[float, typer.Argument(metavar="Y", help="y' (1-butanol)")],
+        z: Annotated[float, typer.Argument(metavar="Z", help="z' (2-pentanone)")],
+        u: Annotated[float, typer.Argument(metavar="U", help="u' (1-nitropropane)")],
+        s: Annotated[float, typer.Argument(metavar="S", help="s' (pyridine)")],
         as_json: JsonFlag = False,
     ) -> None:
         from matcher.retention.phases import classify, mcreynolds_sum

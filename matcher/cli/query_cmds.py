@@ -15,7 +15,7 @@ Example: a peak at index 1031 on a 5 % phenyl column with molecular ion 136
 
     matcher query 1031 --class slightly-polar --mol-ion 136
 
-    matcher query 1031 --class slightly-polar --ions "68 93 136" --hit limonene --hit-score 88 --json
+    matcher query 1031 --class slightly-polar --ions "68 93 136" --hit limonene --hit-match 88 --json
 """
 
 
@@ -34,20 +34,25 @@ def register(app: typer.Typer) -> None:
         mol_ion: Annotated[Optional[float], typer.Option("--mol-ion", metavar="M/Z", help="Nominal m/z of the molecular ion.")] = None,
         ions: Annotated[Optional[List[str]], typer.Option(metavar="IONS", help="Key ions seen in the spectrum, e.g. --ions '93 136' (repeatable).")] = None,
         hit: Annotated[Optional[str], typer.Option(metavar="NAME", help="Name proposed by your spectral search.")] = None,
-        hit_score: Annotated[Optional[float], typer.Option("--hit-score", metavar="0-100", help="Score of that hit, 0-100.")] = None,
+        hit_match: Annotated[Optional[float], typer.Option("--hit-match", metavar="0-100", help="How well the spectrum matched that hit, 0-100 (your search program's match value).")] = None,
         top: Annotated[Optional[int], typer.Option(metavar="K", help="Show at most this many candidates.")] = None,
         fallback: Annotated[bool, typer.Option("--fallback", help="Also look in the neighbouring class when nothing good is found.")] = False,
         homologues: Annotated[bool, typer.Option("--homologues", help="Propose missing members of homologous series (flagged predicted).")] = False,
-        sd: Annotated[Optional[float], typer.Option("--sd", metavar="UNITS", help="Index scatter of your measurement (default: 0.3 x the class window).")] = None,
+        sd: Annotated[Optional[float], typer.Option("--index-scatter", metavar="UNITS", help="Index scatter of your measurement: the standard deviation of a measured index around its true value (default: 0.3 x the class window).")] = None,
+        old_sd: Annotated[Optional[float], typer.Option("--sd", hidden=True, metavar="UNITS")] = None,
+        old_hit: Annotated[Optional[float], typer.Option("--hit-score", hidden=True, metavar="0-100")] = None,
         crowding: Annotated[Optional[str], typer.Option("--crowding", metavar="TYPE|N", help="How crowded the sample is with compounds not in the library: sparse, moderate (default), crowded, dense, or unlisted peaks per 100 index units.")] = None,
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
         from matcher.api import query
 
+        sd = old_sd if sd is None else sd
+        hit_match = old_hit if hit_match is None else hit_match
+
         result = query(ri, phase_class, library=db, window=window, window_percent=window_percent, mol_ion=mol_ion,
-                       ions=ions or None, hit=hit, hit_score=hit_score, top=top, fallback=fallback,
-                       homologues=homologues, measurement_sd=sd, crowding=crowding)
+                       ions=ions or None, hit=hit, hit_match=hit_match, top=top, fallback=fallback,
+                       homologues=homologues, index_scatter=sd, crowding=crowding)
         doc = result.to_dict()
         if as_json:
             say(json.dumps(doc, indent=2, ensure_ascii=False))
@@ -66,7 +71,7 @@ def render(doc: dict) -> str:
     else:
         rows = [[c["rank"], c["name"], f"{c['library_ri']:.1f}", f"{c['delta_ri']:+.1f}", f"{c['probability']:.3f}",
                  ";".join(c["flags"])] for c in doc["candidates"]]
-        body = format_table(["rank", "name", "library index", "deviation", "probability", "flags"], rows, align="rlrrrl")
+        body = format_table(["rank", "name", "library RI", "ΔRI", "probability", "flags"], rows, align="rlrrrl")
         body += f"\nnot in library: {doc['not_in_library']:.3f}"
     notes = "".join(f"\nnote: {n}" for n in doc["notes"])
     return f"{head}\n\n{body}{notes}\n\n{doc['caution']}"

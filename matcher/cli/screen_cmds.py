@@ -21,9 +21,15 @@ Examples
     matcher screen a.csv b.csv c.csv --calibration a.json --calibration b.json --calibration c.json
         --class polar --adaptive -o batch.json
 
-  A peak table whose time column is called 'Ret.Time':
+  Two runs on two columns, with the facts for the QC record (an export's preamble fills what is not given):
 
-    matcher screen export.csv --ladder alkanes.csv --class nonpolar --map rt=Ret.Time -o out.xlsx
+    matcher screen lot7-phenyl.csv lot7-peg.csv --calibration phenyl.json --calibration peg.json
+        --class slightly-polar --class polar --sample "lot 7" --analyst ana --instrument "GC-2"
+        --column "5 % phenyl 30 m x 0.25 mm x 0.25 um" -o lot7.xlsx --report lot7.html
+
+  A peak table whose time column has a header of its own:
+
+    matcher screen export.csv --ladder alkanes.csv --class nonpolar --map rt="Time of apex" -o out.json
 
   The GC-MS run file itself (ASTM E2077 netCDF or mzML), calibrated with the ladder's run:
 
@@ -43,14 +49,14 @@ def register(app: typer.Typer) -> None:
     )
     def screen_cmd(
         peaks: Annotated[List[str], typer.Argument(metavar="PEAKS.csv|RUN...", help="Peak table(s) (CSV, TSV or XLSX) or GC-MS run files (ASTM E2077 netCDF, mzML); one per run, mixed freely.")],
-        phase_class: Annotated[str, typer.Option("--class", metavar="CLASS", help=CLASS_HELP)],
-        out: Annotated[str, typer.Option("-o", "--out", metavar="OUT", help="Shortlist file: .csv, .json or .xlsx.")],
+        phase_class: Annotated[List[str], typer.Option("--class", metavar="CLASS", help=CLASS_HELP + " Once for all runs or once per run, in order.")],
+        out: Annotated[Optional[str], typer.Option("-o", "--output", metavar="OUT", help="Shortlist file: .csv, .json or .xlsx (required).", show_default=False)] = None,
         calibration: Annotated[Optional[List[str]], typer.Option("--calibration", metavar="CAL.json", help="Saved calibration (from 'matcher calibrate'); once for all runs or once per run.")] = None,
         ladder: Annotated[Optional[List[str]], typer.Option("--ladder", metavar="LADDER.csv", help="Ladder CSV, or the ladder's run file, to calibrate with; once for all runs or once per run.")] = None,
         mode: Annotated[str, typer.Option(metavar="MODE", help="Ladder mode when --ladder is given: programmed or isothermal.")] = "programmed",
         dead_time: Annotated[Optional[float], typer.Option("--dead-time", metavar="MIN", help="Hold-up time in minutes (isothermal ladders).")] = None,
         rt_unit: Annotated[Optional[str], typer.Option("--rt-unit", metavar="UNIT", help="Unit of retention times: min or s (default: read from the header, else minutes).")] = None,
-        header_map: Annotated[Optional[List[str]], typer.Option("--map", metavar="COLUMN=HEADER", help="Name a column yourself: column=header, e.g. --map rt='Ret.Time' (repeatable).")] = None,
+        header_map: Annotated[Optional[List[str]], typer.Option("--map", metavar="COLUMN=HEADER", help="Name a column yourself: column=header, e.g. --map rt='Time of apex' (repeatable).")] = None,
         report: Annotated[Optional[str], typer.Option("--report", metavar="REPORT.html", help="Also write a self-contained HTML report here.")] = None,
         top: Annotated[Optional[int], typer.Option(metavar="K", help="Keep at most this many candidates per peak.")] = None,
         window: Annotated[Optional[float], typer.Option(metavar="UNITS", help="Half-width of the window in index units (default: the class default).")] = None,
@@ -59,14 +65,29 @@ def register(app: typer.Typer) -> None:
         anchors: Annotated[Optional[str], typer.Option("--anchors", metavar="ANCHORS.csv", help="CSV naming known peaks (columns peak and name or ri) to use as anchors instead.")] = None,
         fallback: Annotated[bool, typer.Option("--fallback", help="Look in the neighbouring class for peaks with no good candidate.")] = False,
         homologues: Annotated[bool, typer.Option("--homologues", help="Propose missing members of homologous series (flagged predicted).")] = False,
-        sd: Annotated[Optional[float], typer.Option("--sd", metavar="UNITS", help="Index scatter of your runs (default: 0.3 x the class window; estimated with --adaptive).")] = None,
+        sd: Annotated[Optional[float], typer.Option("--index-scatter", metavar="UNITS", help="Index scatter of your runs: the standard deviation of a measured index around its true value (default: 0.3 x the class window; estimated with --adaptive).")] = None,
+        old_sd: Annotated[Optional[float], typer.Option("--sd", hidden=True, metavar="UNITS")] = None,
+        old_out: Annotated[Optional[str], typer.Option("--out", hidden=True, metavar="OUT")] = None,
         crowding: Annotated[Optional[str], typer.Option("--crowding", metavar="TYPE|N", help="How crowded the sample is with compounds not in the library, as a prior: sparse, moderate (default), crowded, dense, or unlisted peaks per 100 index units. The run's own peaks refine it.")] = None,
         split_peaks: Annotated[bool, typer.Option("--split-peaks", help="Let one compound explain several peaks (split or overloaded peaks); by default a compound explains at most one peak of a run.")] = False,
         min_snr: Annotated[Optional[float], typer.Option("--min-snr", metavar="K", help="Run files: a peak needs a prominence of K x the run's noise (default 5).")] = None,
         quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bar and no summary.")] = False,
+        sample: Annotated[Optional[str], typer.Option("--sample", metavar="SAMPLE", help="Sample or lot, for the QC record (default: from the peak table's preamble).")] = None,
+        analyst: Annotated[Optional[str], typer.Option("--analyst", metavar="WHO", help="Who ran and reviewed the screen, for the QC record.")] = None,
+        instrument: Annotated[Optional[str], typer.Option("--instrument", metavar="INSTRUMENT", help="The GC (and detector) the run was made on, for the QC record.")] = None,
+        column: Annotated[Optional[str], typer.Option("--column", metavar="COLUMN", help="The column: phase, length x inner diameter x film, for the QC record.")] = None,
         db: DbOption = None,
     ) -> None:
         import sys
+
+        from matcher.errors import MatcherError
+
+        if out is not None and old_out is not None and out != old_out:
+            raise MatcherError("give the shortlist file once: -o/--output OUT")
+        out = out if out is not None else old_out
+        if out is None:
+            raise MatcherError("where should the shortlist go? give -o/--output OUT (.csv, .json or .xlsx)")
+        sd = old_sd if sd is None else sd
 
         from matcher.api import screen
 
@@ -82,11 +103,12 @@ def register(app: typer.Typer) -> None:
                 bar.length = max(bar.length, seen[0])
                 bar.update(k)
         try:
-            result = screen(peaks, phase_class=phase_class, library=db, calibration=calibration, ladder=ladder, mode=mode,
+            result = screen(peaks, phase_class=phase_class[0] if len(phase_class) == 1 else phase_class, library=db, calibration=calibration, ladder=ladder, mode=mode,
                             dead_time=dead_time, rt_unit=rt_unit, header_map=parse_map(header_map) or None,
                             window=window, window_percent=window_percent, top=top, fallback=fallback,
-                            homologues=homologues, adaptive=adaptive, anchors=anchors, measurement_sd=sd,
-                            crowding=crowding, split_peaks=split_peaks, progress=progress, min_snr=min_snr,
+                            homologues=homologues, adaptive=adaptive, anchors=anchors, index_scatter=sd,
+                            crowding=crowding, split_peaks=split_peaks, sample=sample, analyst=analyst,
+                            instrument=instrument, column=column, progress=progress, min_snr=min_snr,
                             output=out, report=report)
         finally:
             if bar is not None:
@@ -115,8 +137,9 @@ def summary(result) -> str:
     for run in result.runs:
         s = summary_of(run)
         corr = run.correction
-        corr_text = "-" if not corr else (f"a={corr['a']:+.4f} b={corr['b']:+.2f}" if corr.get("applied") else "skipped")
+        corr_text = "-" if not corr else (f"ΔRI = {corr['slope']:+.4f}·RI {corr['offset']:+.2f}" if corr.get("applied") else "not applied")
         rows.append([run.label, s["peaks"], s["with_candidates"], s["confident"], s["review"],
-                     f"{run.measurement_sd:.2f}" if run.measurement_sd is not None else "-", corr_text])
-    return format_table(["run", "peaks", "with candidate", "confident (p>=0.9)", "to review", "index sd", "adaptive fit"],
+                     f"{run.index_scatter:.2f}" if run.index_scatter is not None else "-", corr_text])
+    return format_table(["run", "peaks", "with candidate", "confident (p>=0.9)", "to review", "index scatter",
+                         "adaptive fit (measured - library)"],
                         rows, align="lrrrrrl")

@@ -162,14 +162,17 @@ def add_confirmed(db: str | None, name: str, phase_class: str, ri: float, *, for
 def confirm_from_results(db: str | None, results_path: str | os.PathLike, peak: Any, name: str, *,
                          run: str | None = None, source: str | None = None, analyst: str | None = None,
                          force: bool = False, new: bool = False, as_existing: str | None = None,
-                         measured: bool = False, ask=None) -> AddResult:
+                         measured: bool = False, ask=None, cas: str | None = None, formula: str | None = None,
+                         phase: str | None = None) -> AddResult:
     """Add the index of ``peak`` of a screening output as a confirmed observation of ``name``.
 
     The index is the ``ri`` the peak was screened with (after any adaptive correction of the
     run; ``measured=True`` takes ``ri_measured``, the calibrated index before correction).
     The class, calibration mode and date come from the run; the observation's source names
     the results file, run and peak; the audit entry ``confirm`` keeps the full record. An
-    extrapolated index (outside the ladder) is refused unless ``force``.
+    extrapolated index (outside the ladder) is refused unless ``force``. ``cas``, ``formula``
+    and ``phase`` (the column's stationary phase, generic composition) are checked and recorded as
+    for :func:`add_confirmed`, so that a newly confirmed compound gets its nominal mass.
     """
     facts = read_peak(results_path, peak, run=run)
     if "extrapolated" in facts.flags and not force:
@@ -192,6 +195,7 @@ def confirm_from_results(db: str | None, results_path: str | os.PathLike, peak: 
             "best_candidate": facts.best, "sidecar": facts.sidecar, "run_checksum": facts.checksum or None}
     return add_confirmed(db, name, facts.phase_class, ri, source=text, analyst=analyst, force=force, new=new,
                          as_existing=as_existing, ask=ask, date=facts.date or None, mode=facts.mode,
+                         cas=cas, formula=formula, phase=phase,
                          provenance=prov, once=facts.identity() if facts.checksum else here)
 
 

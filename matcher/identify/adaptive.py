@@ -158,4 +158,4 @@ def scatter_from_anchors(residuals: np.ndarray, entry_sd: np.ndarray, default: f
     raw = float(np.sqrt(max(s_r ** 2 - lib ** 2, SCATTER_FLOOR ** 2)))
     k = len(r)
     sd = float(np.exp((k * np.log(raw) + SCATTER_PRIOR_ANCHORS * np.log(default)) / (k + SCATTER_PRIOR_ANCHORS)))
-    return sd, f"run index scatter {sd:.2f} units from {k} anchors"
+    return sd, f"index scatter of the run {sd:.2f} units, from {k} anchors"

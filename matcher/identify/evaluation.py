@@ -14,7 +14,7 @@
   compounds get high probabilities just because something lies nearby;
 * the index scatter of a query beyond the entry's own predictive spread is
   the added noise (a held-out observation comes from the same lab), unless
-  ``measurement_sd`` says otherwise;
+  ``index_scatter`` says otherwise;
 * each query is scored as ``matcher query`` scores it: the presence prior
   and the crowding prior (``crowding``, default ``moderate``) of
   :mod:`matcher.identify.unlisted`;
@@ -105,7 +105,7 @@ def _ranks(pairs: Pairs, sc, own_pair: np.ndarray, n: int):
 
 
 def evaluate_class(snapshot: LibrarySnapshot, phase_class: str, *, noise: float = 0.0, window: float | None = None,
-                   measurement_sd: float | None = None, rng=None, crowding=None) -> dict:
+                   index_scatter: float | None = None, rng=None, crowding=None) -> dict:
     """Self-check of one class (index only, and under ``with_mol_ion`` with the molecular ion); see the module doc."""
     phase_class = check_class(phase_class)
     rng = rng or np.random.default_rng(SEED)
@@ -138,7 +138,7 @@ def evaluate_class(snapshot: LibrarySnapshot, phase_class: str, *, noise: float 
     # only the added noise is extra measurement scatter.
     k_rm = min(len(entries), MAX_QUERIES)
     # single queries: the query defaults (presence prior, crowding prior)
-    model = Model(max(noise, 0.1) if measurement_sd is None else measurement_sd,
+    model = Model(max(noise, 0.1) if index_scatter is None else index_scatter,
                   unlisted=UnlistedField.flat(crowding_density(crowding)))
     x = obs.ri[loo] + (rng.normal(0, noise, len(loo)) if noise else 0.0)
     w = half_widths(x, phase_class, window)
@@ -198,12 +198,12 @@ def confusable_pairs(entries: ClassEntries, compounds, window: float | None = No
 
 
 def evaluate(snapshot: LibrarySnapshot, phase_class: str | None = None, *, noise: float = 0.0,
-             window: float | None = None, measurement_sd: float | None = None) -> dict:
+             window: float | None = None, index_scatter: float | None = None) -> dict:
     """Self-check of one class or of every class that has entries; overall rates weighted by queries."""
     classes = [check_class(phase_class)] if phase_class else [c for c in PHASE_CLASSES if len(snapshot.entries(c)) >= 2]
     per = {}
     for c in classes:
-        per[c] = evaluate_class(snapshot, c, noise=noise, window=window, measurement_sd=measurement_sd)
+        per[c] = evaluate_class(snapshot, c, noise=noise, window=window, index_scatter=index_scatter)
 
     def pooled(key, kind="leave_one_out"):
         num = den = 0.0
@@ -259,7 +259,7 @@ def evaluate_crowded(snapshot: LibrarySnapshot, phase_class: str, *, offset: flo
     (60, 30, True)
     """
     from matcher.identify.evidence import DEFAULT_MEASUREMENT_SD
-    from matcher.identify.screening import screen_run
+    from matcher.identify.screening import public_correction, screen_run
     from matcher.identify.shortlist import PeakInput, prepare
 
     phase_class = check_class(phase_class)
@@ -303,11 +303,11 @@ def evaluate_crowded(snapshot: LibrarySnapshot, phase_class: str, *, offset: flo
         "mean_top_probability_removed": round(float(top_p[is_removed].mean()), 4),
         "max_compound_sum": round(float(sums.max()), 6) if len(sums) else 0.0,
         "ece": round(_ece(top_p, right), 4),
-        "index_scatter": round(float(model.measurement_sd), 3),
+        "index_scatter": round(float(model.index_scatter), 3),
         "presence": info.get("presence"),
         "unlisted_per_100": info.get("unlisted_per_100"),
-        "correction": None if not corr else {"applied": corr["applied"], "a": corr["a"], "b": corr["b"],
-                                             "notice": corr["notice"]},
+        "correction": None if not corr else {k: v for k, v in public_correction(corr).items()
+                                             if k in ("applied", "slope", "offset", "notice")},
     })
     return out
 

@@ -83,14 +83,14 @@ _LOG_SQRT_2PI = 0.5 * np.log(2.0 * np.pi)
 class Model:
     """Settings of the evidence model for one run (see module doc).
 
-    ``measurement_sd`` is the run's index scatter σ_m; ``presence`` the
+    ``index_scatter`` is the run's index scatter σ_m; ``presence`` the
     probability π that a listed compound is in the sample; ``unlisted`` the
     intensity of unlisted peaks (:class:`matcher.identify.unlisted.UnlistedField`;
     ``None`` means the flat default crowding); ``exclusive``: one compound
     explains at most one peak of the run.
     """
 
-    measurement_sd: float
+    index_scatter: float
     presence: float = DEFAULT_PRESENCE
     unlisted: UnlistedField | None = None
     exclusive: bool = True
@@ -115,7 +115,7 @@ class PeakHints:
     mol_ion: np.ndarray
     ion_masks: np.ndarray | None = None  # (P, ION_WORDS) uint64
     hit_similarity: np.ndarray | None = None  # per PAIR, filled by the caller
-    hit_score: np.ndarray | None = None  # per peak, 0-100
+    hit_match: np.ndarray | None = None  # per peak, 0-100
     hit_unlisted: np.ndarray | None = None  # per peak: the hit names no compound of the library
 
 
@@ -125,10 +125,10 @@ class Scored:
 
     delta: np.ndarray  # library_ri - x
     sd: np.ndarray  # combined spread s_j
-    ev_index: np.ndarray
-    ev_mol_ion: np.ndarray
-    ev_ions: np.ndarray
-    ev_hit: np.ndarray
+    evidence_index: np.ndarray
+    evidence_mol_ion: np.ndarray
+    evidence_ions: np.ndarray
+    evidence_hit: np.ndarray
     score: np.ndarray
     logw: np.ndarray  # log odds against not-in-library (prior included)
     mass_state: np.ndarray  # per pair: 1 agree, -1 disagree, 0 no formula, -2 no mol ion given
@@ -164,17 +164,17 @@ def score_pairs(
     lam = model.field().density(xall) if unlisted_density is None else np.asarray(unlisted_density, float)
     xp = xall[p]
     mu = entries.ri[e]
-    s = np.sqrt(entries.sd[e] ** 2 + model.measurement_sd ** 2 + np.asarray(extra_sd) ** 2)
+    s = np.sqrt(entries.sd[e] ** 2 + model.index_scatter ** 2 + np.asarray(extra_sd) ** 2)
     delta = mu - xp
     log_phi = -0.5 * (delta / s) ** 2 - np.log(s) - _LOG_SQRT_2PI
-    ev_index = log_phi - np.log(lam[p])
+    evidence_index = log_phi - np.log(lam[p])
 
     comp = entries.compound[e]
     ev_mol = np.zeros(len(p))
     mass_state = np.full(len(p), -2, dtype=np.int8)
-    ev_ions = np.zeros(len(p))
+    evidence_ions = np.zeros(len(p))
     ions_state = np.full(len(p), np.nan)
-    ev_hit = np.zeros(len(p))
+    evidence_hit = np.zeros(len(p))
     if hints is not None and len(p):
         m = hints.mol_ion[p]
         given = np.isfinite(m)
@@ -195,22 +195,22 @@ def score_pairs(
             if both.any():
                 seen = ion_overlap(pm[both], cmask[both])
                 k = n_key[both]
-                ev_ions[both] = seen * np.log(ION_SEEN / ION_CHANCE) + (k - seen) * np.log((1 - ION_SEEN) / (1 - ION_CHANCE))
+                evidence_ions[both] = seen * np.log(ION_SEEN / ION_CHANCE) + (k - seen) * np.log((1 - ION_SEEN) / (1 - ION_CHANCE))
                 ions_state[both] = seen / k
-        sc = hints.hit_score[p] if hints.hit_score is not None else np.full(len(p), np.nan)
+        sc = hints.hit_match[p] if hints.hit_match is not None else np.full(len(p), np.nan)
         if hints.hit_similarity is not None:
             match = hints.hit_similarity >= HIT_MATCH
-            ev_hit[match] = _hit_ratio(sc[match])
+            evidence_hit[match] = _hit_ratio(sc[match])
         if hints.hit_unlisted is not None:
             elsewhere = np.asarray(hints.hit_unlisted, dtype=bool)[p]
-            ev_hit[elsewhere] = -_hit_ratio(sc[elsewhere])
+            evidence_hit[elsewhere] = -_hit_ratio(sc[elsewhere])
 
-    score = ev_index + ev_mol + ev_ions + ev_hit
+    score = evidence_index + ev_mol + evidence_ions + evidence_hit
     pi = float(np.clip(model.presence, 1e-6, 1 - 1e-6))
     logw = np.log(pi / (1 - pi)) + score
     if prior_factor is not None:
         logw = logw + np.log(prior_factor)
-    return Scored(delta, s, ev_index, ev_mol, ev_ions, ev_hit, score, logw, mass_state, ions_state, lam)
+    return Scored(delta, s, evidence_index, ev_mol, evidence_ions, evidence_hit, score, logw, mass_state, ions_state, lam)
 
 
 def softmax_with_null(logw: np.ndarray, peak: np.ndarray, n_peaks: int):

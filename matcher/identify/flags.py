@@ -7,33 +7,33 @@ and the contenders within :data:`AMBIGUOUS_RATIO` of it, or the row of a peak
 without candidates); run flags come from comparing peaks of the same run and
 go on the leading row.
 
-=================  =======  ===================================================================
-flag               level    rule
-=================  =======  ===================================================================
-in-window          cand.    the library index lies inside the home-class window, |Δ| ≤ w
-window-edge        cand.    0.7·w < |Δ| ≤ w (or beyond w for a cross-class candidate)
-single-record      cand.    the library entry rests on one observation
-mass-match         cand.    the molecular ion equals the nominal mass of the candidate's formula
-mass-mismatch      cand.    the molecular ion differs from that nominal mass
-no-formula         cand.    a molecular ion was given but the candidate has no formula
-ions-agree         cand.    at least half of the candidate's key ions are among the peak's ions
-ions-disagree      cand.    fewer than half of them are
-hit-agrees         cand.    the spectral-search hit names this candidate (similarity ≥ 0.9)
-cross-class        cand.    found by the fallback in the neighbouring polarity class
-predicted          cand.    a homologue prediction, not a measured library value
-extrapolated       peak     the peak's index lies outside the ladder (computed from the nearest pair)
-ambiguous          lead     the second candidate has at least half the probability of the first; on
-                            the first and on every candidate with at least half its probability
-contested          lead     other peaks of the run hold at least 0.2 of this peak's best compound
-                            (one compound explains at most one peak, so they share it)
-likely-unlisted    peak     not_in_library ≥ 0.5
-no-candidate       peak     no library entry inside the window
-repeated-top       run      the same compound ranks first for another peak more than w away
-order-break        run      two ranked-first members of one homologous series elute out of order
-review             lead     any of: ambiguous, contested, likely-unlisted, extrapolated, no-candidate,
-                            top probability < 0.5, or a top candidate that is cross-class,
-                            predicted or mass-mismatch, or a run flag
-=================  =======  ===================================================================
+=======================  =======  ===================================================================
+flag                     level    rule
+=======================  =======  ===================================================================
+in-window                cand.    the library index lies inside the home-class window, |Δ| ≤ w
+window-edge              cand.    0.7·w < |Δ| ≤ w (or beyond w for a cross-class candidate)
+single-observation       cand.    the library entry rests on one observation
+mass-match               cand.    the molecular ion equals the nominal mass of the candidate's formula
+mass-mismatch            cand.    the molecular ion differs from that nominal mass
+no-formula               cand.    a molecular ion was given but the candidate has no formula
+ions-agree               cand.    at least half of the candidate's key ions are among the peak's ions
+ions-disagree            cand.    fewer than half of them are
+hit-agrees               cand.    the spectral-search hit names this candidate (similarity ≥ 0.9)
+cross-class              cand.    found by the fallback in the neighbouring polarity class
+predicted                cand.    a homologue prediction, not a measured library value
+extrapolated             peak     the peak's index lies outside the ladder (computed from the nearest pair)
+ambiguous                lead     the second candidate has at least half the probability of the first; on
+                                  the first and on every candidate with at least half its probability
+contested                lead     other peaks of the run hold at least 0.2 of this peak's best compound
+                                  (one compound explains at most one peak, so they share it)
+likely-not-in-library    peak     not_in_library ≥ 0.5
+no-candidate             peak     no library entry inside the window
+same-compound-twice      run      the same compound ranks first for another peak more than w away
+homologues-out-of-order  run      two ranked-first members of one homologous series elute out of order
+review                   lead     any of: ambiguous, contested, likely-not-in-library, extrapolated, no-candidate,
+                                  top probability < 0.5, or a top candidate that is cross-class,
+                                  predicted or mass-mismatch, or a run flag
+=======================  =======  ===================================================================
 
 >>> combine(np.array([[True, False], [True, True], [False, False]]), ["in-window", "ambiguous"]).tolist()
 ['in-window', 'in-window;ambiguous', '']
@@ -46,10 +46,10 @@ from typing import Sequence
 import numpy as np
 
 VOCABULARY: tuple[str, ...] = (
-    "in-window", "window-edge", "single-record", "mass-match", "mass-mismatch", "no-formula",
+    "in-window", "window-edge", "single-observation", "mass-match", "mass-mismatch", "no-formula",
     "ions-agree", "ions-disagree", "hit-agrees", "cross-class", "predicted",
-    "extrapolated", "ambiguous", "contested", "likely-unlisted", "no-candidate",
-    "repeated-top", "order-break", "review",
+    "extrapolated", "ambiguous", "contested", "likely-not-in-library", "no-candidate",
+    "same-compound-twice", "homologues-out-of-order", "review",
 )
 
 EDGE_FRACTION = 0.7
@@ -107,7 +107,7 @@ def row_flags(cols: dict, *, window, mass_state, ions_state, hit_agrees, extrapo
                      | bad_top[peak])
 
     masks = np.column_stack([
-        in_window, edge, cand & ~pred & (np.asarray(cols["library_n"]) == 1),
+        in_window, edge, cand & ~pred & (np.asarray(cols["library_observations"]) == 1),
         cand & (mass_state == 1), mass_mis, cand & (mass_state == 0),
         cand & (ions_ok >= 0.5), cand & (ions_ok >= 0) & (ions_ok < 0.5), cand & hit_agrees,
         cross, pred, extrap, ambiguous, contest, unlisted, no_cand,

@@ -27,6 +27,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from matcher.chem.names import homologue_name
+
 from matcher.chem.formula import parse_formula, hill_formula
 from matcher.store.snapshot import ClassEntries, CompoundTable
 
@@ -82,7 +84,8 @@ def predict(entries: ClassEntries, compounds: CompoundTable) -> tuple[ClassEntri
             mass = compounds.nominal_mass[entries.compound[nearest]] + 14 * dc
             new["ri"].append(a + b * C)
             new["sd"].append(max(s_fit, PREDICTION_SD_MIN) * np.sqrt(1 + 1 / k) + 2.0 * max(dist - 1, 0))
-            new["name"].append(f"{label} C{C} (predicted homologue)")
+            named = homologue_name(str(compounds.name[entries.compound[nearest]]), dc)
+            new["name"].append(f"{named} (predicted)" if named else f"{label} C{C} (predicted)")
             new["formula"].append(formula)
             new["mass"].append(mass)
             new["carbons"].append(C)

@@ -78,13 +78,13 @@ class QueryResult:
 
     @property
     def table(self):
-        """The candidates as a pandas DataFrame, evidence as ``ev_*`` columns and flags joined by ``;``."""
+        """The candidates as a pandas DataFrame, evidence as ``evidence_*`` columns and flags joined by ``;``."""
         import pandas as pd
 
-        from matcher.results import CANDIDATE_KEYS, EVIDENCE_COLUMNS
+        from matcher.results import CANDIDATE_KEYS, EVIDENCE_COLUMNS, evidence_key
 
         rows = [{**{k: c[k] for k in CANDIDATE_KEYS}, "flags": ";".join(c["flags"]),
-                 **{e: c["evidence"].get(e[3:]) for e in EVIDENCE_COLUMNS}} for c in self.candidates]
+                 **{e: c["evidence"].get(evidence_key(e)) for e in EVIDENCE_COLUMNS}} for c in self.candidates]
         return pd.DataFrame(rows, columns=list(CANDIDATE_KEYS) + ["flags"] + list(EVIDENCE_COLUMNS))
 
     def to_dict(self) -> dict[str, Any]:
@@ -114,11 +114,11 @@ def query(
     mol_ion: float | None = None,
     ions: Sequence[int] | None = None,
     hit: str | None = None,
-    hit_score: float | None = None,
+    hit_match: float | None = None,
     top: int | None = None,
     fallback: bool = False,
     homologues: bool = False,
-    measurement_sd: float | None = None,
+    index_scatter: float | None = None,
     presence: float = DEFAULT_PRESENCE,
     crowding: str | float | None = None,
 ) -> QueryResult:
@@ -136,27 +136,27 @@ def query(
 
     phase_class = rules.check_class(phase_class)
     ri = rules.check_ri(ri)
-    if measurement_sd is not None:
-        measurement_sd = check_sd(measurement_sd)
+    if index_scatter is not None:
+        index_scatter = check_sd(index_scatter)
     if mol_ion is not None:
         mol_ion = check_mol_ion(mol_ion)
     window, window_percent = rules.check_window(window, window_percent)
     top = rules.check_top(top)
     ions = rules.check_ions(ions)
-    hit_score = rules.check_hit_score(hit_score)
+    hit_match = rules.check_hit_match(hit_match)
     if snapshot is None:
         from matcher.store.snapshot_loader import load_snapshot
 
         snapshot = load_snapshot(db)
     home = prepare(snapshot, phase_class, homologues=homologues)
     neighbour = neighbour_of(snapshot, phase_class) if fallback else None
-    sd = DEFAULT_MEASUREMENT_SD[phase_class] if measurement_sd is None else float(measurement_sd)
+    sd = DEFAULT_MEASUREMENT_SD[phase_class] if index_scatter is None else float(index_scatter)
     peaks = PeakInput(
         np.array([ri]),
         mol_ion=None if mol_ion is None else np.array([float(mol_ion)]),
         ions=None if not ions else [ions],
         hit=None if not hit else np.array([hit], dtype=object),
-        hit_score=None if hit_score is None else np.array([hit_score]),
+        hit_match=None if hit_match is None else np.array([hit_match]),
     )
     lam0 = crowding_density(crowding)
     model = Model(sd, presence=float(presence), unlisted=UnlistedField.flat(lam0))

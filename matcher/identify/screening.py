@@ -132,7 +132,7 @@ def _subset(peaks: PeakInput, idx: np.ndarray) -> PeakInput:
         None if peaks.mol_ion is None else np.asarray(peaks.mol_ion)[idx],
         None if peaks.ions is None else [peaks.ions[i] for i in idx],
         None if peaks.hit is None else np.asarray(peaks.hit, dtype=object)[idx],
-        None if peaks.hit_score is None else np.asarray(peaks.hit_score)[idx],
+        None if peaks.hit_match is None else np.asarray(peaks.hit_match)[idx],
         None if peaks.extrapolated is None else np.asarray(peaks.extrapolated)[idx],
         None if peaks.unlisted is None else np.asarray(peaks.unlisted)[idx],
     )
@@ -341,7 +341,7 @@ def _anchors_from_file(path: str, label: str, peak_ids: np.ndarray, snapshot: Li
 
 
 def run_flags(sl: Shortlist, x: np.ndarray, compounds) -> np.ndarray:
-    """Run-level consistency flags: repeated-top and order-break (see :mod:`matcher.identify.flags`)."""
+    """Run-level consistency flags: same-compound-twice and homologues-out-of-order (see :mod:`matcher.identify.flags`)."""
     c = sl.columns
     flags = c["flags"]
     top = np.flatnonzero((c["rank"] == 1) & (c["compound"] >= 0))
@@ -360,7 +360,7 @@ def run_flags(sl: Shortlist, x: np.ndarray, compounds) -> np.ndarray:
     sizes = np.diff(np.r_[starts, len(comp_s)])
     bad_peaks = p_s[np.repeat(bad_group, sizes)]
     repeated = np.isin(c["peak"], bad_peaks) & (c["rank"] == 1)
-    flags = F.add_flag(flags, repeated, "repeated-top")
+    flags = F.add_flag(flags, repeated, "same-compound-twice")
 
     series = compounds.series[comp]
     carb = compounds.carbons[comp]
@@ -375,11 +375,12 @@ def run_flags(sl: Shortlist, x: np.ndarray, compounds) -> np.ndarray:
         for i in inv:
             broken.update((int(peak[o[i]]), int(peak[o[i + 1]])))
     if broken:
-        flags = F.add_flag(flags, np.isin(c["peak"], list(broken)) & (c["rank"] == 1), "order-break")
+        flags = F.add_flag(flags, np.isin(c["peak"], list(broken)) & (c["rank"] == 1), "homologues-out-of-order")
     return flags
 
 
-def _table(sl: Shortlist, label: str, phase_class: str, peak_ids, rt, x, x_raw, hints: PeakInput):
+def _table(sl: Shortlist, label: str, phase_class: str, peak_ids, rt, x, x_raw, hints: PeakInput,
+           area=None, area_percent=None):
     import pandas as pd
 
     c = sl.columns
@@ -404,25 +405,27 @@ def _table(sl: Shortlist, label: str, phase_class: str, peak_ids, rt, x, x_raw, 
         "run": label,
         "ri_measured": x_raw[p],
         "not_in_library": sl.not_in_library[p],
+        "area": opt(area),
+        "area_percent": opt(area_percent),
         "formula": c["formula"],
         "nominal_mass": c["nominal_mass"],
-        "library_sd": c["library_sd"],
-        "library_n": pd.array(np.where(c["rank"] > 0, c["library_n"], 0), dtype="Int64"),
+        "library_spread": c["library_spread"],
+        "library_observations": pd.array(np.where(c["rank"] > 0, c["library_observations"], 0), dtype="Int64"),
         "mol_ion": opt(hints.mol_ion),
         "hit": opt(hints.hit, ""),
-        "hit_score": opt(hints.hit_score),
-        "ev_index": c["ev_index"],
-        "ev_mol_ion": c["ev_mol_ion"],
-        "ev_ions": c["ev_ions"],
-        "ev_hit": c["ev_hit"],
+        "hit_match": opt(hints.hit_match),
+        "evidence_index": c["evidence_index"],
+        "evidence_mol_ion": c["evidence_mol_ion"],
+        "evidence_ions": c["evidence_ions"],
+        "evidence_hit": c["evidence_hit"],
     }
     df = pd.DataFrame(data)
-    df.loc[df["rank"].isna(), "library_n"] = pd.NA
+    df.loc[df["rank"].isna(), "library_observations"] = pd.NA
     return df[list(SHORTLIST_COLUMNS) + list(DETAIL_COLUMNS)]
 
 
 def _with(peaks: PeakInput, x: np.ndarray, lam: np.ndarray) -> PeakInput:
-    return PeakInput(x, peaks.mol_ion, peaks.ions, peaks.hit, peaks.hit_score, peaks.extrapolated, lam)
+    return PeakInput(x, peaks.mol_ion, peaks.ions, peaks.hit, peaks.hit_match, peaks.extrapolated, lam)
 
 
 def _shift_profile(home: PreparedClass, peaks: PeakInput, model: Model, w: np.ndarray, lam: np.ndarray) -> float:
@@ -546,14 +549,47 @@ def prepare_run(home: PreparedClass, peaks: PeakInput, base_sd: float, *, window
             correction.update(applied=True, a=fit["a"], b=fit["b"], scatter=sd,
                               notice=f"corrected with {int(fit['kept'].sum())} of {len(a_pos)} anchors from {source}"
                                      + (f"; {sd_note}" if sd_note else ""))
-            base = base.with_(measurement_sd=sd)
+            base = base.with_(index_scatter=sd)
             w = half_widths(x, home.phase_class, window, window_percent)
             model, info, lam = fit_run_model(home, _with(peaks, x, None), base, w, crowding=crowding)
         notices.append(correction["notice"])
     if info.get("notice"):
         notices.append(info["notice"])
-    info["index_scatter"] = float(model.measurement_sd)
+    info["index_scatter"] = float(model.index_scatter)
     return PreparedRun(_with(peaks, x, lam), x_raw, model, info, correction, notices)
+
+
+def public_correction(correction: dict | None) -> dict | None:
+    """The adaptive fit as every output shows it, in the one sign convention of ΔRI: measured − library.
+
+    Internally the fit follows Zenkevich (Molecules 30, 4706, 2025): RIlib − RImeasured = a·RI + b.
+    Outputs give ``slope`` = −a and ``offset`` = −b, so that ``delta_ri = slope·RI + offset`` is the
+    expected deviation measured − library at index RI (the corrected index is RI − delta_ri), and per
+    anchor ``library_ri``, ``delta_ri`` and ``residual`` (ΔRI minus the fit).
+
+    >>> c = public_correction({"applied": True, "method": "theil-sen", "source": "confident matches", "a": 0.0,
+    ...     "b": -4.0, "scatter": 1.2, "notice": "", "coarse_shift": -4.0, "anchors": [{"peak": "3", "name": "x",
+    ...     "ri_measured": 1004.0, "ri_reference": 1000.0, "residual": 0.0, "kept": True}]})
+    >>> c["slope"], c["offset"], c["coarse_offset"], c["anchors"][0]["delta_ri"]
+    (0.0, 4.0, 4.0, 4.0)
+    """
+    if not correction:
+        return None
+
+    def neg(v):
+        return None if v is None else -float(v) + 0.0
+
+    out = {k: v for k, v in correction.items() if k not in ("a", "b", "coarse_shift", "anchors")}
+    out["slope"], out["offset"] = neg(correction.get("a")), neg(correction.get("b"))
+    out["coarse_offset"] = neg(correction.get("coarse_shift"))
+    out["anchors"] = [
+        {"peak": a.get("peak"), "name": a.get("name"), "ri_measured": a.get("ri_measured"),
+         "library_ri": a.get("ri_reference"),
+         "delta_ri": None if a.get("ri_reference") is None else float(a["ri_measured"]) - float(a["ri_reference"]),
+         "residual": neg(a.get("residual")), "kept": a.get("kept")}
+        for a in correction.get("anchors") or []
+    ]
+    return out
 
 
 def _anchor_entry_sd(home: PreparedClass, ref: np.ndarray) -> np.ndarray:
@@ -597,9 +633,40 @@ class _Keeper:
         return df[np.isin(peak_codes, np.concatenate([take_review, take_other]))].reset_index(drop=True)
 
 
+def _record(table, given: dict[str, Any] | None) -> dict[str, Any]:
+    """The run's QC-record facts: options given win over the peak table's preamble."""
+    from matcher.results import RECORD_FIELDS
+
+    found = dict(getattr(table, "metadata", None) or {})
+    out: dict[str, Any] = {}
+    for key in RECORD_FIELDS:
+        value = (given or {}).get(key)
+        value = value if value not in (None, "") else found.get(key)
+        if value not in (None, ""):
+            out[key] = str(value)
+    pairs = getattr(table, "preamble", ()) or ()
+    if pairs:
+        out["preamble"] = [[str(k), str(v)] for k, v in pairs]
+    if getattr(table, "area_percent_source", ""):
+        out["area_percent"] = table.area_percent_source
+    return out
+
+
+def _classes(phase_class: Any, n_runs: int) -> list[str]:
+    """One polarity class per run: one for all, or one per run in order (as calibrations are given)."""
+    given = [phase_class] if isinstance(phase_class, str) else list(phase_class or [])
+    if not given:
+        raise MatcherError("give the column's polarity class: --class CLASS")
+    classes = [check_class(c) for c in given]
+    if len(classes) not in (1, n_runs):
+        raise MatcherError(f"{len(classes)} --class values for {n_runs} runs: give one for all runs or one per run, "
+                           "in the same order")
+    return classes * n_runs if len(classes) == 1 else classes
+
+
 def screen(
     peak_files: Any,
-    phase_class: str,
+    phase_class: str | Sequence[str],
     *,
     db: str | None = None,
     snapshot: LibrarySnapshot | None = None,
@@ -616,15 +683,16 @@ def screen(
     homologues: bool = False,
     adaptive: bool = False,
     anchors: str | None = None,
-    measurement_sd: float | None = None,
+    index_scatter: float | None = None,
     labels: Sequence[str] | None = None,
     crowding: str | float | None = None,
     split_peaks: bool = False,
+    record: dict[str, Any] | None = None,
     progress: Callable[[int], None] | None = None,
     min_snr: float | None = None,
     sink: Callable[[Any], None] | None = None,
 ) -> ScreenResult:
-    """Screen runs against one class of the house library; see the module doc.
+    """Screen runs against the house library; see the module doc.
 
     ``sink``: called with each part of the output table (a DataFrame in output
     order) as soon as it is ready, so a writer can stream a run of any size; the
@@ -632,11 +700,14 @@ def screen(
     (:class:`_Keeper`), and ``RunResult.streamed`` is true.
 
     ``peak_files``: one run or a list of runs, each a peak-table path, a
-    pandas DataFrame or a :class:`~matcher.io.peak_tables.PeakTable`. ``calibration``
+    pandas DataFrame or a :class:`~matcher.io.peak_tables.PeakTable`. ``phase_class``:
+    one polarity class for all runs or a list with one per run, in order. ``calibration``
     (paths or :class:`~matcher.retention.calibration.Calibration` objects) or
     ``ladder`` (paths, DataFrames or ladders): one for all runs or one per
     run. ``labels`` names the runs (default: the file stem, ``run`` for a
-    table in memory). A path whose content is a GC-MS run file (ASTM E2077
+    table in memory). ``record`` holds the QC-record facts (``sample``,
+    ``analyst``, ``instrument``, ``column``); a peak table's preamble fills
+    what is not given. A path whose content is a GC-MS run file (ASTM E2077
     netCDF or mzML) has its peaks detected (:mod:`matcher.signal.chromatogram`,
     threshold ``min_snr``): apex times, areas, molecular-ion hints and spectra
     (``PeakTable.spectra``) go into the screen; a ladder may be a run file too.
@@ -647,7 +718,8 @@ def screen(
     from matcher.signal.run_peaks import read_peaks_or_run
     from matcher.identify.unlisted import crowding_density
 
-    phase_class = check_class(phase_class)
+    if isinstance(phase_class, str):
+        check_class(phase_class)
     top = R.check_top(top)
     window, window_percent = R.check_window(window, window_percent)
     mode = R.check_mode(mode)
@@ -655,11 +727,13 @@ def screen(
     crowding_density(crowding)  # a bad crowding value fails before any file is read
     if min_snr is not None:
         min_snr = R.check_min_snr(min_snr)
-    if measurement_sd is not None:
-        measurement_sd = check_sd(measurement_sd)
+    if index_scatter is not None:
+        index_scatter = check_sd(index_scatter)
+    record = R.check_record(record)
     plan = plan_runs(peak_files, calibration, ladder, labels)
     if not plan:
         raise MatcherError("no peak file given")
+    classes = _classes(phase_class, len(plan))
     # read and convert every run before any heavy work, so a bad file fails fast
     loaded = []
     for run in plan:
@@ -680,61 +754,75 @@ def screen(
         from matcher.store.snapshot_loader import load_snapshot
 
         snapshot = load_snapshot(db)
-    home = prepare(snapshot, phase_class, homologues=homologues)
-    neighbour = neighbour_of(snapshot, phase_class) if fallback else None
-    base_sd = DEFAULT_MEASUREMENT_SD[phase_class] if measurement_sd is None else float(measurement_sd)
+    prepared: dict[str, tuple[PreparedClass, PreparedClass | None]] = {}
+    for cls in dict.fromkeys(classes):  # each class prepared once, from the one snapshot
+        prepared[cls] = (prepare(snapshot, cls, homologues=homologues),
+                         neighbour_of(snapshot, cls) if fallback else None)
 
     runs: list[RunResult] = []
     labels_seen: dict[str, int] = {}
-    for run, table, cal, x_raw, extrap in loaded:
+    for (run, table, cal, x_raw, extrap), run_class in zip(loaded, classes):
+        home, neighbour = prepared[run_class]
+        base_sd = DEFAULT_MEASUREMENT_SD[run_class] if index_scatter is None else float(index_scatter)
         label = _label(run)
         if label in labels_seen:
             labels_seen[label] += 1
             label = f"{label}-{labels_seen[label]}"
         else:
             labels_seen[label] = 1
-        peaks = PeakInput(x_raw, table.mol_ion, table.ions, table.hit, table.hit_score, extrap)
+        peaks = PeakInput(x_raw, table.mol_ion, table.ions, table.hit, table.hit_match, extrap)
         user_anchors = None
         if anchors:
             user_anchors = _anchors_from_file(anchors, label, np.asarray(table.peak), snapshot, home)
         ids = np.asarray(table.peak)
         prep = prepare_run(home, peaks, base_sd, window=window, window_percent=window_percent,
                            adaptive=adaptive or bool(anchors), user_anchors=user_anchors,
-                           estimate_scatter=measurement_sd is None, peak_ids=ids, crowding=crowding,
+                           estimate_scatter=index_scatter is None, peak_ids=ids, crowding=crowding,
                            exclusive=not split_peaks)
         rt = np.asarray(table.rt, dtype=float)
+        area = getattr(table, "area", None)
+        area_percent = getattr(table, "area_percent", None)
         keeper = _Keeper(REPORT_PEAKS) if sink is not None else None
+        given = getattr(table, "rt_decimals", None)
+        decimals = np.asarray(list(given), dtype=object) if given is not None and len(given) == len(ids) else None
         frames, notes = [], set()
         for core, part in iter_shortlist(home, prep.peaks, prep.model, window=window, window_percent=window_percent,
                                          top=top, neighbour=neighbour, progress=progress):
             notes.update(part.notes)
             whole = len(core) == len(x_raw)
-            df = _table(part, label, phase_class, ids if whole else ids[core], rt if whole else rt[core],
-                        prep.x if whole else prep.x[core], x_raw if whole else x_raw[core],
-                        peaks if whole else _subset(peaks, core))
+            pick = (lambda a: a) if whole else (lambda a: None if a is None else np.asarray(a)[core])
+            df = _table(part, label, run_class, pick(ids), pick(rt), pick(prep.x), pick(x_raw),
+                        peaks if whole else _subset(peaks, core), area=pick(area), area_percent=pick(area_percent))
             if sink is not None:
+                if decimals is not None:  # the peaks' time decimals travel with the part (report.files.CsvStream)
+                    df.attrs["rt_decimals"] = {str(p): int(d) for p, d in zip(pick(ids), pick(decimals))
+                                               if d is not None}
                 sink(df)
                 df = keeper.keep(df)
             frames.append(df)
         df = frames[0] if len(frames) == 1 else _concat(frames)
         runs.append(RunResult(
-            source=run.peaks_path, label=label, phase_class=phase_class,
-            window=window_description(phase_class, window, window_percent),
-            table=df, calibration=None if cal is None else cal.to_dict(), correction=prep.correction,
-            measurement_sd=prep.model.measurement_sd, notices=prep.notices + sorted(notes),
-            peak_count=len(table.peak), run_model=prep.info, checksum=getattr(table, "checksum", ""),
+            source=run.peaks_path, label=label, phase_class=run_class,
+            window=window_description(run_class, window, window_percent),
+            table=df, calibration=None if cal is None else cal.to_dict(), correction=public_correction(prep.correction),
+            index_scatter=prep.model.index_scatter, notices=prep.notices + sorted(notes), peak_count=len(table.peak),
+            run_model=prep.info, checksum=getattr(table, "checksum", ""), record=_record(table, record),
+            rt_decimals={str(p): int(d) for p, d in zip(table.peak, getattr(table, "rt_decimals", ()) or ())
+                         if d is not None},
             streamed=sink is not None, chromatogram=getattr(table, "chromatogram", None) or None,
         ))
 
+    homes = [prepared[c][0] for c in dict.fromkeys(classes)]
     return ScreenResult(
         runs=runs,
         library={"location": snapshot.source, "revision": snapshot.revision,
-                 "entries": len(home.entries), "compounds": len(snapshot.compounds), "predicted": home.predicted},
+                 "entries": sum(len(h.entries) for h in homes), "compounds": len(snapshot.compounds),
+                 "predicted": sum(h.predicted for h in homes)},
         created=_dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat(),
         tool_version=__version__,
         caution=CAUTION,
-        settings={"class": phase_class, "top": top, "fallback": fallback, "homologues": homologues,
-                  "adaptive": adaptive, "anchors": anchors, "window": window, "window_percent": window_percent,
-                  "measurement_sd": measurement_sd, "crowding": crowding, "split_peaks": split_peaks,
-                  **({"min_snr": min_snr} if min_snr is not None else {})},
+        settings={"class": classes[0] if len(set(classes)) == 1 else classes, "top": top, "fallback": fallback,
+                  "homologues": homologues, "adaptive": adaptive, "anchors": anchors, "window": window,
+                  "window_percent": window_percent, "index_scatter": index_scatter, "crowding": crowding,
+                  "split_peaks": split_peaks, **({"min_snr": min_snr} if min_snr is not None else {})},
     )

@@ -91,7 +91,7 @@ class PeakInput:
     mol_ion: np.ndarray | None = None
     ions: Sequence[Sequence[int]] | None = None
     hit: np.ndarray | None = None
-    hit_score: np.ndarray | None = None
+    hit_match: np.ndarray | None = None
     extrapolated: np.ndarray | None = None
     unlisted: np.ndarray | None = None  # λ_U per peak (unlisted peaks per index unit); None: the model's field
 
@@ -127,7 +127,7 @@ def _hints(peaks: PeakInput, pairs_peak: np.ndarray, pairs_compound: np.ndarray,
         hits = np.asarray(peaks.hit, dtype=object)
         if any(hits.tolist()):
             sim = hit_similarity(hits, pairs_peak, pairs_compound, prep.name_keys, matching_key)
-    score = None if peaks.hit_score is None else np.asarray(peaks.hit_score, dtype=float)
+    score = None if peaks.hit_match is None else np.asarray(peaks.hit_match, dtype=float)
     elsewhere = None
     if sim is not None:
         elsewhere = hit_not_in_library(np.asarray(peaks.hit, dtype=object), prep.library_keys, matching_key, HIT_MATCH)
@@ -143,7 +143,7 @@ def _score_class(prep: PreparedClass, peaks: PeakInput, sel: np.ndarray, w: np.n
         None if peaks.mol_ion is None else np.asarray(peaks.mol_ion, dtype=float)[sel],
         None if peaks.ions is None else [peaks.ions[i] for i in sel],
         None if peaks.hit is None else np.asarray(peaks.hit, dtype=object)[sel],
-        None if peaks.hit_score is None else np.asarray(peaks.hit_score, dtype=float)[sel],
+        None if peaks.hit_match is None else np.asarray(peaks.hit_match, dtype=float)[sel],
     )
     comp = prep.entries.compound[pairs.entry]
     hints = _hints(sub, pairs.peak, comp, prep)
@@ -182,7 +182,7 @@ def shortlist(
     ent = pairs.entry
     cls_arr = np.zeros(len(ent), dtype=np.int8)  # 0 home, 1 neighbour
     logw, delta, sd = sc.logw, sc.delta, sc.sd
-    evs = [sc.ev_index, sc.ev_mol_ion, sc.ev_ions, sc.ev_hit, sc.score]
+    evs = [sc.evidence_index, sc.evidence_mol_ion, sc.evidence_ions, sc.evidence_hit, sc.score]
     mstate, istate = sc.mass_state, sc.ions_state
     comp_key = home.entries.compound[ent]
     prob, nil = assign(logw, gpeak, comp_key, n, exclusive=model.exclusive)
@@ -201,7 +201,7 @@ def shortlist(
                 logw = np.concatenate([logw, s2.logw])
                 delta = np.concatenate([delta, s2.delta])
                 sd = np.concatenate([sd, s2.sd])
-                evs = [np.concatenate([a, b]) for a, b in zip(evs, [s2.ev_index, s2.ev_mol_ion, s2.ev_ions, s2.ev_hit, s2.score])]
+                evs = [np.concatenate([a, b]) for a, b in zip(evs, [s2.evidence_index, s2.evidence_mol_ion, s2.evidence_ions, s2.evidence_hit, s2.score])]
                 mstate = np.concatenate([mstate, s2.mass_state])
                 istate = np.concatenate([istate, s2.ions_state])
                 hitsim = np.concatenate([hitsim, h2])
@@ -268,14 +268,14 @@ def shortlist(
         "formula": comp_attr("formula", ""),
         "nominal_mass": np.where(comp_row < 0, np.nan, comps.nominal_mass[safe_row] if len(comps) else np.nan).astype(float),
         "library_ri": lib_ri,
-        "library_sd": lib_sd,
-        "library_n": lib_n,
+        "library_spread": lib_sd,
+        "library_observations": lib_n,
         "delta_ri": -cat(delta, np.nan),  # measured − library
         "sd": cat(sd, np.nan),
-        "ev_index": cat(evs[0], 0.0),
-        "ev_mol_ion": cat(evs[1], 0.0),
-        "ev_ions": cat(evs[2], 0.0),
-        "ev_hit": cat(evs[3], 0.0),
+        "evidence_index": cat(evs[0], 0.0),
+        "evidence_mol_ion": cat(evs[1], 0.0),
+        "evidence_ions": cat(evs[2], 0.0),
+        "evidence_hit": cat(evs[3], 0.0),
         "score": cat(evs[4], np.nan),
         "probability": cat(prob, 0.0),
         "cross_class": cls_k == 1,

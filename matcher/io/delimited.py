@@ -93,6 +93,8 @@ class RawTable:
     decimal_comma: bool = False
     encoding: str = "utf-8"
     lines: Sequence[int] = field(default_factory=list, repr=False)  # a list, or array('q') for a file
+    #: lines above the header that were skipped as a preamble: (physical line, fields), blank lines left out
+    preamble: list[tuple[int, list[str]]] = field(default_factory=list, repr=False)
 
     def __len__(self) -> int:
         return len(self.frame)
@@ -196,10 +198,27 @@ def _raise_csv_limit() -> None:
             limit //= 2
 
 
-def load_table(path, *, what: str = "table") -> RawTable:
+def _header_at(rows: list[list[str]], is_header) -> int | None:
+    """Index of the first row that ``is_header(fields)`` accepts, or None."""
+    if is_header is None:
+        return None
+    for i, fields in enumerate(rows[:MAX_PREAMBLE_LINES + 1]):
+        if len(fields) >= 2 and is_header([f.strip() for f in fields]):
+            return i
+    return None
+
+
+#: Most lines read above a header row as a preamble (instrument exports write a dozen or two).
+MAX_PREAMBLE_LINES = 60
+
+
+def load_table(path, *, what: str = "table", is_header=None) -> RawTable:
     """Read a delimited text file (or the first sheet of an ``.xlsx``) into a :class:`RawTable`.
 
-    ``what`` names the kind of file in messages ("peak table", "ladder", ...).
+    ``what`` names the kind of file in messages ("peak table", "ladder", ...). ``is_header``
+    (a function of a row's fields) finds the header row below a preamble of any shape: the first
+    row it accepts, within :data:`MAX_PREAMBLE_LINES`, is the header, and the lines above it are
+    kept in :attr:`RawTable.preamble`.
     """
     import pandas as pd
 
@@ -210,7 +229,7 @@ def load_table(path, *, what: str = "table") -> RawTable:
 
     if data.startswith(b"PK\x03\x04"):
         if path.lower().endswith((".xlsx", ".xlsm")):
-            return _load_xlsx(path, what)
+            return _load_xlsx(path, what, is_header)
         raise InputError(f"this is a ZIP archive, not a {what}; give a CSV or an .xlsx file", file=path)
     if not data.strip(b" \t\r\n\x00"):
         raise InputError(f"empty file (expected a {what} with a header line)", file=path)
@@ -227,14 +246,29 @@ def load_table(path, *, what: str = "table") -> RawTable:
         raise InputError(f"empty file: no header line, only comments or blank lines (expected a {what})", file=path)
 
     delim = _sniff(lines[skip:])
-    # leading one-field lines above a many-column table are a preamble
-    rest = lines[skip: skip + _SAMPLE_LINES]
-    counts = [len(_fields(ln, delim)) if ln.strip() else 0 for ln in rest]
-    wide_at = next((i for i, c in enumerate(counts) if c >= 2), None)
-    if wide_at:
-        after = [c for c in counts[wide_at:] if c]
-        if sum(1 for c in after if c >= 2) >= 0.5 * len(after) and all(c <= 1 for c in counts[:wide_at]):
-            skip += wide_at
+    first_skip = skip
+    named_at = _header_at([_fields(ln, delim) for ln in lines[skip: skip + MAX_PREAMBLE_LINES + 1]], is_header)
+    if named_at is None and is_header is not None:
+        # a preamble may change the sniffed delimiter: look again with each delimiter
+        for d in _DELIMITERS:
+            at = _header_at([_fields(ln, d) for ln in lines[skip: skip + MAX_PREAMBLE_LINES + 1]], is_header)
+            if at is not None:
+                delim, named_at = d, at
+                break
+    if named_at:
+        skip += named_at
+        delim = _sniff(lines[skip:])
+    else:
+        # leading one-field lines above a many-column table are a preamble
+        rest = lines[skip: skip + _SAMPLE_LINES]
+        counts = [len(_fields(ln, delim)) if ln.strip() else 0 for ln in rest]
+        wide_at = next((i for i, c in enumerate(counts) if c >= 2), None)
+        if wide_at:
+            after = [c for c in counts[wide_at:] if c]
+            if sum(1 for c in after if c >= 2) >= 0.5 * len(after) and all(c <= 1 for c in counts[:wide_at]):
+                skip += wide_at
+    preamble = [(k + 1, [f.strip() for f in _fields(lines[k], delim)]) for k in range(first_skip, skip)
+                if lines[k].strip()]
 
     _raise_csv_limit()
     body = "\n".join(lines[skip:])
@@ -299,7 +333,7 @@ def load_table(path, *, what: str = "table") -> RawTable:
     del columns
     return RawTable(
         path=path, frame=frame, header=header, first_line=first_line, delimiter=delim,
-        decimal_comma=(delim == ";"), encoding=enc, lines=line_numbers,
+        decimal_comma=(delim == ";"), encoding=enc, lines=line_numbers, preamble=preamble,
     )
 
 
@@ -452,7 +486,7 @@ def _xlsx_cells(path: str, what: str) -> list[list[str]]:
     return [r + [""] * (width - len(r)) for r in out]
 
 
-def _load_xlsx(path: str, what: str) -> RawTable:
+def _load_xlsx(path: str, what: str, is_header=None) -> RawTable:
     import pandas as pd
 
     cells = _xlsx_cells(path, what)
@@ -463,6 +497,13 @@ def _load_xlsx(path: str, what: str) -> RawTable:
         skip += 1
     if skip >= len(cells):
         raise InputError(f"empty workbook (expected a {what} with a header row on the first sheet)", file=path)
+    first_skip = skip
+    named_at = _header_at([[str(c).strip() for c in r if str(c).strip()] for r in cells[skip: skip + MAX_PREAMBLE_LINES + 1]],
+                          is_header)
+    if named_at:
+        skip += named_at
+    preamble = [(k + 1, [str(c).strip() for c in cells[k] if str(c).strip()]) for k in range(first_skip, skip)
+                if any(str(c).strip() for c in cells[k])]
     raw_header = [str(c).strip() for c in cells[skip]]
     while raw_header and not raw_header[-1]:
         raw_header.pop()
@@ -484,7 +525,7 @@ def _load_xlsx(path: str, what: str) -> RawTable:
         line_numbers.append(i + 1)
     frame = pd.DataFrame(rows, columns=header, dtype=object) if rows else pd.DataFrame({h: pd.Series([], dtype=object) for h in header})
     return RawTable(path=path, frame=frame, header=header, first_line=skip + 1, delimiter="xlsx",
-                    decimal_comma=False, encoding="xlsx", lines=line_numbers)
+                    decimal_comma=False, encoding="xlsx", lines=line_numbers, preamble=preamble)
 
 
 # --------------------------------------------------------------------------- columns
@@ -580,6 +621,27 @@ def numbers(
     return out
 
 
+def decimals(raw: RawTable, column: str) -> list[int | None]:
+    """How many decimals each number of ``column`` was written with (None for an empty cell or an exponent).
+
+    So that a time is shown as precise as it was given: ``7.998`` stays ``7.998`` and ``3.10`` stays ``3.10``.
+
+    >>> import pandas as pd
+    >>> decimals(RawTable("t.csv", pd.DataFrame({"x": ["7.998", "3.10", "8", "", "1e3"]}, dtype=object), ["x"], 1), "x")
+    [3, 2, 0, None, None]
+    """
+    out: list[int | None] = []
+    for c in _column(raw, column):
+        c = c.strip()
+        if raw.decimal_comma and "," in c and "." not in c:
+            c = c.replace(",", ".")
+        if not c or "e" in c.lower() or not _NUMBER.fullmatch(c.replace("\u2212", "-")):
+            out.append(None)
+            continue
+        out.append(len(c.split(".", 1)[1]) if "." in c else 0)
+    return out
+
+
 def texts(raw: RawTable, column: str, *, required: bool = False) -> list[str]:
     """The text of ``column``, stripped at both ends and otherwise literal (a quoted newline stays).
 
@@ -669,7 +731,7 @@ def map_headers(
     return result
 
 
-__all__ = ["RawTable", "load_table", "numbers", "texts", "map_headers", "normalize_header", "strip_units", "echo",
+__all__ = ["RawTable", "load_table", "numbers", "decimals", "texts", "map_headers", "normalize_header", "strip_units", "echo",
            "from_frame", "as_table"]
 
 
@@ -718,10 +780,10 @@ def from_frame(frame: "pd.DataFrame", *, name: str = FRAME_NAME) -> RawTable:
     return RawTable(path=name, frame=cells, header=header, first_line=1, lines=list(range(2, len(frame) + 2)))
 
 
-def as_table(source, *, what: str = "table") -> RawTable:
+def as_table(source, *, what: str = "table", is_header=None) -> RawTable:
     """A :class:`RawTable` from a file path, a pandas DataFrame or a :class:`RawTable`."""
     if isinstance(source, RawTable):
         return source
     if hasattr(source, "columns") and hasattr(source, "iloc"):
         return from_frame(source)
-    return load_table(source, what=what)
+    return load_table(source, what=what, is_header=is_header)

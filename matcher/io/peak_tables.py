@@ -2,8 +2,11 @@
 
 Canonical columns (docs/formats.md, "Peak table"): ``peak`` (id), ``rt`` and/or ``ri``; optional
 ``mol_ion`` (nominal m/z), ``ions`` (key ions separated by spaces, commas or
-semicolons), ``hit`` (name from the lab's spectral search), ``hit_score``
-(0-100) and ``area``. Header spellings commonly seen in instrument exports
+semicolons), ``hit`` (name from the lab's spectral search), ``hit_match``
+(0-100), ``area`` and ``area_percent`` (computed from ``area`` when the file has none). A
+metadata preamble above the header (``[Header]``, ``Sample Name,oil lot 7``, ...) is skipped: the
+header is the first row naming a time or index column and another known column, and recognised
+preamble keys (sample, acquisition date, operator, instrument, column) become run metadata. Header spellings commonly seen in instrument exports
 are recognised (:data:`ALIASES`; case, spaces and punctuation are ignored, and
 a bracketed unit such as ``[s]`` or ``(min)`` is set aside); ``--map
 column=header`` overrides. A bare ``Index`` header is taken as the peak
@@ -18,7 +21,7 @@ was decided.
 be positive, finite and at most 10,000 min (:data:`MAX_RT_MIN`); indices
 finite and within 0-10,000 (:data:`MAX_RI`, well above the largest indices GC
 reaches); ``mol_ion`` and ions whole numbers 1-5,000 (:data:`MAX_MZ`);
-``hit_score`` within 0-100; ``area`` not negative; peak ids unique. A table
+``hit_match`` within 0-100; ``area`` not negative; peak ids unique. A table
 with neither a time nor an index column, or with a header but no peaks, is
 refused. Empty cells in optional
 columns are allowed (NaN / empty).
@@ -44,7 +47,7 @@ from matcher.limits import MAX_MZ, MAX_RI, MAX_RT_MIN  # declared once, shared w
 ALIASES: dict[str, list[str]] = {
     "peak": ["peak", "peak #", "peak no", "peak no.", "peak number", "peak id", "pk", "pk#", "no", "no.", "nr", "#",
              "number", "id", "index", "idx", "index no", "compound no"],
-    "rt": ["rt", "r.t.", "ret. time", "ret time", "retention time", "retention", "rt min", "time", "tr", "apex rt",
+    "rt": ["rt", "r.t.", "r.time", "r. time", "ret.time", "peak rt", "rt apex", "ret. time", "ret time", "retention time", "retention", "rt min", "time", "tr", "apex rt",
            "apex retention time", "rt s", "rt sec", "rt seconds", "rt minutes", "retention time min",
            "retention time sec", "retention time seconds", "retention time minutes", "ret time sec", "ret time min",
            "time min", "time sec", "time s"],
@@ -55,11 +58,28 @@ ALIASES: dict[str, list[str]] = {
     "ions": ["ions", "key ions", "main ions", "fragments", "major ions", "ion list", "ions m/z"],
     "hit": ["hit", "library hit", "library match", "best hit", "hit name", "compound", "compound name",
             "name", "identification", "tentative id"],
-    "hit_score": ["hit_score", "score", "match", "match score", "match factor", "similarity", "hit score", "quality", "sim",
+    "hit_match": ["hit_match", "hit_score", "score", "match", "match score", "match factor", "similarity", "hit score", "quality", "sim",
                   "match quality", "probability score"],
-    "area": ["area", "peak area", "area %", "area pct", "abundance", "response", "height area"],
+    "area_percent": ["area %", "area pct", "area percent", "% area", "percent area", "pct area", "area norm",
+                     "norm area", "normalised area", "normalized area", "area %total", "relative area"],
+    "area": ["area", "peak area", "integrated area", "area counts", "abundance", "response", "height area"],
     "spectrum": ["spectrum", "mass spectrum", "ms", "spectrum pairs"],
 }
+
+#: Preamble keys recognised as run metadata (normalised spellings, see
+#: :func:`matcher.io.delimited.normalize_header`) and the record field each one fills.
+PREAMBLE_KEYS: dict[str, tuple[str, ...]] = {
+    "sample": ("sample", "samplename", "sampleid", "samplelot", "lot", "lotnumber", "lotno", "batch", "samplenumber"),
+    "acquired": ("acquired", "acquisitiondate", "acquisitiontime", "dateacquired", "injectiondate", "injectiontime",
+                 "rundate", "date", "datetime", "analysisdate"),
+    "analyst": ("analyst", "operator", "operatorname", "user", "username", "acquiredby"),
+    "instrument": ("instrument", "instrumentname", "instrumentid", "system", "systemname", "gc"),
+    "column": ("column", "columnname", "columntype", "stationaryphase"),
+    "method": ("method", "methodname", "acquisitionmethod"),
+}
+
+#: Columns that, named in a row, make it the header row of a peak table below a preamble.
+_ANCHOR_COLUMNS = ("rt", "ri")
 
 _SECONDS = re.compile(r"[\[\(]\s*s\s*[\]\)]|\bsecs?\b|\bseconds?\b|\(sec\)|\[sec\]", re.IGNORECASE)
 _MINUTES = re.compile(r"\bmin\b|\bmins\b|\bminutes?\b|[\[\(]\s*min\s*[\]\)]", re.IGNORECASE)
@@ -105,7 +125,7 @@ class PeakTable:
     mol_ion: np.ndarray
     ions: tuple            # one tuple of ints per peak
     hit: np.ndarray        # object array of str ('' when absent)
-    hit_score: np.ndarray
+    hit_match: np.ndarray
     area: np.ndarray
     has_rt: bool
     has_ri: bool
@@ -113,6 +133,16 @@ class PeakTable:
     columns: dict          # canonical name -> header used
     lines: np.ndarray      # physical line of each peak in the file
     checksum: str = ""     # SHA-256 of the table's normalised content (see content_checksum)
+    #: each peak's share of the summed area, per cent (from the file's area % column, else computed from area)
+    area_percent: np.ndarray | None = None
+    #: where area_percent comes from: "file", "computed from area" or "" (no areas)
+    area_percent_source: str = ""
+    #: run facts found in a preamble above the header (sample, acquired, analyst, instrument, column, method)
+    metadata: dict | None = None
+    #: the preamble as read: (key, value) pairs, one per line
+    preamble: tuple = ()
+    #: decimals each time was written with (None: unknown or converted from seconds), to show it as given
+    rt_decimals: tuple = ()
     #: one entry per peak: ``(mz, intensity)`` float64 arrays sorted by m/z, or None (no spectrum);
     #: an empty tuple when the table has no spectra at all
     spectra: tuple = ()
@@ -121,7 +151,7 @@ class PeakTable:
         return len(self.peak)
 
 
-def content_checksum(peak, rt, ri, mol_ion, ions, hit, hit_score, area) -> str:
+def content_checksum(peak, rt, ri, mol_ion, ions, hit, hit_match, area) -> str:
     """SHA-256 (hex) of a peak table's normalised content: ids, times in minutes, indices, hints.
 
     The same peaks give the same checksum whatever the file's name, format (CSV, TSV,
@@ -138,7 +168,7 @@ def content_checksum(peak, rt, ri, mol_ion, ions, hit, hit_score, area) -> str:
 
     h = hashlib.sha256(b"matcher peak table v1\0")
     h.update("\x1f".join(str(p) for p in peak).encode("utf-8", "surrogatepass") + b"\0")
-    for arr in (rt, ri, mol_ion, hit_score, area):
+    for arr in (rt, ri, mol_ion, hit_match, area):
         a = np.ascontiguousarray(np.asarray(arr, dtype=np.float64))
         a = np.where(np.isnan(a), np.nan, a)  # one NaN bit pattern
         h.update(a.tobytes() + b"\0")
@@ -147,14 +177,65 @@ def content_checksum(peak, rt, ri, mol_ion, ions, hit, hit_score, area) -> str:
     return h.hexdigest()
 
 
+def _is_header(fields: list[str]) -> bool:
+    """A peak table's header row: it names a time or index column and at least one other known column."""
+    from matcher.io.delimited import normalize_header, strip_units
+
+    known = {}
+    for canon, names in ALIASES.items():
+        for n in [canon] + names:
+            known[normalize_header(n)] = canon
+    hits = [known.get(normalize_header(f)) or known.get(normalize_header(strip_units(f))) for f in fields]
+    return any(h in _ANCHOR_COLUMNS for h in hits) and sum(1 for h in hits if h) >= 2
+
+
+def preamble_metadata(lines) -> tuple[dict, tuple]:
+    """Run facts from preamble lines (``(line, fields)`` pairs): ``(record, pairs)``.
+
+    A line ``Sample Name,Rosemary oil lot 7`` or ``Operator: ana`` gives a key and a value;
+    section markers such as ``[Header]`` are skipped. Keys in :data:`PREAMBLE_KEYS` fill the
+    record (the first value wins); every pair is kept.
+
+    >>> preamble_metadata([(1, ["[Header]"]), (2, ["Sample Name", "oil lot 7"]), (3, ["Operator: ana"])])
+    ({'sample': 'oil lot 7', 'analyst': 'ana'}, (('Sample Name', 'oil lot 7'), ('Operator', 'ana')))
+    """
+    from matcher.io.delimited import normalize_header
+
+    lookup = {k: field for field, keys in PREAMBLE_KEYS.items() for k in keys}
+    record: dict = {}
+    pairs = []
+    for _, fields in lines:
+        fields = [f.strip() for f in fields if f is not None and str(f).strip()]
+        if not fields:
+            continue
+        if len(fields) == 1:
+            text = fields[0]
+            if text.startswith("[") and text.endswith("]"):
+                continue
+            m = re.match(r"\s*([^:=]{1,80}?)\s*[:=]\s*(.*)$", text)
+            if not m:
+                continue
+            key, value = m.group(1), m.group(2).strip()
+        else:
+            key, value = fields[0].rstrip(":= ").strip(), fields[1]
+        if not key or not value:
+            continue
+        key, value = key[:200], value[:1000]
+        pairs.append((key, value))
+        field = lookup.get(normalize_header(key))
+        if field and field not in record:
+            record[field] = value
+    return record, tuple(pairs)
+
+
 def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | None = None) -> PeakTable:
     """Read and check a peak table: a file (CSV, TSV, semicolon CSV or ``.xlsx``) or a pandas DataFrame.
 
     A DataFrame gets exactly the checks a file gets (see :func:`matcher.io.delimited.from_frame`).
     """
-    from matcher.io.delimited import as_table, echo, map_headers, numbers, texts
+    from matcher.io.delimited import as_table, decimals, echo, map_headers, numbers, texts
 
-    raw = as_table(path, what="peak table")
+    raw = as_table(path, what="peak table", is_header=_is_header)
     cols = map_headers(raw, ALIASES, overrides)
     if "rt" not in cols and "ri" not in cols:
         raise InputError(
@@ -182,8 +263,10 @@ def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | 
         unit, source = time_unit(cols["rt"], rt_unit)
         factor = 60.0 if unit == "s" else 1.0
         rt = numbers(raw, cols["rt"], required="ri" not in cols, positive=True, maximum=MAX_RT_MIN * factor) / factor
+        rt_given = tuple(decimals(raw, cols["rt"])) if unit == "min" else ()
     else:
         rt = nan.copy()
+        rt_given = ()
     ri = numbers(raw, cols["ri"], required="rt" not in cols, minimum=0.0, maximum=MAX_RI) if "ri" in cols else nan.copy()
     if "rt" in cols and "ri" in cols:
         both_empty = np.isnan(rt) & np.isnan(ri)
@@ -192,9 +275,18 @@ def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | 
             raise raw.fail("neither a time nor an index is given for this peak", row=k + 1, column=cols["rt"])
     mol_ion = (numbers(raw, cols["mol_ion"], required=False, integer=True, minimum=1, maximum=MAX_MZ)
                if "mol_ion" in cols else nan.copy())
-    hit_score = (numbers(raw, cols["hit_score"], required=False, minimum=0.0, maximum=100.0)
-                 if "hit_score" in cols else nan.copy())
+    hit_match = (numbers(raw, cols["hit_match"], required=False, minimum=0.0, maximum=100.0)
+                 if "hit_match" in cols else nan.copy())
     area = numbers(raw, cols["area"], required=False, nonnegative=True) if "area" in cols else nan.copy()
+    if "area_percent" in cols:
+        area_percent = numbers(raw, cols["area_percent"], required=False, minimum=0.0, maximum=100.0)
+        percent_source = "file"
+    elif np.isfinite(area).any() and np.nansum(area) > 0:
+        area_percent = area / np.nansum(area) * 100.0
+        percent_source = "computed from area"
+    else:
+        area_percent, percent_source = nan.copy(), ""
+    metadata, pairs = preamble_metadata(raw.preamble)
     hit = texts(raw, cols["hit"]) if "hit" in cols else [""] * n
     ions: list[tuple[int, ...]] = []
     if "ions" in cols:
@@ -217,17 +309,18 @@ def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | 
                 raise raw.fail(str(exc), row=k + 1, column=cols["spectrum"])
         spectra = tuple(found)
 
-    checksum = content_checksum(ids, rt, ri, mol_ion, ions, hit, hit_score, area)
+    checksum = content_checksum(ids, rt, ri, mol_ion, ions, hit, hit_match, area)
     return PeakTable(
         checksum=checksum,
         path=raw.path,
         peak=np.array(ids, dtype=object),
         rt=rt, ri=ri, mol_ion=mol_ion, ions=tuple(ions),
-        hit=np.array(hit, dtype=object), hit_score=hit_score, area=area,
+        hit=np.array(hit, dtype=object), hit_match=hit_match, area=area,
         has_rt="rt" in cols, has_ri="ri" in cols, rt_unit_source=source, columns=cols,
         lines=np.array([raw.line_of(k + 1) for k in range(n)], dtype=np.int64),
-        spectra=spectra,
+        spectra=spectra, area_percent=area_percent, area_percent_source=percent_source,
+        metadata=metadata, preamble=pairs, rt_decimals=rt_given,
     )
 
 
-__all__ = ["PeakTable", "read_peaks", "content_checksum", "time_unit", "parse_ions", "ALIASES", "MAX_RT_MIN", "MAX_RI", "MAX_MZ"]
+__all__ = ["PeakTable", "read_peaks", "preamble_metadata", "PREAMBLE_KEYS", "content_checksum", "time_unit", "parse_ions", "ALIASES", "MAX_RT_MIN", "MAX_RI", "MAX_MZ"]

@@ -11,12 +11,12 @@ The file holds nothing but the header and the rows, so any CSV reader
 (``pandas.read_csv(path)``, with or without ``comment='#'``, or the
 :mod:`csv` module) reads it. Formatting:
 
-* ``rank``, ``library_n``, ``nominal_mass`` and whole-number ``mol_ion``
+* ``rank``, ``library_observations``, ``nominal_mass`` and whole-number ``mol_ion``
   are integers; an empty cell means "none";
 * booleans are ``true`` / ``false``;
 * ``rt`` 4 decimals, indices and deviations (``ri``, ``ri_measured``,
-  ``library_ri``, ``delta_ri``, ``library_sd``) 2 decimals, ``score`` and the
-  ``ev_*`` evidence 4 decimals, ``hit_score`` 2;
+  ``library_ri``, ``delta_ri``, ``library_spread``) 2 decimals, ``score`` and the
+  ``evidence_*`` evidence 4 decimals, ``hit_match`` 2;
 * ``probability`` and ``not_in_library`` 6 decimals, **rounded down**, so a
   peak's listed probabilities never add up to more than 1 in the file;
 * ``flags`` semicolon-separated;
@@ -34,7 +34,7 @@ schema. Both files are written atomically; the sidecar first.
 **JSON** (``.json``): one document, ``"content": "shortlist"``, nested per
 run and per peak; every candidate carries an ``evidence`` object with the
 log likelihood ratios (``index``, ``mol_ion``, ``ions``, ``hit``, from the
-``ev_*`` columns). Validated by ``schema/screen-output.schema.json``
+``evidence_*`` columns). Validated by ``schema/screen-output.schema.json``
 (JSON Schema draft 2020-12, installed as ``matcher.schemas``).
 
 **XLSX** (``.xlsx``): sheet ``shortlist`` (header in row 1, same columns as
@@ -70,6 +70,7 @@ from matcher.errors import MatcherError
 from matcher.results import (
     DETAIL_COLUMNS,
     EVIDENCE_COLUMNS,
+    EVIDENCE_PREFIX,
     PEAK_KEYS,
     SHORTLIST_COLUMNS,
     RunResult,
@@ -78,6 +79,8 @@ from matcher.results import (
 )
 from matcher.rules import SHORTLIST_SUFFIXES
 from matcher.report.summary import split_flags, summarise_table, summary_of  # noqa: F401
+from matcher.report.wording import FINDING_LABELS, format_time, gap_text, readable, settings_rows
+from matcher.results import RECORD_FIELDS
 from matcher.safe_text import neutralise, spreadsheet_text
 from matcher.io.result_files import SIDECAR_SUFFIX, sidecar_path  # noqa: F401 - part of this module's API
 from matcher.location import mask_secrets, mask_url
@@ -91,10 +94,10 @@ FORMAT_VERSION = 1
 
 #: Sidecar suffix appended to a CSV path.
 
-INT_COLUMNS = ("rank", "library_n", "nominal_mass", "mol_ion")
+INT_COLUMNS = ("rank", "library_observations", "nominal_mass", "mol_ion")
 DECIMALS: dict[str, int] = {
-    "rt": 4, "ri": 2, "ri_measured": 2, "library_ri": 2, "delta_ri": 2, "library_sd": 2,
-    "score": 4, "hit_score": 2, "ev_index": 4, "ev_mol_ion": 4, "ev_ions": 4, "ev_hit": 4,
+    "rt": 4, "area_percent": 4, "ri": 2, "ri_measured": 2, "library_ri": 2, "delta_ri": 2, "library_spread": 2,
+    "score": 4, "hit_match": 2, "evidence_index": 4, "evidence_mol_ion": 4, "evidence_ions": 4, "evidence_hit": 4,
 }
 PROBABILITY_COLUMNS = ("probability", "not_in_library")
 PROBABILITY_DECIMALS = 6
@@ -108,7 +111,7 @@ def output_columns(table: pd.DataFrame | None = None) -> list[str]:
     """Contract columns, then detail columns, then any further columns of ``table``.
 
     >>> output_columns()[:3], len(output_columns())
-    (['peak', 'rt', 'ri'], 26)
+    (['peak', 'rt', 'ri'], 28)
     """
     cols = list(SHORTLIST_COLUMNS) + list(DETAIL_COLUMNS)
     if table is not None:
@@ -226,6 +229,8 @@ def csv_cells(frame: pd.DataFrame) -> dict[str, list[str]]:
             out[name] = _fmt_fixed(floor_decimals(x), PROBABILITY_DECIMALS)
         elif name in INT_COLUMNS and np.all(np.isnan(x) | (x == np.round(x))):
             out[name] = _fmt_int(x)
+        elif name == "rt":
+            out[name] = _distinct(x, format_time)
         elif name in DECIMALS:
             out[name] = _fmt_fixed(x, DECIMALS[name])
         else:
@@ -280,7 +285,7 @@ def _peaks(table: pd.DataFrame) -> list[dict[str, Any]]:
     if table is None or len(table) == 0:
         return []
     records = table.to_dict("records")
-    ev_cols = list(EVIDENCE_COLUMNS) + [c for c in table.columns if c.startswith("ev_") and c not in EVIDENCE_COLUMNS]
+    ev_cols = list(EVIDENCE_COLUMNS) + [c for c in table.columns if c.startswith(EVIDENCE_PREFIX) and c not in EVIDENCE_COLUMNS]
     extra = [c for c in table.columns if c not in output_columns() and c not in ev_cols]
     order: list[Any] = []
     groups: dict[Any, list[dict]] = {}
@@ -318,9 +323,10 @@ def run_document(run: RunResult, *, with_peaks: bool = True) -> dict[str, Any]:
         "source": mask_secrets(str(run.source)),
         "class": str(run.phase_class),
         "window": jsonable(run.window),
-        "measurement_sd": jsonable(run.measurement_sd),
+        "index_scatter": jsonable(run.index_scatter),
         "peak_count": jsonable(run.peak_count),
-        "notices": [mask_secrets(str(n)) for n in (run.notices or [])],
+        "notices": [mask_secrets(str(n)) for n in (run.notices or []) if n],
+        "record": jsonable(run.record or {}),
         "calibration": jsonable(run.calibration),
         "correction": jsonable(run.correction),
         "summary": summary_of(run),
@@ -366,11 +372,40 @@ def _dump(doc: dict[str, Any]) -> str:
 
 # --------------------------------------------------------------------------- writers
 
+def _given_times(result: ScreenResult, frame: pd.DataFrame) -> list[str]:
+    """The ``rt`` cells with the decimals each peak's time was given with (vectorised per decimals value)."""
+    parts = []
+    for run in result.runs:
+        if run.table is None:
+            continue
+        ids = run.table["peak"].astype(str)
+        parts.append(ids.map(run.rt_decimals).to_numpy(dtype=float, na_value=np.nan) if run.rt_decimals
+                     else np.full(len(ids), np.nan))
+    given = np.concatenate(parts) if parts else np.zeros(0)
+    return _times_text(frame["rt"], given)
+
+
+def _times_text(rt: pd.Series, given: np.ndarray) -> list[str]:
+    """``rt`` cells, each with the decimals in ``given`` (NaN: as :func:`format_time` writes a time)."""
+    x = pd.to_numeric(rt, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    out = np.empty(len(x), dtype=object)
+    unknown = np.isnan(given)
+    if unknown.any():
+        out[unknown] = _distinct(x[unknown], format_time)
+    for d in np.unique(given[~unknown]):
+        sel = given == d
+        out[sel] = _fmt_fixed(x[sel], int(d))
+    return out.tolist()
+
+
 def write_csv(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
     """The shortlist CSV and its provenance sidecar; returns both paths."""
     path = Path(path)
     frame = combined_table(result)
     cells = csv_cells(frame)
+    if any(run.rt_decimals for run in result.runs) and len(frame) == sum(
+            len(r.table) for r in result.runs if r.table is not None):
+        cells["rt"] = _given_times(result, frame)
     side = sidecar_path(path)
     doc = results_document(result, content="provenance", table_file=path.name, table_columns=list(frame.columns))
     with atomic_write(side) as fh:
@@ -422,6 +457,11 @@ class CsvStream:
         for start in range(0, len(frame), self.BATCH):  # text cells of a few rows at a time: memory stays flat
             part = frame.iloc[start:start + self.BATCH]
             cells = csv_cells(part)
+            if "rt" in cells:  # times as precise as they were given (the part carries its peaks' decimals)
+                decimals = frame.attrs.get("rt_decimals") or {}
+                given = part["peak"].astype(str).map(decimals).to_numpy(dtype=float, na_value=np.nan) \
+                    if decimals else np.full(len(part), np.nan)
+                cells["rt"] = _times_text(part["rt"], given)
             self._writer.writerows(zip(*(cells[c] for c in self.columns)))
         self.rows += len(frame)
 
@@ -515,54 +555,121 @@ def _xlsx_shortlist_rows(frame: pd.DataFrame):
         yield row
 
 
-def _kv_rows(prefix: str, mapping: dict[str, Any] | None):
-    for key, value in (mapping or {}).items():
-        if isinstance(value, list) and value and all(isinstance(v, dict) for v in value):
-            continue  # tables are written separately
-        yield [_xlsx_value(f"{prefix}{key}"), _xlsx_value(value)]
+def _cell(value: Any) -> Any:
+    """A runs-sheet cell: numbers stay numbers, everything else readable text (never a program value)."""
+    value = jsonable(value)
+    if isinstance(value, float):
+        return round(value, 4)  # a figure for the record; the shortlist sheet and the JSON keep full precision
+    if isinstance(value, int) and not isinstance(value, bool):
+        return value
+    return spreadsheet_text(readable(value))
 
 
-def _table_rows(title: str, records: list[dict[str, Any]] | None):
+def _table_rows(title: str, records: list[dict[str, Any]] | None, columns: dict[str, str]):
+    """A small table: title row, header of readable labels, one row per record (only the listed columns)."""
     if not records:
         return
-    keys: list[str] = []
+    yield [_cell(title)]
+    yield [_cell(label) for label in columns.values()]
     for rec in records:
-        keys += [k for k in rec if k not in keys]
-    yield [_xlsx_value(title)]
-    yield [_xlsx_value(k) for k in keys]
-    for rec in records:
-        yield [_xlsx_value(rec.get(k)) for k in keys]
+        yield [_cell(rec.get(k)) for k in columns]
+
+
+#: Labels of the runs sheet (keys of the JSON run document).
+RUN_LABELS: dict[str, str] = {
+    "source": "peak file", "class": "polarity class", "window": "tolerance window",
+    "index_scatter": "index scatter (index units)", "peak_count": "peaks",
+}
+SUMMARY_LABELS: dict[str, str] = {
+    "rows": "shortlist rows", "with_candidates": "peaks with candidates", "review": "peaks flagged for review",
+    "no_candidate": "peaks without candidate", "not_in_library": "peaks most likely not in the library",
+}
+
+
+def _series_label(series: Any) -> str:
+    from matcher.retention.series import SERIES
+
+    known = SERIES.get(str(series))
+    return known.label if known else readable(series)
+
+
+def _window_text(window: Any) -> str:
+    if not isinstance(window, dict):
+        return readable(window)
+    value = readable(window.get("value"))
+    return f"± {value} %" if window.get("mode") == "percent" else f"± {value} index units"
 
 
 def _runs_sheet_rows(result: ScreenResult):
     doc = results_document(result, content="provenance")
-    yield ["caution", _xlsx_value(doc["caution"])]
-    yield ["tool", _xlsx_value(f"matcher {doc['tool']['version']}")]
-    yield ["created", _xlsx_value(doc["created"])]
-    yield from _kv_rows("library ", doc["library"])
-    yield from _kv_rows("setting ", doc["settings"])
+    yield ["caution", _cell(doc["caution"])]
+    yield ["tool", _cell(f"matcher {doc['tool']['version']}")]
+    yield ["created", _cell(doc["created"])]
+    lib = doc["library"]
+    yield ["library", _cell(lib.get("location"))]
+    yield ["library revision", _cell(lib.get("revision"))]
+    yield ["library entries", _cell(lib.get("entries"))]
+    yield ["library compounds", _cell(lib.get("compounds"))]
+    for label, value in settings_rows(doc["settings"]):
+        yield [_cell(label), _cell(value)]
     for run in doc["runs"]:
         yield []
-        yield ["run", _xlsx_value(run["label"])]
-        for key in ("source", "class", "window", "measurement_sd", "peak_count"):
-            yield [key, _xlsx_value(run[key])]
+        yield ["run", _cell(run["label"])]
+        record = run.get("record") or {}
+        for key, label in RECORD_FIELDS.items():
+            if record.get(key):
+                yield [_cell(label), _cell(record[key])]
+        for key, label in RUN_LABELS.items():
+            value = _window_text(run[key]) if key == "window" else run[key]
+            yield [_cell(label), _cell(value)]
         for note in run["notices"]:
-            yield ["notice", _xlsx_value(note)]
-        yield from _kv_rows("summary ", {k: v for k, v in run["summary"].items() if k != "flags"})
-        yield from _kv_rows("flag ", run["summary"]["flags"])
+            yield ["notice", _cell(note)]
+        for key, label in SUMMARY_LABELS.items():
+            yield [_cell(label), _cell(run["summary"].get(key))]
+        for flag, count in run["summary"]["flags"].items():
+            yield [_cell(f"peaks flagged {flag}"), _cell(count)]
         cal = run.get("calibration") or {}
         if cal:
-            yield from _kv_rows("calibration ", {k: v for k, v in cal.items() if k not in ("qc", "standards")})
             qc = cal.get("qc") or {}
-            yield from _kv_rows("qc ", {k: v for k, v in qc.items() if k != "checks"})
-            yield from _table_rows("ladder standards", cal.get("standards"))
-            yield from _table_rows("ladder QC", qc.get("checks"))
+            hold = cal.get("holdup") or {}
+            yield ["ladder file", _cell((cal.get("source") or {}).get("ladder"))]
+            yield ["reference series", _cell(_series_label(cal.get("series")))]
+            yield ["temperature mode", _cell(f"{cal.get('mode')}: {cal.get('formula')}")]
+            if hold:
+                yield ["hold-up time (min)", _cell(hold.get("value"))]
+                yield ["hold-up time from", _cell(f"{hold.get('method')}: {hold.get('detail')}" if hold.get("detail") else hold.get("method"))]
+            if qc.get("index_range"):
+                yield ["index range covered", _cell(" to ".join(readable(v) for v in qc["index_range"]))]
+            for gap in qc.get("gaps") or []:
+                yield ["ladder gap", _cell(gap_text(gap))]
+            for w in cal.get("warnings") or []:
+                yield ["ladder warning", _cell(w)]
+            standards = [dict(s_, **{"loo": (qc.get("loo_residual") or [None] * len(cal["standards"]))[i]
+                                     if len(qc.get("loo_residual") or []) == len(cal["standards"]) else None,
+                                     "check": (qc.get("flags") or [""] * len(cal["standards"]))[i]
+                                     if len(qc.get("flags") or []) == len(cal["standards"]) else ""})
+                         for i, s_ in enumerate(cal.get("standards") or [])]
+            for s_ in standards:
+                s_["rt"] = format_time(s_.get("rt"), s_.get("rt_decimals"))
+            yield from _table_rows("ladder standards", standards,
+                                   {"name": "standard", "rt": "time (min)", "index": "index",
+                                    "loo": "leave-one-out deviation", "check": "check"})
+            yield from _table_rows("ladder findings", [dict(f, label=FINDING_LABELS.get(f.get("code"), f.get("code")))
+                                                       for f in qc.get("findings") or []],
+                                   {"level": "level", "label": "ladder check", "message": "finding"})
         cor = run.get("correction")
         if cor:
-            yield from _kv_rows("correction ", {k: v for k, v in cor.items() if k != "anchors"})
-            yield from _table_rows("correction anchors", cor.get("anchors"))
+            yield ["adaptive correction", _cell("applied" if cor.get("applied") else "not applied")]
+            yield ["fit ΔRI (measured − library) slope", _cell(cor.get("slope"))]
+            yield ["fit ΔRI (measured − library) offset", _cell(cor.get("offset"))]
+            yield ["index scatter from the anchors", _cell(cor.get("scatter"))]
+            yield ["correction notice", _cell(cor.get("notice"))]
+            yield from _table_rows("correction anchors", cor.get("anchors"),
+                                   {"peak": "peak", "name": "anchor", "ri_measured": "RI measured",
+                                    "library_ri": "library RI", "delta_ri": "ΔRI", "residual": "residual",
+                                    "kept": "in the fit"})
         else:
-            yield ["correction", "none"]
+            yield ["adaptive correction", "not requested"]
 
 
 def write_xlsx(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
@@ -635,3 +742,24 @@ def output_schema() -> dict[str, Any]:
     from importlib.resources import files
 
     return json.loads(files("matcher.schemas").joinpath("screen-output.schema.json").read_text(encoding="utf-8"))
+
+
+def schema_registry():
+    """Every schema shipped in ``matcher.schemas``, by ``$id`` and file name, for cross-file ``$ref`` (referencing)."""
+    from importlib.resources import files
+
+    from referencing import Registry, Resource
+
+    resources = []
+    for entry in files("matcher.schemas").iterdir():
+        if entry.name.endswith(".schema.json"):
+            doc = json.loads(entry.read_text(encoding="utf-8"))
+            resources.append((doc["$id"], Resource.from_contents(doc)))
+    return Registry().with_resources(resources)
+
+
+def output_validator():
+    """A draft 2020-12 validator of the screen output (JSON and CSV sidecar), its calibration ``$ref`` resolved."""
+    import jsonschema
+
+    return jsonschema.Draft202012Validator(output_schema(), registry=schema_registry())

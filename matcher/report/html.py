@@ -3,21 +3,28 @@
 ``write_report(result, "report.html")`` writes (atomically) a page with
 
 * the caution (:data:`matcher.CAUTION` as carried by the result), at the top and the bottom;
-* provenance: tool version, creation time, library (password masked), settings;
+* the QC record (sample or lot, analyst, instrument, column: ``RunResult.record``), provenance
+  (tool version, creation time, library with any password masked) and the settings in words;
 * a run summary: peaks, peaks with candidates, peaks flagged for review,
   peaks with no candidate, peaks most likely not in the library, and per
   flag the number of peaks carrying it (rules in :mod:`matcher.report.summary`);
-* per run: the ladder's QC checks and standards, a calibration plot
-  (retention time against index of the standards, with the interpolation
-  the method uses between them: straight segments for the linear index of
-  van den Dool & Kratz, J. Chromatogr. 11, 463, 1963; log-adjusted-time
-  segments for the Kováts index, Helv. Chim. Acta 41, 1915, 1958); the
-  adaptive correction (Zenkevich, Molecules 30, 4706, 2025) with a plot of
-  the deviation RIref − RIexp against the index for its anchors and the
-  fitted line ΔRI = a·RIexp + b (without anchors, the confident matches of
-  the run are shown: rank 1, probability ≥ 0.9, not marked for review);
+* per run: which index the RI column holds; what the ladder checks found, read from the calibration
+  file's own keys (``qc.findings`` and ``warnings``: a probable mislabelled or missing standard;
+  ``qc.gaps`` as readable lines; ``holdup.value`` with its method), the standards with their
+  leave-one-out deviations, a calibration plot (retention time against index of the standards, with
+  the interpolation the method uses between them: straight segments for the linear index of
+  van den Dool & Kratz, J. Chromatogr. 11, 463, 1963; log-adjusted-time segments for the Kováts
+  index, Helv. Chim. Acta 41, 1915, 1958); the adaptive correction (Zenkevich, Molecules 30, 4706,
+  2025) in the one sign convention of every output, ΔRI = measured − library = slope·RI + offset,
+  with its anchors (without anchors, the confident matches of the run are shown: rank 1,
+  probability ≥ 0.9, not marked for review); the composition (area % per peak and its most
+  probable candidate);
 * each peak's shortlist with its flags; rows needing review are marked in
-  words (and colour).
+  words (and colour);
+* a review and sign-off block (screened by, reviewed by, date, signature).
+
+No program value (None, True/False, NaN, a dict or list) reaches the visible text: every value goes
+through :func:`matcher.report.wording.readable` or a number format.
 
 Nothing is loaded from anywhere: inline CSS, inline SVG drawn by
 :mod:`matcher.report.svg`, no scripts at all. Every piece of library or user
@@ -46,6 +53,9 @@ from matcher.io.atomic import atomic_write
 from matcher.results import REPORT_PEAKS, RunResult, ScreenResult
 from matcher.report.summary import REVIEW_FLAG, engine_marks_review, row_needs_review, split_flags, summarise_table, summary_of  # noqa: F401
 from matcher.safe_text import html_text as e
+from matcher.report.wording import (finding_label, format_time, gap_text, index_statement, plural, readable,
+                                    settings_rows)
+from matcher.results import RECORD_FIELDS
 from matcher.location import mask_secrets, mask_url
 
 #: Default cap on peaks listed per run in the report.
@@ -96,6 +106,12 @@ td.peak { font-weight: 600; }
 nav ul { margin: 4px 0; padding-left: 18px; }
 svg.plot { border: 1px solid var(--line); background: #fff; max-width: 100%; height: auto; }
 footer { margin-top: 36px; }
+table.signoff { min-width: 32em; }
+table.signoff td.line { border-bottom: 1px solid var(--ink); min-width: 22em; height: 2.2em; }
+tr.total td { font-weight: 600; border-top: 1px solid var(--soft); }
+.status.note { color: var(--soft); background: var(--band); }
+details.settings { color: var(--soft); margin: 4px 0; }
+div.record table.kv th { width: 10em; }
 @media print {
   body { padding: 0; max-width: none; font-size: 11px; }
   h2 { break-before: page; }
@@ -133,16 +149,8 @@ def _kv_table(rows: Sequence[tuple[str, str]]) -> str:
 
 
 def _text(value: Any) -> str:
-    """A value of a metadata dict as escaped text (lists joined, dicts as key: value)."""
-    if value is None:
-        return ""
-    if isinstance(value, float):
-        return _num(value, 4).rstrip("0").rstrip(".") if math.isfinite(value) else ""
-    if isinstance(value, dict):
-        return e("; ".join(f"{k}: {v}" for k, v in value.items()))
-    if isinstance(value, (list, tuple)):
-        return e(", ".join(str(v) for v in value))
-    return e(value)
+    """A value of a metadata dict as escaped text a reader understands (see :mod:`matcher.report.wording`)."""
+    return e(readable(value))
 
 
 def _flags_html(flags: Sequence[str]) -> str:
@@ -150,6 +158,11 @@ def _flags_html(flags: Sequence[str]) -> str:
 
 
 # --------------------------------------------------------------------------- sections
+
+def _record_rows(record: dict[str, Any] | None) -> list[tuple[str, str]]:
+    record = record or {}
+    return [(label, e(record[key])) for key, label in RECORD_FIELDS.items() if record.get(key)]
+
 
 def _header(result: ScreenResult) -> str:
     lib = result.library or {}
@@ -159,16 +172,23 @@ def _header(result: ScreenResult) -> str:
     if lib.get("revision") not in (None, ""):
         bits.append(f"revision {e(lib['revision'])}")
     if lib.get("entries") is not None:
-        bits.append(f"{_int(lib['entries'])} entries")
+        bits.append(e(plural(int(lib["entries"]), "entry", "entries")))
     if lib.get("compounds") is not None:
-        bits.append(f"{_int(lib['compounds'])} compounds")
-    settings = ", ".join(f"{k} = {v}" for k, v in (result.settings or {}).items())
+        bits.append(e(plural(int(lib["compounds"]), "compound")))
+    # the QC record: facts shared by every run go up here, the others in each run's section
+    records = [r.record or {} for r in result.runs]
+    shared = {k: records[0][k] for k in RECORD_FIELDS if records and records[0].get(k)
+              and all(r.get(k) == records[0][k] for r in records)}
+    record = _kv_table(_record_rows(shared)) if shared else ""
+    settings = _kv_table([(label, e(value)) for label, value in settings_rows(result.settings)])
     return (
         "<header>"
         "<h1>Retention-index screening report</h1>"
-        f'<p class="meta">matcher {e(result.tool_version)} · created {e(result.created)}</p>'
+        + _caution(result, "top")
+        + (f'<div class="record" id="record">{record}</div>' if record else "")
+        + f'<p class="meta">matcher {e(result.tool_version)} · created {e(result.created)}</p>'
         + (f'<p class="meta">{" · ".join(bits)}</p>' if bits else "")
-        + (f'<p class="meta">settings: {e(settings)}</p>' if settings else "")
+        + (f'<details class="settings"><summary>Settings</summary>{settings}</details>' if settings else "")
         + "</header>"
     )
 
@@ -178,7 +198,7 @@ def _caution(result: ScreenResult, where: str) -> str:
 
 
 def _summary(result: ScreenResult, summaries: list[dict[str, Any]]) -> str:
-    head = ("<tr><th>run</th><th>class</th><th>window</th><th class=\"n\">peaks</th>"
+    head = ("<tr><th>run</th><th>polarity class</th><th>window</th><th class=\"n\">peaks</th>"
             "<th class=\"n\">with candidates</th><th class=\"n\">flagged for review</th>"
             "<th class=\"n\">no candidate</th><th class=\"n\">not in library (most likely)</th></tr>")
     rows = []
@@ -220,7 +240,7 @@ def _calibration_curve(cal: dict[str, Any], std: list[tuple[float, float]]) -> t
     mode = str(cal.get("mode") or "").lower()
     holdup = cal.get("holdup") or {}
     try:
-        tm = float(holdup.get("minutes")) if isinstance(holdup, dict) and holdup.get("minutes") is not None else None
+        tm = float(holdup.get("value")) if isinstance(holdup, dict) and holdup.get("value") is not None else None
     except (TypeError, ValueError):
         tm = None
     xs: list[float] = []
@@ -239,45 +259,87 @@ def _calibration_curve(cal: dict[str, Any], std: list[tuple[float, float]]) -> t
     return xs, ys
 
 
+def _holdup_text(holdup: Any) -> str:
+    if not isinstance(holdup, dict) or not _finite(holdup.get("value")):
+        return ""
+    method = {"given": "given", "marker": "unretained marker peak", "peterson-hirsch": "Peterson–Hirsch",
+              "fit": "least-squares fit over the ladder"}.get(str(holdup.get("method")), readable(holdup.get("method")))
+    text = f"{_num(holdup.get('value'), 3)} min ({e(method)}"
+    if holdup.get("detail"):
+        text += f"; {e(holdup.get('detail'))}"
+    text += ")"
+    if holdup.get("used") is False:
+        text += " – recorded only: it cancels in the linear index"
+    return text
+
+
 def _calibration(cal: dict[str, Any] | None) -> str:
     if not cal:
         return '<h3>Ladder calibration</h3><p class="empty">No ladder was used: the peak table gave indices.</p>'
-    holdup = cal.get("holdup") or {}
     qc = cal.get("qc") or {}
+    source = cal.get("source") or {}
+    index_range = qc.get("index_range")
+    rt_range = qc.get("rt_range")
+    gaps = [g for g in (qc.get("gaps") or []) if isinstance(g, dict)]
     facts = [
-        ("reference series", _text(cal.get("series"))),
-        ("mode", _text(cal.get("mode"))),
-        ("hold-up time", (f"{_num(holdup.get('minutes'), 3)} min" if isinstance(holdup, dict) and holdup.get("minutes") is not None else "")
-         + (f" ({e(holdup.get('method'))})" if isinstance(holdup, dict) and holdup.get("method") else "")),
-        ("index range covered", " – ".join(_num(v, 0) for v in (qc.get("range") or [])) if isinstance(qc.get("range"), (list, tuple)) else _text(qc.get("range"))),
-        ("gaps", _gaps(qc.get("gaps"))),
+        ("ladder file", e(source.get("ladder")) if isinstance(source, dict) else ""),
+        ("reference series", _series_text(cal.get("series"), cal.get("index_scale"))),
+        ("temperature mode", _text(cal.get("mode")) + (f" – {e(cal.get('formula'))}" if cal.get("formula") else "")),
+        ("hold-up time", _holdup_text(cal.get("holdup"))),
+        ("index range covered", " to ".join(_num(v, 0) for v in index_range)
+         if isinstance(index_range, (list, tuple)) and len(index_range) == 2 else ""),
+        ("time range covered", " to ".join(e(format_time(v)) for v in rt_range) + " min"
+         if isinstance(rt_range, (list, tuple)) and len(rt_range) == 2 else ""),
+        ("gaps", "<br>".join(e(gap_text(g)) for g in gaps) if gaps else ("none" if "gaps" in qc else "")),
     ]
     parts = ["<h3>Ladder calibration</h3>", _kv_table(facts)]
-    checks = qc.get("checks") or []
-    if checks:
-        rows = "".join(
-            f'<tr class="qc-{e(str(c.get("status", "")).lower())}"><td>{e(c.get("check"))}</td>'
-            f'<td><span class="status {e(str(c.get("status", "")).lower())}">{e(c.get("status"))}</span></td>'
-            f"<td>{e(c.get('detail'))}</td></tr>"
-            for c in checks if isinstance(c, dict)
-        )
-        parts.append(f'<table class="qc"><tr><th>QC check</th><th>status</th><th>detail</th></tr>{rows}</table>')
+    findings = [f for f in (qc.get("findings") or []) if isinstance(f, dict)]
+    warnings = [str(w) for w in (cal.get("warnings") or [])]
+    listed = {str(f.get("message")) for f in findings}
+    rows = "".join(
+        f'<tr class="qc-{e(f.get("level"))}"><td><span class="status {"warn" if f.get("level") == "warning" else "note"}">'
+        f'{e(f.get("level"))}</span></td><td>{e(finding_label(f.get("code")))}</td><td>{e(f.get("message"))}</td></tr>'
+        for f in findings
+    ) + "".join(
+        f'<tr class="qc-warning"><td><span class="status warn">warning</span></td><td>ladder</td><td>{e(w)}</td></tr>'
+        for w in warnings if w not in listed
+    )
+    if rows:
+        parts.append('<table class="qc ladder-findings"><tr><th>level</th><th>ladder check</th><th>finding</th></tr>'
+                     f"{rows}</table>")
+    else:
+        parts.append('<p class="note ladder-findings"><span class="status pass">pass</span> '
+                     "The ladder's spacing follows its trend throughout; no standard looks mislabelled or missing.</p>")
     standards = [s for s in (cal.get("standards") or []) if isinstance(s, dict)]
-    residuals = qc.get("residuals")
-    per_std = isinstance(residuals, (list, tuple)) and len(residuals) == len(standards) and all(
-        not isinstance(r, (dict, list)) for r in residuals)
+
+    def per_standard(key: str) -> list | None:
+        values = qc.get(key)
+        ok = isinstance(values, (list, tuple)) and len(values) == len(standards)
+        return list(values) if ok else None
+
+    loo, fit, marks = per_standard("loo_residual"), per_standard("fit_residual"), per_standard("flags")
+    ratio = qc.get("spacing_ratio") if isinstance(qc.get("spacing_ratio"), (list, tuple)) else None
+    spacing = ([None] + list(ratio)) if ratio is not None and len(ratio) == len(standards) - 1 else None
+    if fit is not None and all(v is None for v in fit):
+        fit = None
     std_table = ""
     if standards:
-        rhead = '<th class="n">residual</th>' if per_std else ""
-        rows = "".join(
-            f"<tr><td>{e(s.get('name'))}</td><td class=\"n\">{_num(s.get('rt'), 3)}</td><td class=\"n\">{_num(s.get('index'), 1)}</td>"
-            + (f'<td class="n">{_num(residuals[i], 2)}</td>' if per_std else "") + "</tr>"
+        head = ('<th>standard</th><th class="n">time (min)</th><th class="n">index</th>'
+                + ('<th class="n">spacing vs trend</th>' if spacing else "")
+                + ('<th class="n">leave-one-out deviation</th>' if loo else "")
+                + ('<th class="n">deviation from the log line</th>' if fit else "")
+                + ("<th>check</th>" if marks else ""))
+        body = "".join(
+            f"<tr><td>{e(s.get('name'))}</td><td class=\"n\">{e(format_time(s.get('rt'), s.get('rt_decimals')))}</td>"
+            f"<td class=\"n\">{_num(s.get('index'), 1)}</td>"
+            + (f'<td class="n">{_num(spacing[i], 2) if spacing[i] is not None else ""}</td>' if spacing else "")
+            + (f'<td class="n">{_num(loo[i], 1) if loo[i] is not None else ""}</td>' if loo else "")
+            + (f'<td class="n">{_num(fit[i], 2) if fit[i] is not None else ""}</td>' if fit else "")
+            + (f"<td>{_check_mark(marks[i])}</td>" if marks else "")
+            + "</tr>"
             for i, s in enumerate(standards)
         )
-        std_table = (f'<table class="standards"><tr><th>standard</th><th class="n">rt (min)</th>'
-                     f'<th class="n">index</th>{rhead}</tr>{rows}</table>')
-    elif residuals:
-        parts.append(_kv_table([("residuals", _text(residuals))]))
+        std_table = f'<table class="standards"><tr>{head}</tr>{body}</table>'
     pairs = sorted(
         (float(s["rt"]), float(s["index"])) for s in standards
         if _finite(s.get("rt")) and _finite(s.get("index"))
@@ -289,7 +351,7 @@ def _calibration(cal: dict[str, Any] | None) -> str:
         layers = [
             plots.line(cx, cy, name="interpolation (isothermal, log scale)" if mode.lower() == "isothermal" else "interpolation (linear)"),
             plots.points([p[0] for p in pairs], [p[1] for p in pairs],
-                         labels=[f"{s.get('name')}: {s.get('rt')} min, {s.get('index')}" for s in sorted(
+                         labels=[f"{s.get('name')}: {format_time(s.get('rt'))} min, {readable(s.get('index'))}" for s in sorted(
                              (s for s in standards if _finite(s.get("rt")) and _finite(s.get("index"))),
                              key=lambda s: float(s["rt"]))],
                          name="standards"),
@@ -301,12 +363,18 @@ def _calibration(cal: dict[str, Any] | None) -> str:
     return "".join(parts)
 
 
-def _gaps(gaps: Any) -> str:
-    if not gaps:
-        return "none" if isinstance(gaps, (list, tuple)) else ""
-    if isinstance(gaps, (list, tuple)) and all(isinstance(g, (list, tuple)) and len(g) == 2 for g in gaps):
-        return e(", ".join(f"{_num(a, 0)}–{_num(b, 0)}" for a, b in gaps))
-    return _text(gaps)
+def _series_text(series: Any, scale: Any) -> str:
+    from matcher.retention.series import SERIES
+
+    known = SERIES.get(str(series))
+    name = known.label if known else readable(series)
+    return e(name) + (f"; index scale: {e(scale)}" if scale else "")
+
+
+def _check_mark(mark: Any) -> str:
+    words = {"mislabel?": "probable mislabel", "missing?": "standard missing before it", "uneven?": "uneven spacing"}
+    text = readable(mark)
+    return f'<span class="status warn">{e(words.get(text, text))}</span>' if text else ""
 
 
 def _finite(value: Any) -> bool:
@@ -331,7 +399,7 @@ def _confident_matches(table: pd.DataFrame) -> list[dict[str, Any]]:
         measured = rec.get("ri_measured") if _finite(rec.get("ri_measured")) else rec.get("ri")
         if _finite(measured) and _finite(rec.get("library_ri")):
             out.append({"peak": rec.get("peak"), "name": rec.get("name"),
-                        "ri_measured": float(measured), "ri_reference": float(rec["library_ri"])})
+                        "ri_measured": float(measured), "library_ri": float(rec["library_ri"])})
     return out
 
 
@@ -339,33 +407,36 @@ def _correction(run: RunResult) -> str:
     cor = run.correction
     parts = ["<h3>Adaptive correction</h3>"]
     anchors: list[dict[str, Any]] = []
-    fit_a = fit_b = None
+    slope = offset = None
     if cor:
         applied = bool(cor.get("applied"))
-        fit_a, fit_b = cor.get("a"), cor.get("b")
-        if applied and _finite(fit_a) and _finite(fit_b):
-            eq = (f"ΔRI = RIref − RIexp = {_num(fit_a, 5)} · RIexp {'+' if float(fit_b) >= 0 else '−'} "
-                  f"{_num(abs(float(fit_b)), 2)}")
+        slope, offset = cor.get("slope"), cor.get("offset")
+        if applied and _finite(slope) and _finite(offset):
+            eq = (f"ΔRI (measured − library) = {_num(slope, 5)} · RI {'+' if float(offset) >= 0 else '−'} "
+                  f"{_num(abs(float(offset)), 2)}")
             status = f'<span class="status pass">applied</span> {e(eq)}'
         else:
-            status = '<span class="status warn">not applied</span>'
+            status = '<span class="status warn">not applied</span> the plain screen was used'
         parts.append(_kv_table([
             ("correction", status),
-            ("method", _text(cor.get("method"))),
-            ("run index scatter", _num(cor.get("scatter"), 2) if _finite(cor.get("scatter")) else ""),
+            ("fit", e({"theil-sen": "Theil–Sen line, anchors beyond 3 robust SDs dropped and refitted"}.get(
+                str(cor.get("method")), readable(cor.get("method"))))),
+            ("anchors from", _text(cor.get("source"))),
+            ("index scatter of the run", _num(cor.get("scatter"), 2) if _finite(cor.get("scatter")) else ""),
             ("notice", e(mask_secrets(str(cor.get("notice")))) if cor.get("notice") else ""),
         ]))
         anchors = [a for a in (cor.get("anchors") or []) if isinstance(a, dict)]
         if anchors:
             rows = "".join(
                 f"<tr><td>{e(a.get('peak'))}</td><td>{e(a.get('name'))}</td>"
-                f"<td class=\"n\">{_num(a.get('ri_measured'))}</td><td class=\"n\">{_num(a.get('ri_reference'))}</td>"
-                f"<td class=\"n\">{_num(_dev(a))}</td><td class=\"n\">{_num(a.get('residual'))}</td></tr>"
+                f"<td class=\"n\">{_num(a.get('ri_measured'))}</td><td class=\"n\">{_num(a.get('library_ri'))}</td>"
+                f"<td class=\"n\">{_num(_dev(a))}</td><td class=\"n\">{_num(a.get('residual'))}</td>"
+                f"<td>{'' if a.get('kept') is None else ('kept' if a.get('kept') else 'dropped')}</td></tr>"
                 for a in anchors
             )
             anchor_table = ('<table class="anchors"><tr><th>peak</th><th>anchor</th><th class="n">RI measured</th>'
-                            '<th class="n">RI reference</th><th class="n">ΔRI</th><th class="n">residual</th></tr>'
-                            f"{rows}</table>")
+                            '<th class="n">library RI</th><th class="n">ΔRI</th><th class="n">residual</th>'
+                            f"<th>in the fit</th></tr>{rows}</table>")
         else:
             anchor_table = '<p class="empty">No anchors.</p>'
         point_name = "anchors"
@@ -376,37 +447,82 @@ def _correction(run: RunResult) -> str:
         anchors = _confident_matches(run.table)
         anchor_table = ""
         point_name = "confident matches"
-    xs = [float(a["ri_measured"]) for a in anchors if _finite(a.get("ri_measured")) and _finite(a.get("ri_reference"))]
-    ys = [_dev(a) for a in anchors if _finite(a.get("ri_measured")) and _finite(a.get("ri_reference"))]
-    labels = [f"{a.get('name')} (peak {a.get('peak')})" for a in anchors
-              if _finite(a.get("ri_measured")) and _finite(a.get("ri_reference"))]
+    usable = [a for a in anchors if _finite(a.get("ri_measured")) and _finite(a.get("library_ri"))]
+    xs = [float(a["ri_measured"]) for a in usable]
+    ys = [_dev(a) for a in usable]
+    labels = [f"{a.get('name')} (peak {a.get('peak')})" for a in usable]
     layers = [plots.points(xs, ys, labels=labels, name=point_name)]
-    if xs and _finite(fit_a) and _finite(fit_b):
+    if xs and _finite(slope) and _finite(offset):
         lo, hi = min(xs), max(xs)
         span = max(hi - lo, 1.0)
         gx = [lo - 0.05 * span, hi + 0.05 * span]
-        gy = [float(fit_a) * x + float(fit_b) for x in gx]
+        gy = [float(slope) * x + float(offset) for x in gx]
         applied = bool(cor and cor.get("applied"))
         scatter = cor.get("scatter") if cor else None
         if applied and _finite(scatter):
             s = float(scatter)
-            layers.insert(0, plots.band(gx, [y - s for y in gy], [y + s for y in gy], name=f"± scatter ({_num(s, 2)})"))
+            layers.insert(0, plots.band(gx, [y - s for y in gy], [y + s for y in gy], name=f"± index scatter ({_num(s, 2)})"))
         layers.append(plots.line(gx, gy, colour="secondary", dashed=not applied,
-                                 name="fit ΔRI = a·RIexp + b" + ("" if applied else " (not applied)")))
-    plot = plots.xy_plot(layers, x_label="retention index (measured)", y_label="ΔRI = reference − measured",
+                                 name="fit ΔRI = slope·RI + offset" + ("" if applied else " (not applied)")))
+    plot = plots.xy_plot(layers, x_label="retention index (measured)", y_label="ΔRI = measured − library",
                          title="Deviation against index", width=520, height=300, zero_line=True)
     parts.append(f'<div class="grid"><div>{anchor_table}</div><div class="plotbox">{plot}</div></div>')
     return "".join(parts)
 
 
 def _dev(anchor: dict[str, Any]) -> float:
+    """ΔRI of an anchor or confident match: measured − library (the one sign convention of every output)."""
     try:
-        return float(anchor.get("ri_reference")) - float(anchor.get("ri_measured"))
+        return float(anchor.get("ri_measured")) - float(anchor.get("library_ri"))
     except (TypeError, ValueError):
         return math.nan
 
 
-_SHORT_HEAD = ("<thead><tr><th></th><th>peak</th><th class=\"n\">rt</th><th class=\"n\">RI</th><th class=\"n\">rank</th>"
+def _composition(run: RunResult) -> str:
+    """Peak areas with each peak's best candidate: the composition a QC record lists."""
+    table = run.table
+    if table is None or len(table) == 0 or "area_percent" not in table:
+        return ""
+    pct = pd.to_numeric(table["area_percent"], errors="coerce")
+    if not pct.notna().any():
+        return ""
+    marks = engine_marks_review(table)
+    rows = []
+    total_pct = 0.0
+    for _, group in table.groupby("peak", sort=False):
+        first = group.iloc[0].to_dict()
+        p = first.get("area_percent")
+        if not _finite(p):
+            continue
+        total_pct += float(p)
+        ranked = _finite(first.get("rank"))
+        if ranked and _finite(first.get("not_in_library")) and _finite(first.get("probability")) \
+                and float(first["not_in_library"]) > float(first["probability"]):
+            ranked = False  # none of the listed compounds is as probable as "not in library"
+        needs = any(row_needs_review(f, engine_marks=marks) for f in group["flags"])
+        rows.append(
+            f"<tr><td>{e(first.get('peak'))}</td><td class=\"n\">{e(run.time_text(first.get('peak'), first.get('rt')))}</td>"
+            f"<td class=\"n\">{_num(first.get('ri'), 1)}</td><td class=\"n\">{_num(first.get('area'), 0) if _finite(first.get('area')) else ''}</td>"
+            f"<td class=\"n\">{_num(p, 2)}</td>"
+            f"<td>{e(first.get('name')) if ranked else '<span class=empty>most likely not in the library</span>'}</td>"
+            f"<td class=\"n\">{_num(first.get('probability'), 3) if ranked else _num(first.get('not_in_library'), 3)}</td>"
+            f"<td>{'review' if needs else ''}</td></tr>"
+        )
+    source = (run.record or {}).get("area_percent", "")
+    note = ("Area % as given in the peak table." if source == "file"
+            else "Area % computed from the areas: each peak's share of the run's summed area.")
+    return ('<h3>Composition</h3>'
+            f'<p class="note">{e(note)} The name is the most probable candidate, tentative like every '
+            "identification here.</p>"
+            '<table class="composition"><tr><th>peak</th><th class="n">rt (min)</th><th class="n">RI</th>'
+            '<th class="n">area</th><th class="n">area %</th><th>most probable candidate</th>'
+            f'<th class="n">probability</th><th></th></tr>{"".join(rows)}'
+            f'<tr class="total"><td colspan="4">total listed</td><td class="n">{_num(total_pct, 2)}</td>'
+            "<td colspan=\"3\"></td></tr></table>")
+
+
+_SHORT_HEAD = ("<thead><tr><th></th><th>peak</th><th class=\"n\">rt (min)</th><th class=\"n\">RI</th>"
+               "<th class=\"n\">area %</th><th class=\"n\">rank</th>"
                "<th>name</th><th>CAS</th><th>formula</th><th class=\"n\">library RI</th><th class=\"n\">ΔRI</th>"
                "<th class=\"n\">probability</th><th class=\"n\">not in library</th><th>flags</th></tr></thead>")
 
@@ -444,8 +560,9 @@ def _shortlists(run: RunResult, max_peaks: int) -> str:
                 f'<tr class="{"needs-review" if needs else "ok"}">'
                 f'<td class="mark">{"review" if needs else ""}</td>'
                 f'<td class="peak">{e(rec.get("peak")) if first else ""}</td>'
-                f'<td class="n">{_num(rec.get("rt"), 3) if first else ""}</td>'
+                f'<td class="n">{e(run.time_text(rec.get("peak"), rec.get("rt"))) if first else ""}</td>'
                 f'<td class="n">{_num(rec.get("ri"), 1) if first else ""}</td>'
+                f'<td class="n">{_num(rec.get("area_percent"), 2) if first and _finite(rec.get("area_percent")) else ""}</td>'
                 f'<td class="n">{_int(rec.get("rank"))}</td>'
                 f'<td class="name">{e(rec.get("name")) if ranked else "<span class=empty>no candidate</span>"}</td>'
                 f'<td class="cas">{e(rec.get("cas"))}</td><td class="formula">{e(rec.get("formula"))}</td>'
@@ -505,15 +622,32 @@ def _interp(xs: Sequence, ys: Sequence, x: Any) -> float:
         return float("nan")
 
 
-def _run_section(i: int, run: RunResult, summary: dict[str, Any], max_peaks: int) -> str:
+def _scatter_text(run: RunResult, settings: dict[str, Any]) -> str:
+    if not _finite(run.index_scatter):
+        return ""
+    value = _num(run.index_scatter, 2)
+    cor = run.correction or {}
+    if settings.get("index_scatter") is not None:
+        how = "given with --index-scatter"
+    elif cor.get("applied") and _finite(cor.get("scatter")):
+        how = "estimated from the adaptive fit's kept anchors"
+    else:
+        how = "class default, 0.3 × the window"
+    return f"{value} index units ({e(how)})"
+
+
+def _run_section(i: int, run: RunResult, summary: dict[str, Any], max_peaks: int, settings: dict[str, Any],
+                 shared: set[str]) -> str:
     facts = [
         ("peak file", e(mask_secrets(str(run.source)))),
-        ("phase class", e(run.phase_class)),
+        *[(label, value) for label, value in _record_rows({k: v for k, v in (run.record or {}).items() if k not in shared})],
+        ("polarity class", e(run.phase_class)),
         ("tolerance window", _window(run.window)),
-        ("index scatter assumed", _num(run.measurement_sd, 2) if _finite(run.measurement_sd) else ""),
+        ("index scatter", _scatter_text(run, settings)),
         ("peaks", str(summary["peaks"])),
+        ("RI column", e(index_statement(run.calibration, run.correction))),
     ]
-    notices = "".join(f"<li>{e(mask_secrets(str(n)))}</li>" for n in (run.notices or []))
+    notices = "".join(f"<li>{e(mask_secrets(str(n)))}</li>" for n in (run.notices or []) if n)
     return (
         f'<section class="run" id="run-{i}"><h2>Run {i}: {e(run.label)}</h2>'
         + _kv_table(facts)
@@ -521,24 +655,44 @@ def _run_section(i: int, run: RunResult, summary: dict[str, Any], max_peaks: int
         + _chromatograms(i, run)
         + f'<div id="run-{i}-calibration">{_calibration(run.calibration)}</div>'
         + f'<div id="run-{i}-correction">{_correction(run)}</div>'
+        + f'<div id="run-{i}-composition">{_composition(run)}</div>'
         + f'<div id="run-{i}-shortlists">{_shortlists(run, max_peaks)}</div>'
         + "</section>"
+    )
+
+
+def _signature(result: ScreenResult) -> str:
+    """The sign-off block that ends the record: screened by, reviewed by, date, signature."""
+    analysts = sorted({str((r.record or {}).get("analyst")) for r in result.runs if (r.record or {}).get("analyst")})
+    return (
+        '<section class="signoff" id="sign-off"><h2>Review and sign-off</h2>'
+        '<table class="signoff">'
+        f"<tr><th scope=\"row\">screened by</th><td>{e(', '.join(analysts))}</td></tr>"
+        "<tr><th scope=\"row\">reviewed by</th><td class=\"line\"></td></tr>"
+        "<tr><th scope=\"row\">date</th><td class=\"line\"></td></tr>"
+        "<tr><th scope=\"row\">signature</th><td class=\"line\"></td></tr>"
+        "</table>"
+        '<p class="note">The reviewer confirms that the flagged peaks were looked at; identifications stay '
+        "tentative until confirmed with an authentic standard.</p></section>"
     )
 
 
 def render_report(result: ScreenResult, *, max_peaks: int = MAX_PEAKS) -> str:
     """The whole report as one HTML string (see the module doc)."""
     summaries = [summary_of(r) for r in result.runs]
+    records = [r.record or {} for r in result.runs]
+    shared = {k for k in RECORD_FIELDS if records and records[0].get(k) and all(r.get(k) == records[0][k] for r in records)}
     nav = ""
     if len(result.runs) > 1:
         items = "".join(f'<li><a href="#run-{i}">{e(r.label)}</a></li>' for i, r in enumerate(result.runs, start=1))
         nav = f"<nav><ul>{items}</ul></nav>"
     body = (
         _header(result)
-        + _caution(result, "top")
         + nav
         + _summary(result, summaries)
-        + "".join(_run_section(i, r, s, max_peaks) for i, (r, s) in enumerate(zip(result.runs, summaries), start=1))
+        + "".join(_run_section(i, r, s, max_peaks, result.settings or {}, shared)
+                  for i, (r, s) in enumerate(zip(result.runs, summaries), start=1))
+        + _signature(result)
         + f"<footer>{_caution(result, 'bottom')}"
         + f'<p class="meta">matcher {e(result.tool_version)} · {e(result.created)}</p></footer>'
     )

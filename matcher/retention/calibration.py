@@ -67,6 +67,8 @@ class Calibration:
     source: dict = field(default_factory=dict)
     created: str = ""
     version: str = ""
+    #: decimals each standard's time was given with (None where unknown); shown as given
+    rt_decimals: list[int | None] = field(default_factory=list)
 
     # ------------------------------------------------------------------ conversion
     def convert(self, rt_minutes) -> tuple[np.ndarray, np.ndarray]:
@@ -109,6 +111,8 @@ class Calibration:
                 s["carbons"] = int(self.carbons[k])
             if self.rows and self.rows[k] is not None:
                 s["row"] = int(self.rows[k])
+            if self.rt_decimals and self.rt_decimals[k] is not None:
+                s["rt_decimals"] = int(self.rt_decimals[k])
             standards.append(s)
         return {
             "format": "matcher.calibration",
@@ -146,6 +150,7 @@ class Calibration:
             series=d["series"], mode=d["mode"], rt=rt, index=index, names=[s["name"] for s in st],
             holdup=holdup, holdup_used=bool(hold and hold["used"]),
             carbons=[s.get("carbons") for s in st], rows=[s.get("row") for s in st],
+            rt_decimals=[s.get("rt_decimals") for s in st],
             qc=d["qc"], warnings=list(d["warnings"]), source=dict(d["source"]),
             created=d["created"], version=d["tool"]["version"],
         )
@@ -202,7 +207,7 @@ def calibrate(ladder: Ladder, *, mode: str = "programmed", holdup: str | None = 
         series=ladder.series, mode=mode, rt=np.asarray(ladder.rt, dtype=np.float64).copy(),
         index=np.asarray(ladder.index, dtype=np.float64).copy(), names=list(ladder.names),
         holdup=hold, holdup_used=used, carbons=carbons, rows=[int(r) for r in ladder.rows],
-        qc=qc.to_dict(), warnings=warnings,
+        qc=qc.to_dict(), warnings=warnings, rt_decimals=list(getattr(ladder, "rt_decimals", None) or []),
         source={"ladder": os.path.basename(ladder.path), "rt_unit": ladder.rt_unit, "rt_unit_source": ladder.rt_unit_source},
         created=_now(), version=__version__,
     )

@@ -71,6 +71,8 @@ class Ladder:
     rows: np.ndarray  # data row of each standard in the file
     rt_unit: str = "min"
     rt_unit_source: str = "default (minutes)"
+    #: decimals each time was written with in the file (None: unknown, or converted from seconds)
+    rt_decimals: list | None = None
 
     def __len__(self) -> int:
         return len(self.rt)
@@ -81,7 +83,7 @@ def read_ladder(path, *, series: str | None = None, rt_unit: str | None = None,
     """Read and hard-check a ladder: a file or a pandas DataFrame (same checks); see the module docstring."""
     from matcher.io.peak_tables import time_unit
     from matcher.retention.series import assigned_index, lee_index
-    from matcher.io.delimited import as_table, map_headers, numbers, texts
+    from matcher.io.delimited import as_table, decimals, map_headers, numbers, texts
 
     raw = as_table(path, what="ladder")
     cols = map_headers(raw, ALIASES, overrides)
@@ -100,6 +102,7 @@ def read_ladder(path, *, series: str | None = None, rt_unit: str | None = None,
 
     unit, source = time_unit(cols["rt"], rt_unit)
     rt = numbers(raw, cols["rt"], positive=True, maximum=MAX_RT_MIN * (60.0 if unit == "s" else 1.0))
+    given = decimals(raw, cols["rt"]) if unit == "min" else [None] * len(rt)
     if unit == "s":
         rt = rt / 60.0
     n = len(rt)
@@ -154,7 +157,7 @@ def read_ladder(path, *, series: str | None = None, rt_unit: str | None = None,
 
     names = [names[i] for i in order]
     return Ladder(path=raw.path, series=key, rt=srt, index=si, names=names, carbons=carbons[order],
-                  rows=rows[order], rt_unit=unit, rt_unit_source=source)
+                  rows=rows[order], rt_unit=unit, rt_unit_source=source, rt_decimals=[given[i] for i in order])
 
 
 def default_name(series: str, index: float) -> str:

@@ -125,11 +125,14 @@ def detect_run(path, *, min_snr: float | None = None, deconvolve: bool = True, r
     spectra = tuple((sp[0], sp[1]) if len(sp[0]) else None for sp in det.spectra)
     return RunPeakTable(
         path=run.path, peak=np.array(ids, dtype=object), rt=rt, ri=nan.copy(), mol_ion=mol, ions=tuple(ions),
-        hit=np.array(hit, dtype=object), hit_score=nan.copy(), area=det.area.copy(), has_rt=True, has_ri=False,
+        hit=np.array(hit, dtype=object), hit_match=nan.copy(), area=det.area.copy(), has_rt=True, has_ri=False,
         rt_unit_source=f"run file ({run.format_name}): {run.time_unit_source}", columns={},
         lines=np.arange(1, n + 1, dtype=np.int64),
         checksum=content_checksum(ids, rt, nan, mol, ions, hit, nan, det.area), spectra=spectra,
         run_format=run.format, detection=det, chromatogram=_chromatogram(run, det),
+        area_percent=100.0 * det.area / det.area.sum() if n and det.area.sum() > 0 else None,
+        area_percent_source="computed from area" if n and det.area.sum() > 0 else "",
+        metadata={"acquired": run.acquired} if getattr(run, "acquired", None) else None,
     )
 
 

@@ -75,7 +75,7 @@ class AddResult:
     def summary(self) -> str:
         what = "new compound" if self.created else "added to"
         s = (f"{what} {self.name!r}: observation {self.observation_id}, {self.phase_class} index {self.ri:g}; "
-             f"centre now {self.after.centre:.1f} (spread {self.after.spread:.1f}, {self.after.count} observations)")
+             f"centre now {self.after.centre:.1f} (spread {self.after.spread:.1f}, {self.after.count} observation{'' if self.after.count == 1 else 's'})")
         if self.forced:
             s += "; accepted past the outlier guard (--force)"
         return s
@@ -162,6 +162,21 @@ def _not_found(session, text: str) -> LibraryError:
     return LibraryError(f"no compound {text!r} in the library{hint}")
 
 
+def _greek_shorthand_owner(idx, key: str) -> int | None:
+    """The one compound that ``key`` names in Greek shorthand (``b-pinene`` for β-pinene), as ``library find`` reads it.
+
+    Only when exactly one compound (name or synonym) has the same key with Greek letter names shortened,
+    and the two keys differ only by that shortening (one of them spells a Greek letter out).
+    """
+    from matcher.chem.names import short_greek_key
+
+    short = short_greek_key(key)
+    if not short:
+        return None
+    owners = {cid for k, cid in idx.by_key.items() if k != key and short_greek_key(k) == short}
+    return next(iter(owners)) if len(owners) == 1 else None
+
+
 def _resolve(session, v: dict, *, new: bool, as_existing: str | None):
     """(compound or None for a new one, how, synonym to add) or raises Unresolved/RefusedChange."""
     from matcher.chem.names import matching_key
@@ -183,6 +198,12 @@ def _resolve(session, v: dict, *, new: bool, as_existing: str | None):
         if new:
             raise RefusedChange(f"{name!r} is already in the library as {c.name!r}; --new cannot make a second copy; nothing written")
         return c, ("name" if c.key == key else "synonym"), None
+    shorthand = _greek_shorthand_owner(idx, key)
+    if shorthand is not None:  # b-pinene for β-pinene: the same compound, as find reads it
+        c = session.get(Compound, shorthand)
+        if new:
+            raise RefusedChange(f"{name!r} is {c.name!r} in Greek shorthand; --new cannot make a second copy; nothing written")
+        return c, "greek-shorthand", None
     if new:
         return None, "new", None
     matches: list[Match] = []
@@ -264,7 +285,7 @@ def add_checked_observation(db: str | None, v: dict, *, guard_limit: Callable[["
                 if not force:
                     raise RefusedChange(
                         f"index {v['ri']:g} is {dev:+.1f} units from the centre of {c.name!r} on {cls} "
-                        f"(centre {before.centre:.1f}, spread {before.spread:.1f}, {before.count} observations); "
+                        f"(centre {before.centre:.1f}, spread {before.spread:.1f}, {before.count} observation{'' if before.count == 1 else 's'}); "
                         f"the limit is {limit:.1f} (the larger of 3 spreads and the class window); nothing written. "
                         f"Check the value, or add --force if it is right")
                 forced = True

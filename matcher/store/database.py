@@ -124,6 +124,10 @@ def _sqlite_setup(engine: Engine, readonly: bool = False) -> None:
         conn.exec_driver_sql(f"BEGIN {mode}")
 
 
+#: The install command that adds the PostgreSQL driver (named in the message when it is missing).
+POSTGRES_INSTALL = 'pip install "matcher[postgres]"'
+
+
 def engine_for(db: str | None = None) -> Engine:
     """A cached engine for a path or URL (``None``: ``$MATCHER_DB`` or the default file)."""
     url = resolve(db)
@@ -147,7 +151,7 @@ def engine_for(db: str | None = None) -> Engine:
             eng = create_engine(url, pool_pre_ping=True)
         except (ImportError, ModuleNotFoundError) as exc:
             raise LibraryError(f"house library {mask_secrets(url)}: the database driver is not installed ({exc.name}); "
-                               f"install it with: pip install 'matcher[postgres]'") from None
+                               f"install it with: {POSTGRES_INSTALL}") from None
         except Exception as exc:  # an address SQLAlchemy cannot use
             raise LibraryError(f"house library {mask_secrets(url)}: unusable address ({mask_secrets(str(exc))})") from None
     _ENGINES[url] = eng

@@ -27,7 +27,7 @@ class Hit:
     name: str
     cas: str
     formula: str
-    score: float
+    name_similarity: float  # 0-100: how close the text is to the matched name, synonym, CAS number or formula
     matched: str  # the text that matched
     field: str  # name | synonym | cas | formula
 
@@ -39,8 +39,18 @@ _CAS_LIKE = re.compile(r"^\s*\d[\d\s-]*\d\s*$")
 _FORMULA_LIKE = re.compile(r"^\s*(?:[A-Z][a-z]?\d*){2,}\s*$")
 
 
+#: Name similarity (0-100) from which ``library find`` lists a compound (our own choice: a name with one or
+#: two letters wrong, or a clear part of a name, scores above it; an unrelated name with some letters in
+#: common scores 50-82 and is left out).
+FIND_SIMILARITY = 85.0
+
+
 def find(db: str | None, text: str, limit: int = 10) -> list[Hit]:
-    """Compounds ranked by similarity of ``text`` to their names, synonyms, CAS number or formula."""
+    """Compounds ranked by similarity of ``text`` to their names, synonyms, CAS number or formula.
+
+    Only genuinely close names are listed (similarity at least :data:`FIND_SIMILARITY`); Greek letters
+    and their shorthand (``a-``, ``b-``) are read alike, as when adding or confirming a compound.
+    """
     from matcher.chem.names import rank
     from matcher.store.snapshot_loader import load_snapshot
 
@@ -84,9 +94,10 @@ def find(db: str | None, text: str, limit: int = 10) -> list[Hit]:
     for j, score in rank(query, choices, limit=max(limit * 5, 50)):
         i, fld = owner[j]
         offer(i, score, choices[j], fld)
-    ordered = sorted(best.items(), key=lambda kv: (-kv[1][0], ct.name[kv[0]].lower()))
+    ordered = sorted(((i, v) for i, v in best.items() if v[0] >= FIND_SIMILARITY),
+                     key=lambda kv: (-kv[1][0], ct.name[kv[0]].lower()))
     return [
-        Hit(name=ct.name[i], cas=ct.cas[i], formula=ct.formula[i], score=round(sc, 1), matched=m, field=f)
+        Hit(name=ct.name[i], cas=ct.cas[i], formula=ct.formula[i], name_similarity=round(sc, 1), matched=m, field=f)
         for i, (sc, m, f) in ordered[:limit]
     ]
 

@@ -30,7 +30,7 @@ def main() -> None:
     a = ap.parse_args()
     exe = shutil.which("matcher") or os.path.join(os.path.dirname(sys.executable), "matcher")
     with tempfile.TemporaryDirectory() as tmp:
-        subprocess.run([exe, "demo", "--out", tmp], check=True, stdout=subprocess.DEVNULL)
+        subprocess.run([exe, "demo", "--output", tmp], check=True, stdout=subprocess.DEVNULL)
         db = os.path.join(tmp, "demo-library.sqlite")
         query = [exe, "query", "1031", "--class", "slightly-polar", "--mol-ion", "136", "--db", db]
         base = [sys.executable, "-c", "import numpy, sqlite3"]

@@ -91,8 +91,8 @@ def run_floor(db, peaks_csv, out, top, w=10.0, sd=4.0):
                        "rank": rank[kk], "name": names[ek], "cas": "", "library_ri": mu[ek], "delta_ri": x[pk] - mu[ek],
                        "score": lw[order][kk], "probability": prob[kk], "flags": "in-window", "run": "peaks",
                        "ri_measured": x[pk], "not_in_library": (0.05 / den)[pk], "formula": "", "nominal_mass": np.nan,
-                       "library_sd": sd, "library_n": 1, "mol_ion": np.nan, "hit": "", "hit_score": np.nan,
-                       "ev_index": lw[order][kk], "ev_mol_ion": 0.0, "ev_ions": 0.0, "ev_hit": 0.0})
+                       "library_spread": sd, "library_observations": 1, "mol_ion": np.nan, "hit": "", "hit_match": np.nan,
+                       "evidence_index": lw[order][kk], "evidence_mol_ion": 0.0, "evidence_ions": 0.0, "evidence_hit": 0.0})
     df.to_csv(out, index=False, float_format="%.4f")
     return len(df)
 
