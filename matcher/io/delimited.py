@@ -635,7 +635,7 @@ def decimals(raw: RawTable, column: str) -> list[int | None]:
         c = c.strip()
         if raw.decimal_comma and "," in c and "." not in c:
             c = c.replace(",", ".")
-        if not c or "e" in c.lower() or not _NUMBER.fullmatch(c.replace("\u2212", "-")):
+        if not c or "e" in c.lower() or not NUMBER_PATTERN.fullmatch(c.replace("\u2212", "-")):
             out.append(None)
             continue
         out.append(len(c.split(".", 1)[1]) if "." in c else 0)
