@@ -176,6 +176,12 @@ class Review:
             self._write(record)
         return record["decisions"][-1]
 
+    def export(self, path: str | os.PathLike) -> Path:
+        """The reviewed list as ``.csv`` or ``.html`` (:mod:`matcher.review.exporting`)."""
+        from matcher.review.exporting import export_review
+
+        return export_review(self, path)
+
     def note_added(self, entry: dict[str, Any]) -> None:
         """List one library addition in the record (written at once)."""
         with self._lock:
