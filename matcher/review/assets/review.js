@@ -241,7 +241,8 @@
 
   document.addEventListener("keydown", function (e) {
     if (e.ctrlKey || e.metaKey || e.altKey) { return; }
-    var typing = e.target && (e.target.tagName === "TEXTAREA" || e.target.tagName === "INPUT" || e.target.tagName === "SELECT");
+    var t = e.target, typing = t && (t.tagName === "TEXTAREA" || t.tagName === "SELECT" ||
+      (t.tagName === "INPUT" && t.type !== "checkbox"));
     if (typing) { if (e.key === "Escape") { e.target.blur(); } return; }
     var p = state.shown[state.sel];
     if (e.key === "j" || e.key === "ArrowDown") { select(state.sel + 1); e.preventDefault(); }
@@ -252,7 +253,8 @@
     else if (e.key === "n") { var n = document.getElementById("note"); if (n) { n.focus(); e.preventDefault(); } }
   });
   ["f-status", "f-flag", "f-review"].forEach(function (id) {
-    document.getElementById(id).addEventListener("change", function () { var p = state.shown[state.sel]; drawList(p ? keyOf(p) : null); });
+    document.getElementById(id).addEventListener("change", function (e) {
+      var p = state.shown[state.sel]; drawList(p ? keyOf(p) : null); e.target.blur(); });
   });
 
   reload(null).then(fillFlags).catch(function (e) { say("Could not load the peaks: " + e.message, true); });
