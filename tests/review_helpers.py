@@ -22,3 +22,12 @@ def copy_result(demo: Path, target: Path, name: str = "shortlist.csv") -> Path:
     shutil.copy(demo / "shortlist.csv", target / name)
     shutil.copy(demo / "shortlist.csv.meta.json", target / (name + ".meta.json"))
     return target / name
+
+
+def copy_library(demo: Path, target: Path) -> Path:
+    """A consistent copy of the demo's library (the online backup: the demo's write-ahead log may not be
+    checkpointed yet while its engine is open in this process)."""
+    import matcher
+
+    matcher.open_library(str(demo / "demo-library.sqlite")).backup(str(target))
+    return target

@@ -21,7 +21,7 @@ with warnings.catch_warnings():  # newer Starlette suggests another HTTP client 
 from matcher.errors import MatcherError
 from matcher.review.server import TOKEN_HEADER, create_app
 from matcher.review.session import open_review, record_path
-from review_helpers import PORT, copy_result, demo_outputs
+from review_helpers import PORT, copy_library, copy_result, demo_outputs
 
 TOKEN = "t0ken-for-tests-only"
 BASE = f"http://127.0.0.1:{PORT}"
@@ -261,7 +261,7 @@ def test_many_writers_at_once_lose_nothing(result):
 
 def test_adding_from_the_page_goes_through_confirm_and_is_listed(demo, result, tmp_path):
     db = tmp_path / "lab.sqlite"
-    shutil.copy(demo / "demo-library.sqlite", db)
+    copy_library(demo, db)
     client, _ = client_for(result, db=str(db))
     # not accepted yet: refused
     assert client.post("/api/library", json={"run": "run", "peak": "7"}, headers=H).status_code == 409

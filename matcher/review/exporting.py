@@ -52,6 +52,16 @@ def _cell(value: Any) -> str:
     return str(neutralise(str(value)))
 
 
+def _shown(column: str, value: Any) -> str:
+    if value is None:
+        return ""
+    if column == "ri":
+        return f"{value:.1f}"
+    if column == "top_probability":
+        return f"{value:.3f}"
+    return _cell(value)
+
+
 def write_review_csv(review, path: str | os.PathLike) -> Path:
     import csv
 
@@ -78,8 +88,7 @@ def render_review_html(review) -> str:
     rows = review_rows(review)
     body = []
     for r in rows:
-        body.append("<tr>" + "".join(f"<td>{h(_cell(r[k]) if k not in ('ri', 'top_probability') else ('' if r[k] is None else f'{r[k]:.{1 if k == 'ri' else 3}f}'))}</td>"
-                                     for k in EXPORT_COLUMNS) + "</tr>")
+        body.append("<tr>" + "".join(f"<td>{h(_shown(k, r[k]))}</td>" for k in EXPORT_COLUMNS) + "</tr>")
     runs = "; ".join(f"{h(r['label'])} ({h(r['class'])}, {r['peaks']} peaks)" for r in s["runs"])
     added = "".join(f"<li>{h(a['name'])}: peak {h(a['peak'])} of run {h(a['run'])}, observation {h(a.get('observation'))}"
                     f" ({h(a.get('reviewer', ''))}, {h(a.get('time', ''))})</li>" for a in review.record["added"])
