@@ -252,3 +252,25 @@ def test_confirm_review_refuses_a_changed_result(demo, result, tmp_path):
 def test_confirm_without_review_still_needs_its_arguments():
     r = invoke(["confirm", "--peak", "1"])
     assert r.exit_code == 2 and "confirm needs RESULTS, --name" in r.output
+
+
+def test_a_written_record_matches_its_schema(demo, result, tmp_path):
+    import importlib.resources
+
+    import jsonschema
+
+    schema = json.loads(importlib.resources.files("matcher.schemas").joinpath("review-record.schema.json")
+                        .read_text(encoding="utf-8"))
+    db = tmp_path / "lab.sqlite"
+    copy_library(demo, db)
+    review = open_review(result, reviewer="ana")
+    review.decide({"run": "run", "peak": "12", "decision": "accept", "name": "terpinolene", "standard": True,
+                   "note": "std lot T-3"})
+    review.decide({"run": "run", "peak": "13", "decision": "unsure"})
+    assert invoke(["confirm", "--review", str(record_path(result)), "--db", str(db)]).exit_code == 0
+    doc = json.loads(record_path(result).read_text(encoding="utf-8"))
+    jsonschema.validate(doc, schema)
+    assert len(doc["added"]) == 1
+    bad = {**doc, "decisions": [{**doc["decisions"][0], "decision": "maybe"}]}
+    with pytest.raises(jsonschema.ValidationError):
+        jsonschema.validate(bad, schema)
