@@ -267,11 +267,13 @@ class ResultView:
 
 def _group_rows(rows: list[dict], columns: list[str]) -> list[dict]:
     """Output rows grouped per peak (in file order): the peak's fields once, the ranked candidates nested."""
+    import matcher.results as results
     from matcher.results import (DETAIL_COLUMNS, EVIDENCE_COLUMNS, PEAK_KEYS, SHORTLIST_COLUMNS,
                                  candidate_record, plain)
 
+    prefix = getattr(results, "EVIDENCE_PREFIX", "ev_")
     ev_cols = [c for c in EVIDENCE_COLUMNS if c in columns] + [
-        c for c in columns if c.startswith("ev_") and c not in EVIDENCE_COLUMNS]
+        c for c in columns if c.startswith(prefix) and c not in EVIDENCE_COLUMNS]
     known = set(SHORTLIST_COLUMNS) | set(DETAIL_COLUMNS) | set(ev_cols)
     extra = [c for c in columns if c not in known]
     order: list[str] = []
@@ -301,6 +303,29 @@ def _group_rows(rows: list[dict], columns: list[str]) -> list[dict]:
         peak["candidates"] = candidates
         peaks.append(peak)
     return peaks
+
+
+def _json_peak(p: dict) -> dict:
+    """One peak of the screen JSON as the review reads it: the peak's keys, its flags, its candidates by rank."""
+    from matcher.results import PEAK_KEYS, plain
+
+    if not isinstance(p, dict):
+        raise TypeError("a peak is not an object")
+    peak = {k: plain(p.get(k)) for k in PEAK_KEYS}
+    for k, v in p.items():  # any further peak fields the output carries (a spectrum, an area)
+        if k not in peak and k not in ("flags", "candidates"):
+            peak[k] = v
+    peak["peak"] = str(plain(p.get("peak")))
+    peak["flags"] = [str(f) for f in p.get("flags") or []]
+    cands = [dict(c) for c in p.get("candidates") or []]
+    for c in cands:
+        c["flags"] = [str(f) for f in c.get("flags") or []]
+        if not isinstance(c.get("evidence") or {}, dict):
+            raise TypeError("evidence is not an object")
+        c["evidence"] = dict(c.get("evidence") or {})
+    cands.sort(key=lambda c: (c.get("rank") is None, c.get("rank") or 0))
+    peak["candidates"] = cands
+    return peak
 
 
 def _standards(run_doc: dict | None) -> list[dict]:
@@ -342,34 +367,21 @@ def _read_result(results_path: str | os.PathLike) -> ResultView:
     from matcher.io.bounded import read_bytes
     from matcher.limits import MAX_CELL
 
+    from matcher.io.bounded import loads_json
+    from matcher.limits import MAX_JSON_BYTES
+
     path = Path(results_path)
-    data = read_bytes(path, what="screening output")
-    digest = hashlib.sha256(data).hexdigest()
-    if path.suffix.lower() == ".json":
-        doc = _load_json(path, "JSON output")
+    is_json = path.suffix.lower() == ".json"
+    data = read_bytes(path, what="screening output", **({"limit": MAX_JSON_BYTES} if is_json else {}))
+    digest = hashlib.sha256(data).hexdigest()  # of the very bytes read below
+    if is_json:
+        doc = loads_json(data, path=str(path), what="JSON output")
+        if not isinstance(doc, dict) or doc.get("format") != "matcher.screen-output":
+            raise InputError("not a matcher screening output (JSON output)", file=str(path))
         if doc.get("content") != "shortlist":
             raise InputError("this is the provenance sidecar of a CSV; give the CSV itself", file=str(path))
-        runs = []
-        for rd in doc.get("runs") or []:
-            rows = []
-            columns: list[str] = []
-            for p in rd.get("peaks") or []:
-                base = {k: v for k, v in p.items() if k not in ("candidates", "flags")}
-                cands = p.get("candidates") or []
-                if not cands:
-                    rows.append({**base, "flags": ";".join(p.get("flags") or []), "rank": None})
-                for c in cands:
-                    row = dict(base)
-                    row.update({k: v for k, v in c.items() if k not in ("evidence", "flags")})
-                    for k, v in (c.get("evidence") or {}).items():
-                        row["ev_" + k] = v
-                    row["flags"] = ";".join(c.get("flags") or [])
-                    rows.append(row)
-                for r in rows[-max(1, len(cands)):]:
-                    for k in r:
-                        if k not in columns:
-                            columns.append(k)
-            runs.append(_run_entry(str(rd.get("label")), rd, _group_rows(rows, columns)))
+        runs = [_run_entry(str(rd.get("label")), rd, [_json_peak(p) for p in rd.get("peaks") or []])
+                for rd in doc.get("runs") or []]
         sidecar = True
     else:
         from matcher.report.files import sidecar_path

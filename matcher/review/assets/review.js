@@ -130,7 +130,8 @@
     var facts = [];
     if (p.rt !== null) { facts.push("time " + num(p.rt, 3) + " min"); }
     if (p.mol_ion !== null) { facts.push("molecular ion " + num(p.mol_ion, 0)); }
-    if (p.hit) { facts.push("spectral search named " + p.hit + (p.hit_score !== null ? " (" + num(p.hit_score, 0) + ")" : "")); }
+    var hitScore = p.hit_score !== undefined ? p.hit_score : p.hit_match;
+    if (p.hit) { facts.push("spectral search named " + p.hit + (hitScore !== null && hitScore !== undefined ? " (" + num(hitScore, 0) + ")" : "")); }
     if (p.not_in_library !== null) { facts.push("not in the library: " + num(p.not_in_library, 3)); }
     if (p.ladder) { var L = p.ladder;
       facts.push(L.outside ? "outside the ladder (" + (L.below ? "after " + L.below.name : "before " + L.above.name) + ")"
@@ -151,6 +152,9 @@
           var v = c.evidence[k];
           ev.appendChild(el("div", { text: (EVIDENCE_WORDS[k] || k) + ": " + evidenceWords(v) + " (" + num(v, 2) + ")" }));
         });
+        if (c.spectrum_similarity !== undefined && c.spectrum_similarity !== null) {
+          ev.appendChild(el("div", { text: "spectra alike: " + num(c.spectrum_similarity, 2) + " of 1" }));
+        }
         var fcell = el("td");
         (c.flags || []).forEach(function (f) { fcell.appendChild(el("span", { cls: "flag" + (f === "review" ? " flag-review" : ""), text: f })); });
         var tr = el("tr", { cls: i === state.pick ? "picked" : "", "data-rank": String(c.rank) }, [
