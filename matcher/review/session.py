@@ -22,6 +22,8 @@ from matcher.errors import MatcherError
 from matcher.review import record as rec
 
 RECORD_SUFFIX = ".review.json"
+#: Other peaks shown per candidate as competing for the same compound (the most probable first).
+MAX_COMPETING = 5
 
 
 def record_path(result_path: str | os.PathLike) -> Path:
@@ -79,6 +81,7 @@ class Review:
     record: dict[str, Any]
     _lock: threading.Lock = field(default_factory=threading.Lock, repr=False)
     _stat: tuple = field(default=(), repr=False)
+    _static: list | None = field(default=None, repr=False)
 
     # ---------------------------------------------------------------- reading
     @property
@@ -88,29 +91,39 @@ class Review:
     def _known(self) -> dict[tuple[str, str], dict]:
         return {(r["label"], p["peak"]): p for r in self.result.runs for p in r["peaks"]}
 
+    def _static_peaks(self) -> list[dict[str, Any]]:
+        """Every peak with what does not change during a review (computed once)."""
+        if self._static is not None:
+            return self._static
+        out = []
+        for run in self.result.runs:
+            holders: dict[str, list[tuple[float, str]]] = {}
+            for p in run["peaks"]:
+                for c in p["candidates"]:
+                    prob = c.get("probability")
+                    holders.setdefault(str(c.get("name")), []).append((prob if prob is not None else 0.0, p["peak"]))
+            for plist in holders.values():
+                plist.sort(key=lambda x: -x[0])
+            for p in run["peaks"]:
+                competing = []
+                for c in p["candidates"]:
+                    name = str(c.get("name"))
+                    others = [(prob, other) for prob, other in holders.get(name, []) if other != p["peak"]]
+                    competing += [{"peak": other, "name": name, "probability": prob}
+                                  for prob, other in others[:MAX_COMPETING]]
+                top = p["candidates"][:1]
+                out.append({"run": run["label"], **p,
+                            "needs_review": "review" in p["flags"] or any("review" in c.get("flags", []) for c in top),
+                            "ladder": _ladder_position(p.get("ri"), run["standards"]), "competing": competing})
+        self._static = out
+        return out
+
     def peaks(self) -> list[dict[str, Any]]:
         """Every peak of every run with its candidates, ladder position, competing peaks and current decision."""
         decided = rec.current(self.record)
         added = rec.added(self.record)
-        out = []
-        for run in self.result.runs:
-            holders: dict[str, list[tuple[str, float | None]]] = {}
-            for p in run["peaks"]:
-                for c in p["candidates"]:
-                    holders.setdefault(str(c.get("name")), []).append((p["peak"], c.get("probability")))
-            for p in run["peaks"]:
-                names = [str(c.get("name")) for c in p["candidates"]]
-                competing = []
-                for name in names:
-                    for other, prob in holders.get(name, []):
-                        if other != p["peak"]:
-                            competing.append({"peak": other, "name": name, "probability": prob})
-                key = rec.peak_key(run["label"], p["peak"])
-                out.append({"run": run["label"], **p, "needs_review": "review" in p["flags"] or any(
-                    "review" in c.get("flags", []) for c in p["candidates"][:1]),
-                    "ladder": _ladder_position(p.get("ri"), run["standards"]),
-                    "competing": competing, "decision": decided.get(key), "added": added.get(key)})
-        return out
+        return [{**p, "decision": decided.get(rec.peak_key(p["run"], p["peak"])),
+                 "added": added.get(rec.peak_key(p["run"], p["peak"]))} for p in self._static_peaks()]
 
     def summary(self) -> dict[str, Any]:
         """The run's facts for the top of the page and the exports."""
