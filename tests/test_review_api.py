@@ -6,6 +6,7 @@ from __future__ import annotations
 import csv
 import hashlib
 import json
+import re
 import shutil
 import subprocess
 import threading
@@ -136,9 +137,19 @@ def test_cross_origin_writes_are_refused(result, headers, status):
 
 def test_a_form_post_is_refused(result):
     client, _ = client_for(result)
-    r = client.post("/api/decisions", content=b"run=run&peak=3&decision=reject",
-                    headers={**H, "Content-Type": "application/x-www-form-urlencoded"})
-    assert r.status_code == 415
+    form = {"Content-Type": "application/x-www-form-urlencoded"}
+    r = client.post("/api/decisions", content=b"run=run&peak=3&decision=reject", headers={**H, **form})
+    assert r.status_code == 400 and "not JSON" in r.json()["error"]
+    # without the token a form never gets as far as being read
+    assert client.post("/api/decisions", content=b"run=run&peak=3&decision=reject", headers=form).status_code == 403
+    assert not record_path(result).exists()
+
+
+def test_json_sent_without_a_content_type_is_read_when_the_token_is_there(result):
+    client, _ = client_for(result)
+    r = client.post("/api/decisions", content=json.dumps({"run": "run", "peak": "3", "decision": "reject"}),
+                    headers={**H, "Content-Type": ""})
+    assert r.status_code == 200
 
 
 def test_the_page_forbids_every_load_from_elsewhere(result):
@@ -154,6 +165,11 @@ def test_the_page_forbids_every_load_from_elsewhere(result):
     assert "http://" not in text and "https://" not in text
     assert r.headers["referrer-policy"] == "no-referrer"
     assert "Results are tentative" in r.text and "not a confirmation" in r.text
+    # the peak list is in the page itself (before its script runs): every peak, marked ones first
+    listed = re.findall(r'<li data-peak="([^"]+)" data-run="run" data-status="open">', r.text)
+    assert sorted(listed) == sorted(demo_peak_ids(result))
+    marked = [p["peak"] for p in client.get("/api/peaks", headers=H).json()["peaks"] if p["needs_review"]]
+    assert listed[:len(marked)] == marked
 
 
 # ------------------------------------------------------------------ bad decisions

@@ -274,3 +274,55 @@ def test_a_written_record_matches_its_schema(demo, result, tmp_path):
     bad = {**doc, "decisions": [{**doc["decisions"][0], "decision": "maybe"}]}
     with pytest.raises(jsonschema.ValidationError):
         jsonschema.validate(bad, schema)
+
+
+# ------------------------------------------------------------------ the command's own refusals
+
+
+def test_review_refuses_a_bad_or_busy_port_before_serving(result):
+    import socket
+
+    r = invoke(["review", result, "--port", "70000"])
+    assert r.exit_code == 2 and "--port must be between 1 and 65535" in r.output
+    with socket.socket() as busy:
+        busy.bind(("127.0.0.1", 0))
+        busy.listen(1)
+        port = busy.getsockname()[1]
+        r = invoke(["review", result, "--port", port])
+        assert r.exit_code == 2 and f"cannot listen on 127.0.0.1:{port}" in r.output
+
+
+def test_export_with_server_options_is_refused(result, tmp_path):
+    r = invoke(["review", result, "--export", tmp_path / "r.csv", "--open"])
+    assert r.exit_code == 2 and "leave out --port and --open" in r.output
+    assert not (tmp_path / "r.csv").exists()
+
+
+def test_a_missing_result_is_refused_by_name(tmp_path):
+    r = invoke(["review", tmp_path / "nope.csv", "--export", tmp_path / "r.csv"])
+    assert r.exit_code == 2 and "nope.csv" in r.output and "not found" in r.output
+
+
+def test_further_fields_of_a_json_result_reach_the_page(tmp_path):
+    """A peak's spectrum and a candidate's extra figures (as a newer screen may write them) pass through."""
+    res = make_result()
+    res.to_json(tmp_path / "s.json")
+    doc = json.loads((tmp_path / "s.json").read_text(encoding="utf-8"))
+    peak = next(p for p in doc["runs"][0]["peaks"] if p["candidates"])
+    peak["spectrum"] = [[93, 999], [136, 310]]  # invented
+    peak["candidates"][0]["spectrum_similarity"] = 0.91
+    (tmp_path / "s.json").write_text(json.dumps(doc), encoding="utf-8")
+    got = next(p for p in open_review(tmp_path / "s.json").peaks() if p["peak"] == str(peak["peak"])
+               and p["run"] == doc["runs"][0]["label"])
+    assert got["spectrum"] == [[93, 999], [136, 310]]
+    assert got["candidates"][0]["spectrum_similarity"] == 0.91
+
+
+def test_a_json_result_edited_into_another_shape_is_refused_by_name(tmp_path):
+    res = make_result()
+    res.to_json(tmp_path / "s.json")
+    doc = json.loads((tmp_path / "s.json").read_text(encoding="utf-8"))
+    doc["runs"][0]["peaks"][0] = "not a peak"
+    (tmp_path / "s.json").write_text(json.dumps(doc), encoding="utf-8")
+    with pytest.raises(MatcherError, match="s.json: not a matcher screening output"):
+        read_result(tmp_path / "s.json")

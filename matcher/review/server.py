@@ -8,9 +8,10 @@ An ASGI application (Starlette) served by uvicorn on ``127.0.0.1``. Safety:
   without it.
 * **Host check** (DNS rebinding): a request whose ``Host`` is not ``127.0.0.1:PORT`` or
   ``localhost:PORT`` is refused (403) before anything else.
-* **Cross-origin writes**: a ``POST`` with an ``Origin`` other than the page's own, a
-  ``Sec-Fetch-Site`` other than ``same-origin``/``none``, or a body that is not
-  ``application/json`` is refused (403/415).
+* **Cross-origin writes**: a ``POST`` with an ``Origin`` other than the page's own or a
+  ``Sec-Fetch-Site`` other than ``same-origin``/``none`` is refused (403); the body must be
+  JSON (at most 64 KiB). A foreign page cannot send the token header without a CORS
+  preflight, which this server never grants.
 * **Nothing from the network**: the page's CSS and JavaScript are inline, allowed by a
   per-response nonce in a Content-Security-Policy that forbids every other load
   (``default-src 'none'``); responses are ``no-store``, ``no-referrer``, not framable.
@@ -79,6 +80,23 @@ class _Guard:
         await self.app(scope, receive, send)
 
 
+#: How the page names each status.
+STATUS_WORDS = {"open": "to do", "accept": "accepted", "reject": "rejected", "unsure": "unsure"}
+
+
+def first_view(peaks: list[dict]) -> list[dict]:
+    """The peak list as the page first shows it (before its script runs): peaks marked for review and not
+    decided first, then file order; each with ``status`` and the name shown."""
+    out = []
+    for k, p in enumerate(peaks):
+        status = p["decision"]["decision"] if p["decision"] else "open"
+        shown = (p["decision"] or {}).get("name") or (p["candidates"][0]["name"] if p["candidates"] else "no candidate")
+        out.append((0 if status == "open" and p["needs_review"] else 1, k,
+                    {"run": p["run"], "peak": p["peak"], "ri": p.get("ri"), "status": status, "shown": shown,
+                     "mark": p["needs_review"]}))
+    return [x[2] for x in sorted(out, key=lambda x: (x[0], x[1]))]
+
+
 def create_app(review, *, token: str, port: int, db: str | None = None,
                confirm: Callable[..., Any] | None = None) -> Starlette:
     """The review application for one :class:`~matcher.review.session.Review` on ``127.0.0.1:port``."""
@@ -107,8 +125,6 @@ def create_app(review, *, token: str, port: int, db: str | None = None,
         site = request.headers.get("sec-fetch-site")
         if site is not None and site not in ("same-origin", "none"):
             return refuse("cross-site writes are refused", 403)
-        if request.headers.get("content-type", "").split(";")[0].strip().lower() != "application/json":
-            return refuse("send the decision as application/json", 415)
         return None
 
     async def body_of(request: Request) -> Any:
@@ -130,6 +146,7 @@ def create_app(review, *, token: str, port: int, db: str | None = None,
         s = review.summary()
         html = env.get_template("page.html").render(
             nonce=nonce, token=token, summary=s, can_add=db is not None or confirm is not None,
+            peaks=first_view(review.peaks()), words=STATUS_WORDS,
             css=_asset("review.css"), js=_asset("review.js"))
         return HTMLResponse(html, headers=_headers(nonce))
 
