@@ -304,3 +304,16 @@ def test_without_a_library_the_page_cannot_add(result):
     client, _ = client_for(result)
     r = client.post("/api/library", json={"run": "run", "peak": "7"}, headers=H)
     assert r.status_code == 409 and "--db" in r.json()["error"]
+
+
+def test_hostile_library_text_is_only_text_on_the_page(tmp_path):
+    from result_factory import HOSTILE_NAMES, make_result
+
+    make_result(hostile=True).to_csv(tmp_path / "h.csv")
+    client, _ = client_for(tmp_path / "h.csv")
+    r = client.get(f"/?token={TOKEN}")
+    assert r.status_code == 200
+    assert "<script>alert(1)</script>" not in r.text and "<img src=x" not in r.text
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in r.text   # shown, escaped (HTML5 character references)
+    names = {c["name"] for p in client.get("/api/peaks", headers=H).json()["peaks"] for c in p["candidates"]}
+    assert "<script>alert(1)</script>" in names  # the API hands the text over as it is; the page sets it as text

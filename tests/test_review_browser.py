@@ -166,3 +166,27 @@ def test_filters_and_a_note_reach_the_record(browser, demo, tmp_path):
         page.close()
     finally:
         server.stop()
+
+
+def test_hostile_library_text_never_runs_in_the_page(browser, tmp_path):
+    from result_factory import make_result
+
+    make_result(hostile=True).to_csv(tmp_path / "h.csv")
+    server = Server(tmp_path / "h.csv", "ana", tmp_path)
+    try:
+        page = browser.new_page()
+        dialogs: list[str] = []
+        requests: list[str] = []
+        page.on("dialog", lambda d: (dialogs.append(d.message), d.dismiss()))
+        page.on("request", lambda r: requests.append(r.url))
+        page.goto(server.url)
+        page.wait_for_selector("#cands")
+        count = page.eval_on_selector_all("#peaks li", "els => els.length")
+        for _ in range(count):
+            page.keyboard.press("j")
+        assert "<script>alert(1)</script>" in page.inner_text("#peaks")  # shown as text
+        assert dialogs == []
+        assert all(u.startswith(server.base + "/") for u in requests), requests
+        page.close()
+    finally:
+        server.stop()

@@ -261,5 +261,14 @@
       var p = state.shown[state.sel]; drawList(p ? keyOf(p) : null); e.target.blur(); });
   });
 
+  // back to this tab: show what another tab or reviewer decided meanwhile (a note being written is kept)
+  document.addEventListener("visibilitychange", function () {
+    if (document.visibilityState !== "visible") { return; }
+    var p = state.shown[state.sel], n = document.getElementById("note");
+    var saved = p && p.decision ? (p.decision.note || "") : "";
+    if (n && n.value !== saved) { return; }
+    reload(p ? keyOf(p) : null).catch(function () {});
+  });
+
   reload(null).then(fillFlags).catch(function (e) { say("Could not load the peaks: " + e.message, true); });
 }());
