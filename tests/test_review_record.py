@@ -326,3 +326,10 @@ def test_a_json_result_edited_into_another_shape_is_refused_by_name(tmp_path):
     (tmp_path / "s.json").write_text(json.dumps(doc), encoding="utf-8")
     with pytest.raises(MatcherError, match="s.json: not a matcher screening output"):
         read_result(tmp_path / "s.json")
+
+
+def test_review_help_carries_the_caution_and_what_accepting_means():
+    r = runner.invoke(app, ["review", "--help"])
+    text = " ".join(r.output.split())
+    assert " ".join(CAUTION.split()) in text
+    assert "putative annotation, not a confirmation" in text

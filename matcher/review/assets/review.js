@@ -38,6 +38,7 @@
 
   function evidenceWords(v) {
     if (v === null || v === undefined) { return "not given"; }
+    if (v === 0) { return "no effect (hint absent or silent)"; }
     if (v >= 2) { return "strongly for"; } if (v >= 0.5) { return "for"; } if (v > -0.5) { return "about neutral"; }
     if (v > -2) { return "against"; } return "strongly against";
   }
@@ -208,7 +209,11 @@
   function select(i, keepPick) {
     if (!state.shown.length) { state.sel = 0; drawDetail(); return; }
     var prev = state.sel; state.sel = Math.max(0, Math.min(i, state.shown.length - 1));
-    if (!keepPick || prev !== state.sel) { state.pick = 0; }
+    if (!keepPick || prev !== state.sel) {  // start on the candidate accepted before, else the first
+      var cur = state.shown[state.sel], names = cur.candidates.map(function (c) { return c.name; });
+      var j = cur.decision && cur.decision.name ? names.indexOf(cur.decision.name) : -1;
+      state.pick = j >= 0 ? j : 0;
+    }
     var items = document.querySelectorAll("#peaks li");
     items.forEach(function (li, j) { li.className = j === state.sel ? "sel" : ""; });
     if (items[state.sel]) { items[state.sel].scrollIntoView({ block: "nearest" }); }
