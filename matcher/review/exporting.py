@@ -15,7 +15,6 @@ import os
 from pathlib import Path
 from typing import Any
 
-from matcher.errors import MatcherError
 
 #: Columns of the review CSV, in order (docs/formats.md, "Review export").
 EXPORT_COLUMNS: tuple[str, ...] = (
@@ -122,9 +121,9 @@ def export_review(review, path: str | os.PathLike) -> Path:
     """Write the reviewed list to ``path``: ``.csv`` or ``.html`` (``.htm``)."""
     from matcher.io.atomic import atomic_write, guard_output
 
-    suffix = Path(path).suffix.lower()
-    if suffix not in (".csv", ".html", ".htm"):
-        raise MatcherError(f"--export {path}: give a .csv or .html file")
+    from matcher.rules import check_review_export_path
+
+    suffix = Path(check_review_export_path(path)).suffix.lower()
     guard_output(path, inputs=[("result", review.result_path), ("review record", review.path)], option="--export")
     if suffix == ".csv":
         return write_review_csv(review, path)

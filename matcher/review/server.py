@@ -206,8 +206,9 @@ def create_app(review, *, token: str, port: int, db: str | None = None,
 
 def bind(port: int | None) -> socket.socket:
     """A listening socket on 127.0.0.1 (``port`` or one the system chooses)."""
-    if port is not None and not 0 < int(port) < 65536:
-        raise MatcherError(f"--port must be between 1 and 65535, got {port}")
+    from matcher.rules import check_port
+
+    port = check_port(port)
     sock = socket.socket(socket.AF_INET, socket.SOCK_STREAM)
     sock.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)
     try:
