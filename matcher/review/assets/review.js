@@ -190,7 +190,7 @@
       value: (p.candidates[state.pick] || {}).name || (p.decision && p.decision.name) || "" });
     box.appendChild(el("label", {}, ["Accept as ", pickName]));
     box.appendChild(el("div", {}, [note]));
-    box.appendChild(el("label", {}, [std, " confirmed with an authentic standard run under our validated method (only then can it go into the library)"]));
+    box.appendChild(el("label", {}, [std, " confirmed with an authentic standard run under our validated method (only then can it go into the library; the note becomes the library entry's source, so name the standard and lot there)"]));
     var bA = el("button", { id: "b-accept", text: "Accept (a)" }), bR = el("button", { id: "b-reject", text: "Reject all (r)" }),
         bU = el("button", { id: "b-unsure", text: "Unsure (u)" });
     bA.addEventListener("click", function () { decide("accept"); });
