@@ -317,3 +317,27 @@ def test_hostile_library_text_is_only_text_on_the_page(tmp_path):
     assert "&lt;script&gt;alert(1)&lt;/script&gt;" in r.text   # shown, escaped (HTML5 character references)
     names = {c["name"] for p in client.get("/api/peaks", headers=H).json()["peaks"] for c in p["candidates"]}
     assert "<script>alert(1)</script>" in names  # the API hands the text over as it is; the page sets it as text
+
+
+def test_two_reviews_of_one_result_writing_at_once_lose_nothing(result):
+    """Two sessions (as two `matcher review` processes would be) each with its own in-process lock:
+    the lock on the result file makes them queue."""
+    a, b = open_review(result, reviewer="ana"), open_review(result, reviewer="ben")
+    ids = demo_peak_ids(result)
+    errors = []
+
+    def write(review, peaks):
+        try:
+            for p in peaks:
+                review.decide({"run": "run", "peak": p, "decision": "unsure"})
+        except Exception as exc:  # noqa: BLE001 - reported below
+            errors.append(repr(exc))
+
+    t1 = threading.Thread(target=write, args=(a, ids[:15]))
+    t2 = threading.Thread(target=write, args=(b, ids[15:30]))
+    t1.start(); t2.start(); t1.join(); t2.join()
+    assert not errors
+    rec = json.loads(record_path(result).read_text(encoding="utf-8"))
+    assert sorted(d["peak"] for d in rec["decisions"]) == sorted(ids[:30])
+    assert len(rec["history"]) == 30
+    assert {d["reviewer"] for d in rec["history"]} == {"ana", "ben"}

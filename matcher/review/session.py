@@ -5,12 +5,13 @@ record ``RESULT.review.json`` when there is one. A record made for other content
 result's SHA-256 differs) is refused with a message, never mixed. :meth:`Review.decide`
 re-reads the record from disk, applies the decision (:mod:`matcher.review.record`) and
 writes the whole record again through :func:`matcher.io.atomic.atomic_write` (temporary
-file, rename), under a lock, so that each decision is on disk when the call returns and
-two writers (two tabs, two threads) both end up in the history.
+file, rename), under a lock (in the process, and ``flock`` on the result file between processes), so that each decision is
+on disk when the call returns and two writers (two tabs, two reviews of one result) both end up in the history.
 """
 
 from __future__ import annotations
 
+import contextlib
 import os
 import threading
 from dataclasses import dataclass, field
@@ -183,7 +184,7 @@ class Review:
         if rec.peak_key(d["run"], d["peak"]) not in self._known():
             raise MatcherError(f"no peak {d['peak']!r} in run {d['run']!r} of {self.result_path.name}")
         who = _reviewer(reviewer or self.reviewer)
-        with self._lock:
+        with self._lock, _file_lock(self.result_path):
             self.check_unchanged()
             record = rec.apply_decision(self._reload(), d, reviewer=who, now=now_utc())
             self._write(record)
@@ -197,8 +198,31 @@ class Review:
 
     def note_added(self, entry: dict[str, Any]) -> None:
         """List one library addition in the record (written at once)."""
-        with self._lock:
+        with self._lock, _file_lock(self.result_path):
             self._write(rec.apply_added(self._reload(), entry, now=now_utc()))
+
+
+@contextlib.contextmanager
+def _file_lock(path: Path):
+    """An exclusive advisory lock (``flock``) on the result file while the record is re-read and written, so
+    that two reviews of one result in different processes queue up instead of overwriting each other.
+    The result is opened read-only and never changed; where ``flock`` does not exist the in-process lock alone
+    serialises writers."""
+    try:
+        import fcntl
+    except ImportError:  # not POSIX
+        yield
+        return
+    try:
+        fh = open(path, "rb")
+    except OSError:
+        raise MatcherError(f"{path}: the result file cannot be opened; decisions are not recorded") from None
+    with fh:
+        fcntl.flock(fh.fileno(), fcntl.LOCK_EX)
+        try:
+            yield
+        finally:
+            fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
 
 
 def _caution() -> str:
