@@ -63,7 +63,7 @@ class Library:
 
     ``db`` is a file path (SQLite) or an SQLAlchemy URL; ``None`` means
     ``$MATCHER_DB``, else ``library.sqlite`` in the user data folder (see
-    :mod:`matcher.store.location`). Opening does not touch the database; the
+    :mod:`matcher.location`). Opening does not touch the database; the
     first operation does, and a missing or outdated library raises
     :class:`~matcher.errors.LibraryError`. Methods mirror ``matcher library
     ...`` and return what those commands render.
@@ -76,14 +76,14 @@ class Library:
     @property
     def url(self) -> str:
         """The SQLAlchemy URL the library resolves to (may hold a password: do not print it)."""
-        from matcher.store.location import resolve
+        from matcher.location import resolve
 
         return resolve(self.db)
 
     @property
     def location(self) -> str:
         """The resolved address with any password shown as ``***``."""
-        from matcher.store.location import mask_url
+        from matcher.location import mask_url
 
         return mask_url(self.url)
 
@@ -291,7 +291,8 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
            window_percent: float | None = None, top: int | None = None, fallback: bool = False,
            homologues: bool = False, adaptive: bool = False, anchors: str | os.PathLike | None = None,
            measurement_sd: float | None = None, crowding: str | float | None = None, split_peaks: bool = False,
-           labels: Sequence[str] | None = None, progress: Callable[[int], None] | None = None) -> "ScreenResult":
+           labels: Sequence[str] | None = None, progress: Callable[[int], None] | None = None,
+           output: str | os.PathLike | None = None, report: str | os.PathLike | None = None) -> "ScreenResult":
     """Shortlist every peak of one run, or of a batch, against one class of the library.
 
     ``peaks``: a peak table (path, DataFrame or :class:`~matcher.io.peak_tables.PeakTable`)
@@ -306,15 +307,69 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
     (``sparse``, ``moderate``, ``crowded``, ``dense`` or unlisted peaks per 100
     index units; the run refines it); ``split_peaks=True`` lets one compound
     explain several peaks.
+
+    ``output`` writes the shortlist (``.csv`` with its provenance sidecar, ``.json``
+    or ``.xlsx``) and ``report`` the HTML report, both checked before any work
+    and guarded against overwriting an input or the library. A CSV is written
+    while the runs are screened, part by part, so memory does not grow with the
+    run; the returned result's ``table`` then keeps each peak's leading row and
+    the rows the report shows (``RunResult.streamed``). Without ``output`` the
+    whole table stays in memory.
     """
     from matcher.identify.screening import screen as _screen
 
-    return _screen(peaks, phase_class, **_source(library), calibration=calibration, ladder=ladder, mode=mode,
-                   dead_time=dead_time, rt_unit=rt_unit, header_map=header_map, window=window,
-                   window_percent=window_percent, top=top, fallback=fallback, homologues=homologues,
-                   adaptive=adaptive, anchors=None if anchors is None else os.fspath(anchors),
-                   measurement_sd=measurement_sd, crowding=crowding, split_peaks=split_peaks, labels=labels,
-                   progress=progress)
+    def run(sink=None):
+        return _screen(peaks, phase_class, **_source(library), calibration=calibration, ladder=ladder, mode=mode,
+                       dead_time=dead_time, rt_unit=rt_unit, header_map=header_map, window=window,
+                       window_percent=window_percent, top=top, fallback=fallback, homologues=homologues,
+                       adaptive=adaptive, anchors=None if anchors is None else os.fspath(anchors),
+                       measurement_sd=measurement_sd, crowding=crowding, split_peaks=split_peaks, labels=labels,
+                       progress=progress, sink=sink)
+
+    if output is None and report is None:
+        return run()
+    from matcher.io.atomic import guard_outputs
+    from matcher.io.result_files import sidecar_path
+    from matcher.report.files import CsvStream, write_results
+    from matcher.rules import check_report_path, check_shortlist_path
+
+    if output is not None:
+        check_shortlist_path(output)
+    if report is not None:
+        check_report_path(report)
+    csv_out = output is not None and os.fspath(output).lower().endswith(".csv")
+    outs = [("-o", output)] + ([("-o (its provenance sidecar)", str(sidecar_path(output)))] if csv_out else [])
+    listed = peaks if isinstance(peaks, (list, tuple)) else [peaks]
+    extra = lambda what, v: [(what, x) for x in (v if isinstance(v, (list, tuple)) else [v])  # noqa: E731
+                             if isinstance(x, (str, os.PathLike))]
+    src = _source(library)
+    guard_outputs(outs + [("--report", report)], db=src["db"] if "db" in src else False,
+                  inputs=extra("the peak table", listed) + extra("the calibration", calibration)
+                  + extra("the ladder", ladder) + extra("the anchors file", anchors))
+    if csv_out:
+        from matcher.report.summary import add_summaries, summarise_table
+
+        counted: dict[str, dict] = {}
+
+        def sink(part) -> None:
+            stream.write(part)
+            label = str(part["run"].iat[0]) if len(part) else ""
+            counted[label] = add_summaries(counted.get(label), summarise_table(part))
+
+        with CsvStream(output) as stream:
+            result = run(sink)
+            for r in result.runs:
+                r.summary = counted.get(r.label, summarise_table(r.table.iloc[:0]))
+            stream.finish(result)
+    else:
+        result = run()
+        if output is not None:
+            write_results(result, output)
+    if report is not None:
+        from matcher.report.html import write_report
+
+        write_report(result, report)
+    return result
 
 
 def query(ri: float, phase_class: str, *, library: Any = None, window: float | None = None,

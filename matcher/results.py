@@ -32,6 +32,9 @@ import os
 from dataclasses import dataclass, field
 from typing import Any, Callable, Iterable
 
+#: A report lists at most this many peaks per run (review-marked first); a streamed run keeps their rows.
+REPORT_PEAKS = 2000
+
 #: Contract columns of the shortlist (docs/formats.md, "Screen output"), in output order.
 SHORTLIST_COLUMNS: tuple[str, ...] = (
     "peak", "rt", "ri", "class", "rank", "name", "cas", "library_ri",
@@ -136,6 +139,8 @@ class RunResult:
     run_model: dict[str, Any] = field(default_factory=dict)  # fitted in-library share and scatter, see matcher.identify.run_model
     notices: list[str] = field(default_factory=list)
     peak_count: int = 0
+    summary: dict[str, Any] | None = None  # counted part by part when streamed (matcher.report.summary.add_summaries)
+    streamed: bool = False           # rows went to a file as they came; ``table`` keeps leading rows and the report's peaks
     checksum: str = ""               # SHA-256 of the peak table's normalised content (matcher.io.peak_tables.content_checksum)
 
 

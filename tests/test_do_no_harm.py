@@ -165,7 +165,7 @@ def test_password_from_the_environment_in_screen(lab, tmp_path):
 
 
 def test_masking_comes_from_the_parsed_address():
-    from matcher.store.location import mask_secrets, mask_url, parse_url, resolve
+    from matcher.location import mask_secrets, mask_url, parse_url, resolve
 
     u = parse_url("postgresql://ana:a b@c:d/e#f%g?h@db.lab:5433/ri?sslmode=require")
     assert (u.username, u.password, u.host, u.port, u.database) == ("ana", "a b@c:d/e#f%g?h", "db.lab", 5433, "ri")

@@ -24,7 +24,7 @@ from matcher.retention.kovats import kovats, kovats_index
 from matcher.retention.ladder import read_ladder
 from matcher.retention.linear_index import linear_index, van_den_dool_kratz
 from matcher.io.peak_tables import MAX_MZ, MAX_RI, MAX_RT_MIN, parse_ions, read_peaks
-from matcher.io.index_files import convert_times
+from matcher.report.index_files import convert_times
 from matcher.io.delimited import ECHO_LIMIT, echo, load_table, texts
 
 FIXTURE = dict(deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
@@ -156,7 +156,7 @@ def test_calibration_with_one_field_damaged_loads_or_raises_input_error(tmp_path
 @settings(max_examples=200, deadline=None)
 @given(st.lists(st.text(max_size=12), max_size=6))
 def test_time_arguments_raise_only_input_error(times):
-    from matcher.io.index_files import _parse_time_args
+    from matcher.report.index_files import _parse_time_args
 
     try:
         v = _parse_time_args(times, None)

@@ -265,3 +265,30 @@ def test_readme_python_example_runs(tmp_path):
     assert proc.returncode == 0, proc.stderr
     assert (tmp_path / "shortlist.csv").is_file() and (tmp_path / "report.html").is_file()
     assert "limonene" in proc.stdout
+
+
+def test_screen_with_output_streams_the_same_csv_as_the_table_written_afterwards(demo_lib, tmp_path, monkeypatch):
+    """`output=` writes the CSV part by part (here in index windows of 10 peaks) and keeps the leading rows."""
+    import matcher.identify.screening as S
+
+    run, ladder = _demo_frame("run.csv"), _demo_frame("ladder.csv")
+    whole = matcher.screen(run, ladder=ladder, phase_class="slightly-polar", library=demo_lib, top=3)
+    whole.to_csv(tmp_path / "whole.csv")
+    monkeypatch.setattr(S, "CHUNK", 10)
+    streamed = matcher.screen(run, ladder=ladder, phase_class="slightly-polar", library=demo_lib, top=3,
+                              output=tmp_path / "streamed.csv", report=tmp_path / "r.html")
+    a = pd.read_csv(tmp_path / "whole.csv", dtype=str).sort_values(["peak", "rank"], key=lambda s: pd.to_numeric(s, errors="coerce"))
+    b = pd.read_csv(tmp_path / "streamed.csv", dtype=str).sort_values(["peak", "rank"], key=lambda s: pd.to_numeric(s, errors="coerce"))
+    assert len(a) == len(b) > 40
+    for col in ("peak", "rank", "name", "ri", "library_ri", "flags"):
+        assert a[col].tolist() == b[col].tolist(), col
+    pa, pb = a["probability"].astype(float).to_numpy(), b["probability"].astype(float).to_numpy()
+    assert np.abs(pa - pb).max() < 1e-3  # the joint model cut into index windows with a halo
+    run0 = streamed.runs[0]
+    assert run0.streamed and (tmp_path / "streamed.csv.meta.json").exists() and (tmp_path / "r.html").exists()
+    kept = run0.table
+    assert set(kept["peak"].astype(str)) == set(a["peak"])  # every peak keeps its leading row
+    with pytest.raises(matcher.MatcherError, match="same file"):
+        matcher.screen(tmp_path / "streamed.csv", phase_class="slightly-polar", library=demo_lib,
+                       output=tmp_path / "streamed.csv")
+    assert pd.read_csv(tmp_path / "streamed.csv").shape[0] == len(b)  # the input was not touched

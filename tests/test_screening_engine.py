@@ -173,3 +173,47 @@ def test_predicted_homologue_is_flagged_and_never_beats_a_measured_value_at_equa
     assert c["name"][0] == "look-alike"
     assert "predicted" in c["flags"][1]
     assert c["probability"][0] > c["probability"][1]
+
+
+# ---------------------------------------------------------------- windows of the index scale (long runs)
+
+def test_index_chunks_cover_every_peak_once_with_a_halo_of_two_half_widths():
+    from matcher.identify.screening import index_chunks
+
+    rng = np.random.default_rng(3)
+    x = rng.uniform(700, 3000, 1000)
+    x[[5, 77]] = np.nan  # peaks without an index come last, in a core of their own chunk
+    w = np.full(1000, 10.0)
+    cores, seen = [], np.zeros(1000, int)
+    for core, context in index_chunks(x, w, size=150):
+        seen[core] += 1
+        assert set(core.tolist()) <= set(context.tolist())
+        finite = core[np.isfinite(x[core])]
+        if len(finite):
+            lo, hi = x[finite].min(), x[finite].max()
+            near = np.flatnonzero((x >= lo - 20.0) & (x <= hi + 20.0))
+            assert set(near.tolist()) <= set(context.tolist())  # every peak within 2w of the core is context
+        cores.append(core)
+    assert (seen == 1).all()
+    assert set(np.concatenate(cores[-1:]).tolist()) >= {5, 77}
+
+
+def test_a_long_run_scored_in_chunks_gives_the_same_calls_as_scored_whole(monkeypatch):
+    """The halo makes chunking all but invisible: same top candidate for every peak, probabilities within 1e-4
+    (a loopy component cut at the halo's edge is approximated; here 1 peak in 3000 moves by 7e-6)."""
+    import matcher.identify.screening as S
+
+    rng = np.random.default_rng(21)
+    ri, masses = _library(rng, 600)
+    home = prepare(synthetic_snapshot(ri, masses=masses), "nonpolar")
+    truth = rng.integers(0, 600, 3000)
+    x = ri[truth] + rng.normal(0, 3.0, 3000)
+    peaks = PeakInput(x, mol_ion=masses[truth].astype(float))
+    whole, *_ = screen_run(home, peaks, 3.0)
+    monkeypatch.setattr(S, "CHUNK", 400)
+    chunked, *_ = screen_run(home, peaks, 3.0)
+    assert len(list(S.index_chunks(x, np.full(3000, 10.0), S.CHUNK))) == 8
+    a, b = top_of(whole, 3000), top_of(chunked, 3000)
+    assert np.array_equal(a[0], b[0])
+    np.testing.assert_allclose(a[1], b[1], atol=1e-4)
+    assert set(chunked.columns["peak"].tolist()) == set(range(3000))

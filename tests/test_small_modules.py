@@ -19,7 +19,7 @@ from matcher import rules
 from matcher.report import summary as run_summary, svg as svg_plots, terminal as textable
 from matcher.retention import series
 from matcher.errors import InputError, MatcherError
-from matcher.store import location
+from matcher import location
 
 
 # --------------------------------------------------------------------------- rules

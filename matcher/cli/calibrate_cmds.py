@@ -132,7 +132,7 @@ def register(app: typer.Typer) -> None:
 
         from matcher.retention.calibration import Calibration, atomic_write_text
         from matcher.errors import MatcherError
-        from matcher.io.index_files import convert_times, ri_csv, ri_document
+        from matcher.report.index_files import convert_times, ri_csv, ri_document
 
         if bool(times) == bool(peaks):
             raise MatcherError("give retention times as arguments or --peaks FILE (one of the two)")

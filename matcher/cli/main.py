@@ -83,7 +83,7 @@ def run() -> None:
         app()
     except MatcherError as exc:
         from matcher.safe_text import terminal_text
-        from matcher.store.location import mask_secrets
+        from matcher.location import mask_secrets
 
         typer.echo(terminal_text(mask_secrets(f"error: {' '.join(str(exc).split())}")), err=True)
         sys.exit(exc.exit_code)
@@ -93,7 +93,7 @@ def run() -> None:
     except Exception as exc:  # last resort: never a traceback at the bench
         if os.environ.get("MATCHER_DEBUG"):
             raise
-        from matcher.store.location import mask_secrets
+        from matcher.location import mask_secrets
 
         from matcher.safe_text import terminal_text
 

@@ -61,18 +61,6 @@ def register(app: typer.Typer) -> None:
         import sys
 
         from matcher.api import screen
-        from matcher.io.atomic import guard_outputs
-        from matcher.rules import check_report_path, check_shortlist_path
-        from matcher.report.files import sidecar_path, write_results
-
-        check_shortlist_path(out)  # before the work: nothing is screened for a file that cannot be written
-        if report is not None:
-            check_report_path(report)
-        csv_out = out.lower().endswith(".csv")
-        outputs = [("-o", out)] + ([("-o (its provenance sidecar)", str(sidecar_path(out)))] if csv_out else [])
-        guard_outputs(outputs + [("--report", report)], db=db,
-                      inputs=[("the peak table", p) for p in peaks] + [("the calibration", c) for c in calibration or []]
-                      + [("the ladder", x) for x in ladder or []] + [("the anchors file", anchors)])
 
         bar = None
         progress = None
@@ -90,16 +78,13 @@ def register(app: typer.Typer) -> None:
                             dead_time=dead_time, rt_unit=rt_unit, header_map=parse_map(header_map) or None,
                             window=window, window_percent=window_percent, top=top, fallback=fallback,
                             homologues=homologues, adaptive=adaptive, anchors=anchors, measurement_sd=sd,
-                            crowding=crowding, split_peaks=split_peaks, progress=progress)
+                            crowding=crowding, split_peaks=split_peaks, progress=progress, output=out, report=report)
         finally:
             if bar is not None:
                 bar.__exit__(None, None, None)
-        written = write_results(result, out)
-        if report:
-            from matcher.report.html import write_report
+        from matcher.io.result_files import sidecar_path
 
-            write_report(result, report)
-            written = list(written) + [report]
+        written = [out] + ([str(sidecar_path(out))] if out.lower().endswith(".csv") else []) + ([report] if report else [])
         if not quiet:
             say(summary(result))
             for p in written:
@@ -114,18 +99,15 @@ def register(app: typer.Typer) -> None:
 
 def summary(result) -> str:
     """A short per-run table: peaks, with a candidate, ranked first with p ≥ 0.9, to review."""
-    from matcher.identify.flags import has_flag
+    from matcher.report.summary import summary_of
     from matcher.report.terminal import format_table
 
     rows = []
     for run in result.runs:
-        t = run.table
-        first = t[t["rank"] == 1]
-        peaks = t["peak"].nunique()
-        review = t.loc[has_flag(t["flags"].to_numpy(), "review"), "peak"].nunique()
+        s = summary_of(run)
         corr = run.correction
         corr_text = "-" if not corr else (f"a={corr['a']:+.4f} b={corr['b']:+.2f}" if corr.get("applied") else "skipped")
-        rows.append([run.label, peaks, int(len(first)), int((first["probability"] >= 0.9).sum()), review,
+        rows.append([run.label, s["peaks"], s["with_candidates"], s["confident"], s["review"],
                      f"{run.measurement_sd:.2f}" if run.measurement_sd is not None else "-", corr_text])
     return format_table(["run", "peaks", "with candidate", "confident (p>=0.9)", "to review", "index sd", "adaptive fit"],
                         rows, align="lrrrrrl")

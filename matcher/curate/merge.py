@@ -31,7 +31,7 @@ def _other_rows(other: str):
 
 
 def _shown(other: str) -> str:
-    from matcher.store.location import mask_url, resolve
+    from matcher.location import mask_url, resolve
 
     if "://" not in str(other) and str(other).lower().endswith((".csv", ".txt", ".xlsx")):
         return str(other)

@@ -189,7 +189,7 @@ def _exact(logw: np.ndarray, peak: np.ndarray, comp: np.ndarray):
     return prob, nil, peaks
 
 
-class _Groups:
+class PeakGroups:
     """Segment operations over edges grouped by a key, each group with an extra element 0 (log 1)."""
 
     def __init__(self, key: np.ndarray, n_groups: int):
@@ -234,8 +234,8 @@ def _belief_propagation(logw: np.ndarray, peak: np.ndarray, comp: np.ndarray):
     """Sum-product messages on the peak–compound graph (see module doc)."""
     peaks, p_loc = np.unique(peak, return_inverse=True)
     comps, c_loc = np.unique(comp, return_inverse=True)
-    gp = _Groups(p_loc, len(peaks))
-    gc = _Groups(c_loc, len(comps))
+    gp = PeakGroups(p_loc, len(peaks))
+    gc = PeakGroups(c_loc, len(comps))
     log_tau = np.zeros(len(logw))
     for _ in range(BP_ITERATIONS):
         log_rho = logw - gp.logsumexp_others(logw + log_tau)

@@ -14,7 +14,7 @@ from __future__ import annotations
 import datetime as _dt
 import os
 from dataclasses import dataclass
-from typing import Any, Callable, Sequence
+from typing import Any, Callable, Iterable, Sequence
 
 import numpy as np
 
@@ -27,11 +27,12 @@ from matcher.classes import check_class
 from matcher.errors import InputError, MatcherError
 from matcher.identify.evidence import DEFAULT_MEASUREMENT_SD, Model, PeakHints
 from matcher.identify.hints import ion_masks
-from matcher.results import DETAIL_COLUMNS, SHORTLIST_COLUMNS, RunResult, ScreenResult
+from matcher.results import DETAIL_COLUMNS, REPORT_PEAKS, SHORTLIST_COLUMNS, RunResult, ScreenResult
 from matcher.identify.shortlist import PeakInput, PreparedClass, Shortlist, neighbour_of, prepare, shortlist
 from matcher.store.snapshot import LibrarySnapshot
 
-CHUNK = 50_000
+CHUNK = 50_000  # peaks scored at once at most
+MAX_PAIRS = 400_000  # peak-candidate pairs scored at once, on average (bounds a chunk's memory, ~0.3 GB)
 MAX_FIT_PEAKS = 20_000  # peaks used to fit the run model (a seeded sample beyond this)
 
 
@@ -151,50 +152,148 @@ def fit_run_model(home: PreparedClass, peaks: PeakInput, model: Model, w: np.nda
     return model, info, lam
 
 
-def shortlist_chunked(home, peaks: PeakInput, model: Model, *, window, window_percent, top, neighbour,
-                      progress: Callable[[int], None] | None = None) -> Shortlist:
-    """:func:`matcher.identify.shortlist.shortlist` over chunks of peaks, results joined."""
-    n = len(peaks)
-    if n <= CHUNK:
-        sl = shortlist(home, peaks, model, window=window, window_percent=window_percent, top=top, neighbour=neighbour)
-        if progress:
-            progress(n)
+def pair_budget_size(x: np.ndarray, w: np.ndarray, entries_ri: np.ndarray, size: int = CHUNK,
+                     pairs: int = None) -> int:
+    """Peaks per chunk so that a chunk holds at most ``pairs`` peak-candidate pairs on average.
+
+    >>> pair_budget_size(np.arange(1000.0), np.full(1000, 5.0), np.arange(0.0, 1000.0, 0.5), size=800, pairs=2000)  # 21 entries in each window
+    95
+    """
+    pairs = MAX_PAIRS if pairs is None else pairs
+    ok = np.isfinite(x)
+    if not ok.any() or not len(entries_ri):
+        return size
+    count = np.searchsorted(entries_ri, x[ok] + w[ok], "right") - np.searchsorted(entries_ri, x[ok] - w[ok], "left")
+    per_peak = max(float(count.mean()), 1.0)
+    return int(max(1000 if len(x) > 1000 else 1, min(size, pairs // per_peak)))
+
+
+def index_chunks(x: np.ndarray, w: np.ndarray, size: int = CHUNK):
+    """Windows of the index scale: (core positions, context positions) per chunk.
+
+    A run of at most ``size`` peaks is one chunk, in file order. A longer run is
+    cut, in index order, into cores of ``size`` peaks; each core is scored with a
+    *halo* of the peaks within two half-widths of its ends as context, so a
+    compound's competition between peaks (one compound, one peak) and the
+    run-level flags see every peak that can share a candidate with a core peak
+    (two peaks share a candidate only when they lie within w₁ + w₂ of each other).
+    Only the core's rows are kept. Peaks without an index come last.
+
+    >>> x = np.array([5.0, 1.0, 3.0, 2.0, 4.0]); w = np.full(5, 0.6)
+    >>> [(c.tolist(), k.tolist()) for c, k in index_chunks(x, w, size=2)]
+    [([1, 3], [1, 3, 2]), ([2, 4], [3, 2, 4, 0]), ([0], [4, 0])]
+    """
+    n = len(x)
+    if n <= size:
+        everything = np.arange(n)
+        yield everything, everything
+        return
+    key = np.where(np.isfinite(x), x, np.inf)
+    order = np.argsort(key, kind="stable")
+    xs = key[order]
+    finite_w = w[np.isfinite(w)]
+    halo = 2.0 * float(finite_w.max()) if len(finite_w) else 0.0
+    for start in range(0, n, size):
+        stop = min(n, start + size)
+        lo, hi = xs[start], xs[stop - 1]
+        a = int(np.searchsorted(xs, lo - halo, "left")) if np.isfinite(lo) else start
+        b = int(np.searchsorted(xs, hi + halo, "right")) if np.isfinite(hi) else stop
+        yield order[start:stop], order[min(a, start):max(b, stop)]
+
+
+def _core_rows(sl: Shortlist, context: np.ndarray, core: np.ndarray) -> Shortlist:
+    """The rows of a context's shortlist that belong to its core, peaks renumbered 0..len(core)-1 in core order."""
+    if len(context) == len(core) and np.array_equal(context, core):
         return sl
-    parts = []
-    for start in range(0, n, CHUNK):
-        idx = np.arange(start, min(n, start + CHUNK))
-        part = shortlist(home, _subset(peaks, idx), model, window=window, window_percent=window_percent, top=top, neighbour=neighbour)
-        part.columns["peak"] = part.columns["peak"] + start
-        parts.append(part)
+    local = np.full(len(context), -1, dtype=np.int64)
+    pos = np.empty(int(context.max()) + 1 if len(context) else 0, dtype=np.int64)
+    pos[context] = np.arange(len(context))
+    local[pos[core]] = np.arange(len(core))
+    c = sl.columns
+    new_peak = local[c["peak"]]
+    keep = new_peak >= 0
+    order = np.argsort(new_peak[keep], kind="stable")  # rows grouped by the core's peak order, ranks kept
+    rows = np.flatnonzero(keep)[order]
+    cols = {k: v[rows] for k, v in c.items()}
+    cols["peak"] = new_peak[rows]
+    at = pos[core]
+    return Shortlist(cols, sl.not_in_library[at], sl.top_probability[at], sl.candidate_count[at], sl.window[at],
+                     list(sl.notes))
+
+
+def iter_shortlist(home, peaks: PeakInput, model: Model, *, window, window_percent, top, neighbour,
+                   run_level_flags: bool = True, progress: Callable[[int], None] | None = None):
+    """:func:`matcher.identify.shortlist.shortlist` over :func:`index_chunks`: yields (core positions, shortlist).
+
+    Each yielded shortlist holds the core's rows only, its ``peak`` column counting
+    the core's peaks from 0; with ``run_level_flags`` the rows carry the run-level
+    flags (:func:`run_flags`) computed on the chunk with its halo. Memory grows with
+    the chunk, not with the run, so the rows can go to a file as they come.
+    """
+    x = np.asarray(peaks.ri, dtype=float)
+    w = half_widths(x, home.phase_class, window, window_percent)
+    for core, context in index_chunks(x, w, pair_budget_size(x, w, home.entries.ri, CHUNK)):
+        sub = peaks if len(context) == len(x) else _subset(peaks, context)
+        sl = shortlist(home, sub, model, window=window, window_percent=window_percent, top=top, neighbour=neighbour)
+        if run_level_flags:
+            sl.columns["flags"] = run_flags(sl, x[context], home.compounds)
         if progress:
-            progress(len(idx))
-    cols = {k: np.concatenate([p.columns[k] for p in parts]) for k in parts[0].columns}
-    return Shortlist(
-        cols,
-        np.concatenate([p.not_in_library for p in parts]),
-        np.concatenate([p.top_probability for p in parts]),
-        np.concatenate([p.candidate_count for p in parts]),
-        np.concatenate([p.window for p in parts]),
-        sorted({n for p in parts for n in p.notes}),
-    )
+            progress(len(core))
+        yield core, _core_rows(sl, context, core)
 
 
-def select_anchors(sl: Shortlist, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, list[str]]:
+def join_parts(parts: list[tuple[np.ndarray, Shortlist]], n: int) -> Shortlist:
+    """One shortlist of the whole run from :func:`iter_shortlist`'s parts (``peak`` = position in the run)."""
+    if len(parts) == 1 and len(parts[0][0]) == n and np.array_equal(parts[0][0], np.arange(n)):
+        return parts[0][1]
+    cols = {k: np.concatenate([p.columns[k] for _, p in parts]) for k in parts[0][1].columns}
+    cols["peak"] = np.concatenate([core[p.columns["peak"]] for core, p in parts])
+    order = np.argsort(cols["peak"], kind="stable")
+    cols = {k: v[order] for k, v in cols.items()}
+
+    def per_peak(attr):
+        out = np.zeros(n, dtype=getattr(parts[0][1], attr).dtype)
+        for core, p in parts:
+            out[core] = getattr(p, attr)
+        return out
+
+    return Shortlist(cols, per_peak("not_in_library"), per_peak("top_probability"), per_peak("candidate_count"),
+                     per_peak("window"), sorted({t for _, p in parts for t in p.notes}))
+
+
+def _anchor_rows(sl: Shortlist) -> np.ndarray:
+    c = sl.columns
+    ok = (c["rank"] == 1) & (c["probability"] >= ANCHOR_PROBABILITY) & ~c["cross_class"] & ~c["predicted"]
+    ok &= ~F.has_flag(c["flags"], "ambiguous") & ~F.has_flag(c["flags"], "mass-mismatch")
+    ok &= ~F.has_flag(c["flags"], "contested")
+    return np.flatnonzero(ok)
+
+
+def select_anchors(sl: Shortlist | Iterable[tuple[np.ndarray, Shortlist]], x: np.ndarray | None = None
+                   ) -> tuple[np.ndarray, np.ndarray, list[str]]:
     """Confident calls under the joint model: (peak positions, reference indices, names).
 
     Ranked first with probability ≥ ANCHOR_PROBABILITY, not ambiguous, contested or mass-mismatched,
     neither predicted nor cross-class; a compound anchors at most once (its most probable peak).
+    ``sl`` is a whole run's shortlist or :func:`iter_shortlist`'s parts.
     """
-    c = sl.columns
-    flags = c["flags"]
-    ok = (c["rank"] == 1) & (c["probability"] >= ANCHOR_PROBABILITY) & ~c["cross_class"] & ~c["predicted"]
-    ok &= ~F.has_flag(flags, "ambiguous") & ~F.has_flag(flags, "mass-mismatch") & ~F.has_flag(flags, "contested")
-    rows = np.flatnonzero(ok)
-    if len(rows):
-        order = rows[np.lexsort((-c["probability"][rows], c["compound"][rows]))]
-        first = np.r_[True, c["compound"][order][1:] != c["compound"][order][:-1]]
-        rows = np.sort(order[first])
-    return c["peak"][rows], c["library_ri"][rows], [str(v) for v in c["name"][rows]]
+    parts = [(None, sl)] if isinstance(sl, Shortlist) else sl
+    peak, comp, prob, ref, name = [], [], [], [], []
+    for core, part in parts:
+        c = part.columns
+        rows = _anchor_rows(part)
+        peak.append(c["peak"][rows] if core is None else core[c["peak"][rows]])
+        for acc, key in ((comp, "compound"), (prob, "probability"), (ref, "library_ri"), (name, "name")):
+            acc.append(c[key][rows])
+    if not peak:
+        return np.zeros(0, np.int64), np.zeros(0), []
+    peak, comp, prob, ref, name = (np.concatenate(a) for a in (peak, comp, prob, ref, name))
+    if len(peak):
+        order = np.lexsort((-prob, comp))
+        first = order[np.r_[True, comp[order][1:] != comp[order][:-1]]]
+        keep = first[np.argsort(peak[first], kind="stable")]
+        peak, ref, name = peak[keep], ref[keep], name[keep]
+    return peak.astype(np.int64), ref.astype(float), [str(v) for v in name]
 
 
 def _anchors_from_file(path: str, label: str, peak_ids: np.ndarray, snapshot: LibrarySnapshot, home: PreparedClass):
@@ -322,7 +421,7 @@ def _with(peaks: PeakInput, x: np.ndarray, lam: np.ndarray) -> PeakInput:
 def _shift_profile(home: PreparedClass, peaks: PeakInput, model: Model, w: np.ndarray, lam: np.ndarray) -> float:
     """Coarse offset of the run: the shift b maximising the run's mixture likelihood (see :mod:`matcher.identify.adaptive`)."""
     from matcher.identify.adaptive import MIN_ANCHORS, SHIFT_STEP
-    from matcher.identify.assignment import _Groups
+    from matcher.identify.assignment import PeakGroups
     from matcher.identify.window_search import window_pairs
     from matcher.identify.evidence import score_pairs
 
@@ -330,12 +429,16 @@ def _shift_profile(home: PreparedClass, peaks: PeakInput, model: Model, w: np.nd
     ok = np.isfinite(x)
     if ok.sum() < MIN_ANCHORS or not len(home.entries):
         return 0.0
+    if ok.sum() > MAX_FIT_PEAKS:  # the offset of a long run is clear from a seeded sample of its peaks
+        keep = np.random.default_rng(20261203).choice(np.flatnonzero(ok), MAX_FIT_PEAKS, replace=False)
+        ok = np.zeros(len(x), bool)
+        ok[keep] = True
     xs = x[ok]
     reach = float(np.max(w[ok]))
     pairs = window_pairs(home.entries.ri, xs, w[ok] * 2.0)
     sub = _subset(peaks, np.flatnonzero(ok))
     hints = _hints_for_fit(sub)
-    groups = _Groups(pairs.peak, len(xs))  # per peak: log(1 + Σ_j w_pj), the "1" being not-in-library
+    groups = PeakGroups(pairs.peak, len(xs))  # per peak: log(1 + Σ_j w_pj), the "1" being not-in-library
     best_b, best_ll = 0.0, -np.inf
     for b in np.arange(-reach, reach + SHIFT_STEP / 2, SHIFT_STEP):
         sc = score_pairs(pairs, xs + b, home.entries, home.compounds, home.mass_bg, model, hints, home.ion_masks,
@@ -347,12 +450,46 @@ def _shift_profile(home: PreparedClass, peaks: PeakInput, model: Model, w: np.nd
     return best_b
 
 
+@dataclass
+class PreparedRun:
+    """One run made ready for shortlisting: corrected indices, fitted model, unlisted intensity, provenance."""
+
+    peaks: PeakInput      # with the corrected indices and λ_U per peak
+    x_raw: np.ndarray     # indices before the correction
+    model: Model
+    info: dict
+    correction: dict | None
+    notices: list[str]
+
+    @property
+    def x(self) -> np.ndarray:
+        return np.asarray(self.peaks.ri, dtype=float)
+
+
 def screen_run(home: PreparedClass, peaks: PeakInput, base_sd: float, *, window=None, window_percent=None, top=None,
                neighbour: PreparedClass | None = None, adaptive: bool = False, user_anchors=None,
                estimate_scatter: bool = True, peak_ids: np.ndarray | None = None, progress=None,
                crowding=None, exclusive: bool = True):
     """Screen one run's peaks (indices already computed); returns
     (shortlist, corrected indices, model, run-model info, correction or None, notices).
+
+    The whole run's shortlist in memory: :func:`prepare_run`, then every part of
+    :func:`iter_shortlist` joined (:func:`join_parts`).
+    """
+    run = prepare_run(home, peaks, base_sd, window=window, window_percent=window_percent, adaptive=adaptive,
+                      user_anchors=user_anchors, estimate_scatter=estimate_scatter, peak_ids=peak_ids,
+                      crowding=crowding, exclusive=exclusive)
+    parts = list(iter_shortlist(home, run.peaks, run.model, window=window, window_percent=window_percent, top=top,
+                                neighbour=neighbour, progress=progress))
+    sl = join_parts(parts, len(run.x))
+    run.notices.extend(sl.notes)
+    return sl, run.x, run.model, run.info, run.correction, run.notices
+
+
+def prepare_run(home: PreparedClass, peaks: PeakInput, base_sd: float, *, window=None, window_percent=None,
+                adaptive: bool = False, user_anchors=None, estimate_scatter: bool = True,
+                peak_ids: np.ndarray | None = None, crowding=None, exclusive: bool = True) -> PreparedRun:
+    """Everything before the shortlist: the run model, and with ``adaptive`` the correction.
 
     With ``adaptive`` (or ``user_anchors``) the run is corrected as described in
     :mod:`matcher.identify.adaptive`: a coarse offset from the run's likelihood, anchors
@@ -379,9 +516,9 @@ def screen_run(home: PreparedClass, peaks: PeakInput, base_sd: float, *, window=
             shift = _shift_profile(home, peaks, model, w, lam)
             xs = x_raw + shift
             m1, _, lam1 = fit_run_model(home, _with(peaks, xs, None), base, w, crowding=crowding)
-            first = shortlist_chunked(home, _with(peaks, xs, lam1), m1, window=window, window_percent=window_percent,
-                                      top=None, neighbour=None)
-            a_pos, a_ref, a_names = select_anchors(first, xs)
+            first = iter_shortlist(home, _with(peaks, xs, lam1), m1, window=window, window_percent=window_percent,
+                                   top=None, neighbour=None, run_level_flags=False)
+            a_pos, a_ref, a_names = select_anchors(first)
             source = "confident matches"
         a_pos = np.asarray(a_pos, dtype=np.int64)
         fit = robust_correction(x_raw[a_pos], np.asarray(a_ref, float), x_raw, w)
@@ -408,12 +545,8 @@ def screen_run(home: PreparedClass, peaks: PeakInput, base_sd: float, *, window=
         notices.append(correction["notice"])
     if info.get("notice"):
         notices.append(info["notice"])
-    sl = shortlist_chunked(home, _with(peaks, x, lam), model, window=window, window_percent=window_percent, top=top,
-                           neighbour=neighbour, progress=progress)
-    notices.extend(sl.notes)
-    sl.columns["flags"] = run_flags(sl, x, home.compounds)
     info["index_scatter"] = float(model.measurement_sd)
-    return sl, x, model, info, correction, notices
+    return PreparedRun(_with(peaks, x, lam), x_raw, model, info, correction, notices)
 
 
 def _anchor_entry_sd(home: PreparedClass, ref: np.ndarray) -> np.ndarray:
@@ -425,6 +558,36 @@ def _anchor_entry_sd(home: PreparedClass, ref: np.ndarray) -> np.ndarray:
     j = np.clip(i - 1, 0, len(e) - 1)
     k = np.where(np.abs(e.ri[j] - ref) < np.abs(e.ri[i] - ref), j, i)
     return np.where(np.abs(e.ri[k] - ref) < 1e-6, e.sd[k], 0.0)
+
+
+def _concat(frames):
+    import pandas as pd
+
+    return pd.concat(frames, ignore_index=True)
+
+
+class _Keeper:
+    """What a streamed run keeps in memory: every row of up to ``budget`` peaks marked for review
+    and ``budget`` others, the most a report shows (review-marked first)."""
+
+    def __init__(self, budget: int) -> None:
+        self.review_left = budget
+        self.other_left = budget
+
+    def keep(self, df):
+        import pandas as pd
+
+        if not len(df) or (self.review_left <= 0 and self.other_left <= 0):
+            return df.iloc[:0]
+        peak_codes, _ = pd.factorize(df["peak"].astype(str))
+        review_peak = np.zeros(peak_codes.max() + 1, bool)
+        np.logical_or.at(review_peak, peak_codes, F.has_flag(df["flags"].to_numpy(), "review"))
+        order = np.unique(peak_codes)
+        take_review = order[review_peak[order]][: self.review_left]
+        take_other = order[~review_peak[order]][: self.other_left]
+        self.review_left -= len(take_review)
+        self.other_left -= len(take_other)
+        return df[np.isin(peak_codes, np.concatenate([take_review, take_other]))].reset_index(drop=True)
 
 
 def screen(
@@ -451,8 +614,14 @@ def screen(
     crowding: str | float | None = None,
     split_peaks: bool = False,
     progress: Callable[[int], None] | None = None,
+    sink: Callable[[Any], None] | None = None,
 ) -> ScreenResult:
     """Screen runs against one class of the house library; see the module doc.
+
+    ``sink``: called with each part of the output table (a DataFrame in output
+    order) as soon as it is ready, so a writer can stream a run of any size; the
+    runs' ``table`` then keeps only the rows of the peaks a report shows
+    (:class:`_Keeper`), and ``RunResult.streamed`` is true.
 
     ``peak_files``: one run or a list of runs, each a peak-table path, a
     pandas DataFrame or a :class:`~matcher.io.peak_tables.PeakTable`. ``calibration``
@@ -512,18 +681,33 @@ def screen(
         user_anchors = None
         if anchors:
             user_anchors = _anchors_from_file(anchors, label, np.asarray(table.peak), snapshot, home)
-        outcome = screen_run(home, peaks, base_sd, window=window, window_percent=window_percent, top=top,
-                             neighbour=neighbour, adaptive=adaptive or bool(anchors), user_anchors=user_anchors,
-                             estimate_scatter=measurement_sd is None, peak_ids=np.asarray(table.peak), progress=progress,
-                             crowding=crowding, exclusive=not split_peaks)
-        sl, x, model, info, correction, notices = outcome
-        df = _table(sl, label, phase_class, table.peak, table.rt, x, x_raw, peaks)
+        ids = np.asarray(table.peak)
+        prep = prepare_run(home, peaks, base_sd, window=window, window_percent=window_percent,
+                           adaptive=adaptive or bool(anchors), user_anchors=user_anchors,
+                           estimate_scatter=measurement_sd is None, peak_ids=ids, crowding=crowding,
+                           exclusive=not split_peaks)
+        rt = np.asarray(table.rt, dtype=float)
+        keeper = _Keeper(REPORT_PEAKS) if sink is not None else None
+        frames, notes = [], set()
+        for core, part in iter_shortlist(home, prep.peaks, prep.model, window=window, window_percent=window_percent,
+                                         top=top, neighbour=neighbour, progress=progress):
+            notes.update(part.notes)
+            whole = len(core) == len(x_raw)
+            df = _table(part, label, phase_class, ids if whole else ids[core], rt if whole else rt[core],
+                        prep.x if whole else prep.x[core], x_raw if whole else x_raw[core],
+                        peaks if whole else _subset(peaks, core))
+            if sink is not None:
+                sink(df)
+                df = keeper.keep(df)
+            frames.append(df)
+        df = frames[0] if len(frames) == 1 else _concat(frames)
         runs.append(RunResult(
             source=run.peaks_path, label=label, phase_class=phase_class,
             window=window_description(phase_class, window, window_percent),
-            table=df, calibration=None if cal is None else cal.to_dict(), correction=correction,
-            measurement_sd=model.measurement_sd, notices=notices, peak_count=len(table.peak), run_model=info,
-            checksum=getattr(table, "checksum", ""),
+            table=df, calibration=None if cal is None else cal.to_dict(), correction=prep.correction,
+            measurement_sd=prep.model.measurement_sd, notices=prep.notices + sorted(notes),
+            peak_count=len(table.peak), run_model=prep.info, checksum=getattr(table, "checksum", ""),
+            streamed=sink is not None,
         ))
 
     return ScreenResult(

@@ -92,7 +92,7 @@ def is_sqlite_file(path: str | os.PathLike) -> bool:
 
 def library_files(db: str | None) -> list[str]:
     """The SQLite library of ``--db`` (or ``$MATCHER_DB``/the default) and its companions; [] for a server."""
-    from matcher.store.location import resolve
+    from matcher.location import resolve
 
     try:
         url = resolve(db)

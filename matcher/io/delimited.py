@@ -479,7 +479,7 @@ def _load_xlsx(path: str, what: str) -> RawTable:
 # --------------------------------------------------------------------------- columns
 
 # ASCII digits only, as on the command line: full-width or other scripts' digits are refused in both places
-_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?|[+-]?(?:nan|inf|infinity)", re.IGNORECASE)
+NUMBER_PATTERN = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?|[+-]?(?:nan|inf|infinity)", re.IGNORECASE)
 
 
 def _column(raw: RawTable, column: str) -> list[str]:
@@ -533,7 +533,7 @@ def numbers(
             if required:
                 raise raw.fail("empty cell; a number is required", row=k + 1, column=column)
             continue
-        if not _NUMBER.fullmatch(c):
+        if not NUMBER_PATTERN.fullmatch(c):
             hint = " (write digits as ASCII 0-9)" if any(ch.isdigit() and not ch.isascii() for ch in c) else ""
             raise raw.fail(f"not a number: {echo(c)}{hint}", row=k + 1, column=column)
     filled = [c if c else "nan" for c in cells]

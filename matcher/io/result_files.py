@@ -18,6 +18,20 @@ from matcher.classes import check_class
 from matcher.errors import InputError, MatcherError
 
 
+#: A screen CSV's provenance lives in ``OUT.csv`` + this suffix.
+SIDECAR_SUFFIX = ".meta.json"
+
+
+def sidecar_path(csv_path: str | os.PathLike) -> Path:
+    """Where the provenance of a CSV goes.
+
+    >>> sidecar_path("runs/shortlist.csv").as_posix()
+    'runs/shortlist.csv.meta.json'
+    """
+    p = Path(csv_path)
+    return p.with_name(p.name + SIDECAR_SUFFIX)
+
+
 @dataclass
 class PeakFacts:
     """One peak of a screening output and the facts of its run."""
@@ -188,7 +202,6 @@ def _read_peak(results_path: str | os.PathLike, peak: Any, *, run: str | None = 
         ri_measured = _num(p.get("ri_measured"))
         sidecar = True
     else:
-        from matcher.report.files import sidecar_path
 
         side = sidecar_path(path)
         doc = _load_json(side, "provenance sidecar") if side.is_file() else None
@@ -384,8 +397,6 @@ def _read_result(results_path: str | os.PathLike) -> ResultView:
                 for rd in doc.get("runs") or []]
         sidecar = True
     else:
-        from matcher.report.files import sidecar_path
-
         side = sidecar_path(path)
         doc = _load_json(side, "provenance sidecar") if side.is_file() else {}
         try:

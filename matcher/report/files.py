@@ -77,9 +77,10 @@ from matcher.results import (
     candidate_record,
 )
 from matcher.rules import SHORTLIST_SUFFIXES
-from matcher.report.summary import split_flags, summarise_table
+from matcher.report.summary import split_flags, summarise_table, summary_of  # noqa: F401
 from matcher.safe_text import neutralise, spreadsheet_text
-from matcher.store.location import mask_secrets, mask_url
+from matcher.io.result_files import SIDECAR_SUFFIX, sidecar_path  # noqa: F401 - part of this module's API
+from matcher.location import mask_secrets, mask_url
 
 #: Output suffixes (:data:`matcher.rules.SHORTLIST_SUFFIXES`) and what they hold.
 OUTPUT_TYPES: dict[str, str] = dict(zip(SHORTLIST_SUFFIXES, ("CSV table", "JSON document", "Excel workbook")))
@@ -89,7 +90,6 @@ FORMAT_NAME = "matcher.screen-output"
 FORMAT_VERSION = 1
 
 #: Sidecar suffix appended to a CSV path.
-SIDECAR_SUFFIX = ".meta.json"
 
 INT_COLUMNS = ("rank", "library_n", "nominal_mass", "mol_ion")
 DECIMALS: dict[str, int] = {
@@ -323,7 +323,7 @@ def run_document(run: RunResult, *, with_peaks: bool = True) -> dict[str, Any]:
         "notices": [mask_secrets(str(n)) for n in (run.notices or [])],
         "calibration": jsonable(run.calibration),
         "correction": jsonable(run.correction),
-        "summary": summarise_table(run.table),
+        "summary": summary_of(run),
     }
     if getattr(run, "checksum", ""):
         doc["checksum"] = {"sha256": str(run.checksum)}  # the peak table's content: one peak, one identity
@@ -366,16 +366,6 @@ def _dump(doc: dict[str, Any]) -> str:
 
 # --------------------------------------------------------------------------- writers
 
-def sidecar_path(csv_path: str | os.PathLike) -> Path:
-    """Where the provenance of a CSV goes.
-
-    >>> sidecar_path("runs/shortlist.csv").as_posix()
-    'runs/shortlist.csv.meta.json'
-    """
-    p = Path(csv_path)
-    return p.with_name(p.name + SIDECAR_SUFFIX)
-
-
 def write_csv(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
     """The shortlist CSV and its provenance sidecar; returns both paths."""
     path = Path(path)
@@ -394,6 +384,74 @@ def write_csv(result: ScreenResult, path: str | os.PathLike) -> list[Path]:
         side.unlink(missing_ok=True)
         raise
     return [path, side]
+
+
+class CsvStream:
+    """The shortlist CSV written part by part while a screen runs, then its sidecar.
+
+    Used as ``with CsvStream(path) as stream: result = screen(..., sink=stream.write); stream.finish(result)``.
+    The CSV goes to a hidden temporary file beside ``path`` and replaces it only when
+    :meth:`finish` has written the provenance sidecar; any error leaves neither file
+    behind (nor a half-written one), as :func:`write_csv` does. The header is the first
+    part's columns (:func:`output_columns`); every part must have the same columns.
+    """
+
+    def __init__(self, path: str | os.PathLike) -> None:
+        self.path = Path(path)
+        self.columns: list[str] | None = None
+        self.rows = 0
+        self._ctx = None
+        self._fh = None
+        self._writer = None
+        self._finished = False
+
+    def __enter__(self) -> "CsvStream":
+        self._ctx = atomic_write(self.path, newline="")
+        self._fh = self._ctx.__enter__()
+        self._writer = csv.writer(self._fh, lineterminator="\n")
+        return self
+
+    def write(self, frame: pd.DataFrame) -> None:
+        """Append one part of the table (output columns in order, ``run`` filled in)."""
+        if self.columns is None:
+            self.columns = output_columns(frame)
+            self._writer.writerow(self.columns)
+        frame = frame.reindex(columns=self.columns)
+        cells = csv_cells(frame)
+        self._writer.writerows(zip(*(cells[c] for c in self.columns)))
+        self.rows += len(frame)
+
+    def finish(self, result: ScreenResult) -> list[Path]:
+        """Write the sidecar for ``result``; the CSV takes its place when the ``with`` block ends."""
+        if self.columns is None:  # no part came (no runs): the header alone
+            self.columns = output_columns()
+            self._writer.writerow(self.columns)
+        side = sidecar_path(self.path)
+        doc = results_document(result, content="provenance", table_file=self.path.name, table_columns=self.columns)
+        with atomic_write(side) as fh:
+            fh.write(_dump(doc))
+        self._finished = True
+        return [self.path, side]
+
+    def __exit__(self, kind, value, tb) -> bool:
+        unfinished = kind is None and not self._finished
+        if unfinished:
+            value = RuntimeError("CsvStream closed without finish(result)")
+            kind, tb = RuntimeError, None
+        if kind is not None:
+            try:
+                self._ctx.__exit__(kind, value, tb)  # removes the temporary CSV
+            finally:
+                sidecar_path(self.path).unlink(missing_ok=True)
+            if unfinished:
+                raise value
+            return False
+        try:
+            self._ctx.__exit__(None, None, None)
+        except BaseException:
+            sidecar_path(self.path).unlink(missing_ok=True)
+            raise
+        return False
 
 
 def results_text(result: ScreenResult) -> str:

@@ -43,13 +43,13 @@ import pandas as pd
 
 from matcher.report import svg as plots
 from matcher.io.atomic import atomic_write
-from matcher.results import RunResult, ScreenResult
-from matcher.report.summary import REVIEW_FLAG, engine_marks_review, row_needs_review, split_flags, summarise_table
+from matcher.results import REPORT_PEAKS, RunResult, ScreenResult
+from matcher.report.summary import REVIEW_FLAG, engine_marks_review, row_needs_review, split_flags, summarise_table, summary_of  # noqa: F401
 from matcher.safe_text import html_text as e
-from matcher.store.location import mask_secrets, mask_url
+from matcher.location import mask_secrets, mask_url
 
 #: Default cap on peaks listed per run in the report.
-MAX_PEAKS = 2000
+MAX_PEAKS = REPORT_PEAKS
 
 #: Rank-1 probability from which a match counts as confident for the deviation plot (without anchors).
 CONFIDENT_PROBABILITY = 0.9
@@ -480,7 +480,7 @@ def _run_section(i: int, run: RunResult, summary: dict[str, Any], max_peaks: int
 
 def render_report(result: ScreenResult, *, max_peaks: int = MAX_PEAKS) -> str:
     """The whole report as one HTML string (see the module doc)."""
-    summaries = [summarise_table(r.table) for r in result.runs]
+    summaries = [summary_of(r) for r in result.runs]
     nav = ""
     if len(result.runs) > 1:
         items = "".join(f'<li><a href="#run-{i}">{e(r.label)}</a></li>' for i, r in enumerate(result.runs, start=1))

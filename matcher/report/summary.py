@@ -84,10 +84,35 @@ def _has_rank(series: pd.Series) -> np.ndarray:
     return pd.to_numeric(series, errors="coerce").notna().to_numpy()
 
 
+#: A peak whose leading candidate has at least this probability counts as a confident call in summaries.
+CONFIDENT = 0.9
+
+
+def add_summaries(a: dict[str, Any] | None, b: dict[str, Any]) -> dict[str, Any]:
+    """Two summaries of disjoint sets of peaks added (a streamed run is summarised part by part).
+
+    >>> add_summaries({"peaks": 2, "rows": 3, "flags": {"review": 1}}, {"peaks": 1, "rows": 1, "flags": {"review": 1, "x": 1}})
+    {'peaks': 3, 'rows': 4, 'flags': {'review': 2, 'x': 1}}
+    """
+    if a is None:
+        return {k: (dict(v) if isinstance(v, dict) else v) for k, v in b.items()}
+    out = {k: (a.get(k, 0) + v if not isinstance(v, dict) else v) for k, v in b.items()}
+    flags = dict(a.get("flags", {}))
+    for k, v in b.get("flags", {}).items():
+        flags[k] = flags.get(k, 0) + v
+    out["flags"] = flags
+    return out
+
+
+def summary_of(run) -> dict[str, Any]:
+    """A run's summary: the one counted while it was streamed, else :func:`summarise_table` of its table."""
+    return run.summary if getattr(run, "summary", None) is not None else summarise_table(run.table)
+
+
 def summarise_table(table: pd.DataFrame) -> dict[str, Any]:
     """Counts for one run's shortlist table (see the module rules)."""
     if table is None or len(table) == 0:
-        return {"peaks": 0, "rows": 0, "with_candidates": 0, "review": 0,
+        return {"peaks": 0, "rows": 0, "with_candidates": 0, "confident": 0, "review": 0,
                 "no_candidate": 0, "not_in_library": 0, "flags": {}}
     peaks = table["peak"].astype(str).to_numpy() if "peak" in table else np.arange(len(table)).astype(str)
     codes, uniques = pd.factorize(peaks)
@@ -129,6 +154,7 @@ def summarise_table(table: pd.DataFrame) -> dict[str, Any]:
         "peaks": int(n_peaks),
         "rows": int(len(table)),
         "with_candidates": int(with_cand.sum()),
+        "confident": int((best >= CONFIDENT).sum()),
         "review": int(review.sum()),
         "no_candidate": int((~with_cand).sum()),
         "not_in_library": int(not_in_lib.sum()),

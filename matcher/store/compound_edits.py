@@ -116,7 +116,7 @@ def summarise_observations(ri: Sequence[float], n: Sequence[float | None] = (), 
 # --------------------------------------------------------------------------- store helpers (ORM, no SQL text)
 
 
-def _class_summary(compound, phase_class: str) -> Summary | None:
+def class_summary(compound, phase_class: str) -> Summary | None:
     obs = [o for o in compound.observations if o.active and o.phase_class == phase_class]
     return summarise_observations([o.ri for o in obs], [o.n for o in obs], [o.ri_sd for o in obs],
                                   phase_class=phase_class)
@@ -243,7 +243,7 @@ def add_checked_observation(db: str | None, v: dict, *, guard_limit: Callable[["
         notes: list[str] = []
         cls = v["phase_class"]
         created = c is None
-        before = None if created else _class_summary(c, cls)
+        before = None if created else class_summary(c, cls)
         forced = False
         if once and not force:  # one peak of one run, in one class, is recorded once (whatever name it gets)
             from sqlalchemy import select
@@ -299,7 +299,7 @@ def add_checked_observation(db: str | None, v: dict, *, guard_limit: Callable[["
             record(session, "confirm", target, None, {"observation": o.id, **provenance})
         session.flush()
         session.expire(c, ["observations"])
-        after = _class_summary(c, cls)
+        after = class_summary(c, cls)
         return AddResult(name=c.name, compound_id=c.id, observation_id=o.id, phase_class=cls, ri=v["ri"],
                          created=created, attached_by=how, before=before, after=after, forced=forced,
                          notes=notes, revision=session.info.get("revision"))
@@ -364,11 +364,11 @@ def retire_checked(db: str | None, observation_id: int, why: str, *, analyst: st
         if not o.active:
             raise RefusedChange(f"observation {observation_id} is already retired ({o.retired_reason}); nothing written")
         c = o.compound
-        before = _class_summary(c, o.phase_class)
+        before = class_summary(c, o.phase_class)
         writes.retire_observation(session, o.id, why)
         session.flush()
         session.expire(c, ["observations"])
-        after = _class_summary(c, o.phase_class)
+        after = class_summary(c, o.phase_class)
         return {"observation": o.id, "compound": c.name, "phase_class": o.phase_class, "ri": o.ri, "why": why,
                 "before": None if before is None else before.as_dict(),
                 "after": None if after is None else after.as_dict(), "revision": session.info.get("revision")}

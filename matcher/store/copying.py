@@ -99,7 +99,7 @@ def copy_library(src: str | None, dst: str, *, replace: bool = False) -> CopyRep
     from sqlalchemy import delete, func, select, update
 
     from matcher.store.database import init_library, open_library, transaction
-    from matcher.store.location import mask_url, resolve
+    from matcher.location import mask_url, resolve
 
     src_url, dst_url = resolve(src), resolve(dst)
     report = CopyReport(source=mask_url(src_url), destination=mask_url(dst_url), replaced=False)

@@ -1,7 +1,7 @@
 """Opening the house library: engines, schema creation and migration, transactions.
 
 * :func:`engine_for` builds (and caches) an engine for ``--db`` / ``$MATCHER_DB``
-  (see :mod:`matcher.store.location`). On SQLite every connection gets
+  (see :mod:`matcher.location`). On SQLite every connection gets
   ``PRAGMA journal_mode=WAL`` (readers never block the writer),
   ``busy_timeout`` (a writer waits for another instead of failing) and
   ``foreign_keys=ON``; write transactions start with ``BEGIN IMMEDIATE`` so
@@ -47,7 +47,7 @@ from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
 
 from matcher.errors import LibraryError
-from matcher.store.location import mask_secrets, resolve
+from matcher.location import mask_secrets, resolve
 from matcher.store.models import AuditEntry, Base, LibraryState, Phase, SchemaVersion
 
 T = TypeVar("T")
@@ -90,12 +90,12 @@ def probe_sqlite(path: str, *, source: str | None = None, check: str = "quick") 
     pooled ones could check the WAL out from under them)."""
     if check == "full" or not is_verified(path):
         for eng in list(_ENGINES.values()):
-            if _sqlite_file(eng) == path:
+            if sqlite_file(eng) == path:
                 eng.dispose()
     return _probe_file(path, source=source, check=check)
 
 
-def _sqlite_file(engine_or_url) -> str | None:
+def sqlite_file(engine_or_url) -> str | None:
     from sqlalchemy.engine import make_url
 
     url = engine_or_url.url if isinstance(engine_or_url, Engine) else make_url(engine_or_url)
@@ -131,7 +131,7 @@ def engine_for(db: str | None = None) -> Engine:
     if eng is not None:
         return eng
     if url.startswith("sqlite"):
-        path = _sqlite_file(url)
+        path = sqlite_file(url)
         folder = os.path.dirname(os.path.abspath(path)) if path else None
         readonly = bool(path and os.path.isfile(path)
                         and (not os.access(path, os.W_OK) or not os.access(folder or ".", os.W_OK)))
@@ -202,7 +202,7 @@ def sqlstate(exc: BaseException) -> str | None:
 
 
 def _wrap(engine: Engine, exc: Exception, *, writing: bool = False) -> LibraryError:
-    from matcher.store.location import mask_secrets
+    from matcher.location import mask_secrets
 
     msg = mask_secrets(" ".join(str(getattr(exc, "orig", exc)).split()))
     user = engine.url.username or "this role"
@@ -221,7 +221,7 @@ def _wrap(engine: Engine, exc: Exception, *, writing: bool = False) -> LibraryEr
 
 def init_library(db: str | None = None) -> Engine:
     """Create the library (schema, revision row, phase catalog) or migrate an older one; idempotent."""
-    path = _sqlite_file(resolve(db))
+    path = sqlite_file(resolve(db))
     if path:
         probe = probe_sqlite(path, source=mask_secrets(resolve(db)), check="quick")
         if probe.state == "missing":
@@ -296,7 +296,7 @@ def open_library(db: str | None = None, *, check: str = "quick") -> Engine:
     ``PRAGMA quick_check``, "none" skips it, "full" leaves the integrity findings to the caller).
     """
     url = resolve(db)
-    path = _sqlite_file(url)
+    path = sqlite_file(url)
     if path:
         probe = probe_sqlite(path, source=mask_secrets(url), check=check)
         if probe.state != "library":
@@ -329,7 +329,7 @@ def transaction(target: Engine | str | None = None, *, who: str | None = None, w
     engine = _as_engine(target)
     bind = _writer(engine) if write else engine
     session = Session(bind=bind, expire_on_commit=False)
-    session.info["who"] = who or _default_user()
+    session.info["who"] = who or default_user()
     try:
         with session.begin():
             if write and engine.dialect.name == "postgresql":
@@ -370,7 +370,7 @@ def run_write(target: Engine | str | None, fn: Callable[[Session], T], *, who: s
     raise AssertionError("unreachable")
 
 
-def _default_user() -> str:
+def default_user() -> str:
     import getpass
 
     try:
@@ -395,7 +395,7 @@ def record(session: Session, action: str, target: str, before: dict | None, afte
     session.add(
         AuditEntry(
             at=now(),
-            who=who or session.info.get("who") or _default_user(),
+            who=who or session.info.get("who") or default_user(),
             action=action,
             target=target,
             before=None if before is None else json.dumps(before, sort_keys=True, ensure_ascii=False),

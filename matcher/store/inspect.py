@@ -205,11 +205,11 @@ def check(db: str | None, *, strict: bool = False) -> list[str]:
     from matcher.store.database import latest_version, open_library, schema_version
 
     from matcher.limits import MAX_N, MAX_SD
-    from matcher.store.database import _sqlite_file, probe_sqlite
-    from matcher.store.location import mask_secrets, resolve
+    from matcher.store.database import sqlite_file, probe_sqlite
+    from matcher.location import mask_secrets, resolve
 
     problems: list[str] = []
-    path = _sqlite_file(resolve(db))
+    path = sqlite_file(resolve(db))
     if path:  # read-only and first: a damaged file is reported, never written to
         probe = probe_sqlite(path, source=mask_secrets(resolve(db)), check="full")
         if probe.integrity:

@@ -9,7 +9,7 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass, field
 from typing import Callable
 
-from matcher.store.compound_edits import Summary, _class_summary, summarise_observations
+from matcher.store.compound_edits import Summary, class_summary, summarise_observations
 
 
 @dataclass
@@ -107,7 +107,7 @@ def merge_rows(db: str | None, rows: list, shown: str, *, guard_limit: Callable[
             held_classes = set()
             if c is not None:
                 for cls in sorted({r.phase_class for r in fresh}):
-                    ours = _class_summary(c, cls)
+                    ours = class_summary(c, cls)
                     act = [r for r in grp if r.phase_class == cls and not r.retired]
                     theirs = summarise_observations([r.ri for r in act], [r.n for r in act], [r.ri_sd for r in act],
                                                     phase_class=cls) if act else None

@@ -17,7 +17,7 @@ from __future__ import annotations
 import os
 from urllib.parse import unquote
 
-from matcher.store.location import mask_url, resolve
+from matcher.location import mask_url, resolve
 
 SQL_REVISION = "SELECT revision FROM library_state WHERE id = 1"
 SQL_COMPOUNDS = "SELECT id, name, cas, formula, nominal_mass, series, key_ions FROM compounds ORDER BY id"

@@ -166,7 +166,7 @@ def add_observations(session: Session, items: list[tuple[Compound, dict, Phase |
     """
     from sqlalchemy import insert
 
-    from matcher.store.database import _default_user, bump_revision
+    from matcher.store.database import default_user, bump_revision
     from matcher.store.models import AuditEntry
 
     if not items:
@@ -186,7 +186,7 @@ def add_observations(session: Session, items: list[tuple[Compound, dict, Phase |
     session.flush()
     ids = list(session.scalars(insert(Observation).returning(Observation.id, sort_by_parameter_order=True), rows))
     rev = bump_revision(session)
-    who = session.info.get("who") or _default_user()
+    who = session.info.get("who") or default_user()
     audit = []
     for oid, row, (compound, _, _) in zip(ids, rows, items):
         after = {"id": oid, "compound_id": row["compound_id"], **{f: row[f] for f in OBSERVATION_FIELDS},

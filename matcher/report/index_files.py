@@ -31,7 +31,7 @@ def _parse_time_args(times: list[str], rt_unit: str | None) -> np.ndarray:
     """Times given on the command line: plain decimal numbers (a decimal comma is accepted),
     positive, finite and at most :data:`matcher.io.peak_tables.MAX_RT_MIN` minutes."""
     from matcher.io.peak_tables import MAX_RT_MIN
-    from matcher.io.delimited import _NUMBER, echo
+    from matcher.io.delimited import NUMBER_PATTERN, echo
 
     limit = MAX_RT_MIN * (60.0 if rt_unit == "s" else 1.0)
     out = np.empty(len(times))
@@ -39,7 +39,7 @@ def _parse_time_args(times: list[str], rt_unit: str | None) -> np.ndarray:
         s = str(t).strip().replace("\u2212", "-")
         if "." not in s:
             s = s.replace(",", ".")
-        if not s.isascii() or not _NUMBER.fullmatch(s):
+        if not s.isascii() or not NUMBER_PATTERN.fullmatch(s):
             raise InputError(f"not a retention time: {echo(str(t))}", column=f"argument {k + 1}") from None
         v = float(s)
         if not np.isfinite(v) or v <= 0 or v > limit:
