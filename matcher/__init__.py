@@ -43,6 +43,8 @@ _LAZY = {
     "query": "matcher.api",
     "evaluate": "matcher.api",
     "Evaluation": "matcher.api",
+    "open_review": "matcher.api",
+    "serve_review": "matcher.api",
     "MatcherError": "matcher.errors",
     "InputError": "matcher.errors",
     "LibraryError": "matcher.errors",

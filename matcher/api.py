@@ -173,6 +173,20 @@ class Library:
                                     force=force, new=new, as_existing=as_existing, measured=measured, ask=ask,
                                     cas=cas, formula=formula, phase=phase)
 
+    def confirm_review(self, record: str | os.PathLike, *, source: str | None = None, analyst: str | None = None,
+                       peak: Any = None, run: str | None = None, force: bool = False, new: bool = False,
+                       as_existing: str | None = None) -> list:
+        """Add the peaks a review marked as confirmed with an authentic standard (``matcher confirm --review``).
+
+        Every peak goes through the checks of :meth:`confirm`; returns one outcome per peak
+        (``added`` true, or false with the reason it was refused).
+        """
+        from matcher.review.confirming import confirm_reviewed
+
+        return confirm_reviewed(self.db, record, source=source, analyst=analyst,
+                                peak=None if peak is None else str(peak), run=run, force=force, new=new,
+                                as_existing=as_existing)
+
     def retire(self, observation: int, why: str, *, analyst: str | None = None) -> dict:
         """Stop using an observation (the row stays, with the reason)."""
         from matcher.curate.library_edits import retire
@@ -465,6 +479,33 @@ def evaluate(library: Any = None, *, phase_class: str | None = None, noise: floa
     return Evaluation(**report)
 
 
+def open_review(result: str | os.PathLike, *, reviewer: str | None = None):
+    """The review of a screening output (CSV or JSON), with its record ``RESULT.review.json``.
+
+    ``review.peaks()`` lists every peak with its candidates and current decision,
+    ``review.decide({"run", "peak", "decision", "name"?, "note"?})`` records one decision at once,
+    ``review.export("review.csv")`` writes the reviewed list. A record made for other content of
+    the result is refused. Accepting a candidate is a putative annotation, not a confirmation.
+    """
+    from matcher.review.session import open_review as _open
+
+    return _open(result, reviewer=reviewer)
+
+
+def serve_review(result: str | os.PathLike, *, library: Any = None, port: int | None = None,
+                 reviewer: str | None = None, open_browser: bool = False, announce: Callable | None = None) -> None:
+    """``matcher review``: serve the review page on 127.0.0.1 until interrupted.
+
+    ``announce(url)`` is called once with the page address (it holds the session token);
+    ``library`` (a path or URL) lets the page add peaks confirmed with a standard.
+    """
+    from matcher.review.server import serve
+
+    review = open_review(result, reviewer=reviewer)
+    db = None if library is None else (library.db if isinstance(library, Library) else os.fspath(library))
+    serve(review, port=port, db=db, open_browser=open_browser, announce=announce or print)
+
+
 def _tiny_snapshot():
     """A two-compound library for the examples above (invented indices)."""
     import numpy as np
@@ -477,4 +518,5 @@ def _tiny_snapshot():
         np.array([1, 1, 2]), np.array(["slightly-polar"] * 3), np.array([1029.0, 1031.0, 1000.0]))
 
 
-__all__ = ["Library", "open_library", "calibrate", "read_peaks", "detect_peaks", "screen", "query", "evaluate", "Evaluation"]
+__all__ = ["Library", "open_library", "calibrate", "read_peaks", "detect_peaks", "screen", "query", "evaluate",
+           "Evaluation", "open_review", "serve_review"]

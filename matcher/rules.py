@@ -321,6 +321,26 @@ def check_record(record: Any) -> dict[str, str]:
     return out
 
 
+#: What ``matcher review --export`` writes, by suffix.
+REVIEW_EXPORT_SUFFIXES = (".csv", ".html", ".htm")
+
+
+def check_port(port: Any, option: str = "--port") -> int | None:
+    """A TCP port 1-65535, or None (the system chooses one)."""
+    if port is None:
+        return None
+    if isinstance(port, bool) or not isinstance(port, int) or not 0 < port < 65536:
+        raise MatcherError(f"{option} must be between 1 and 65535, got {port}")
+    return port
+
+
+def check_review_export_path(path: Any, option: str = "--export") -> str:
+    """A review export file name ending in .csv or .html."""
+    if _suffix(path) not in REVIEW_EXPORT_SUFFIXES:
+        raise MatcherError(f"{option} {os.fspath(path)}: give a .csv or .html file")
+    return os.fspath(path)
+
+
 __all__ = [
     "PHASE_CLASSES", "CLASS_ALIASES", "MODES", "MODE_ALIASES", "RT_UNITS", "RT_UNIT_ALIASES",
     "RI_MAX", "MAX_RT_MIN", "MAX_MZ", "HIT_SCORE_RANGE", "WINDOW_PERCENT_MAX", "NOISE_MAX",
@@ -328,4 +348,5 @@ __all__ = [
     "RECORD_OPTIONS", "check_record", "choice", "check_class", "check_mode", "check_rt_unit", "check_ri", "check_top", "check_window",
     "check_ions", "check_hit_match", "check_noise", "check_shortlist_path", "check_report_path",
     "MIN_SNR_RANGE", "check_min_snr", "check_carbons",
+    "REVIEW_EXPORT_SUFFIXES", "check_port", "check_review_export_path",
 ]

@@ -25,6 +25,7 @@ LEVELS: list[set[str]] = [
     {"identify"},
     {"curate"},
     {"report"},
+    {"review"},
     {"api", "demo", "__init__"},
     {"cli", "__main__"},
 ]

@@ -18,8 +18,10 @@ EX_CONFIRM = (
     "Example: peak 11 of this morning's run was confirmed with an authentic standard of gamma-terpinene\n\n"
     "    matcher confirm shortlist.csv --peak 11 --name \"gamma-terpinene\" --source \"std lot G-221\" --analyst ana --db lab.sqlite\n\n"
     "    matcher confirm batch.json --peak 7 --run lot-0412 --name sabinene --cas 3387-41-5 --formula C10H16 --db lab.sqlite\n\n"
+    "    matcher confirm --review shortlist.csv.review.json --source \"std lot T-3\" --db lab.sqlite\n\n"
     "The index, class, calibration and date come from the screening output (a CSV with its .meta.json, or the JSON); "
-    "the observation's source names the file, run and peak."
+    "the observation's source names the file, run and peak. With --review, every peak that the review page accepted "
+    "and marked as confirmed with an authentic standard (and not yet added) goes in, through the same checks."
 )
 EX_ADD = (
     "Example: an index measured for a new standard, then a second one written differently\n\n"
@@ -92,9 +94,10 @@ def register(app: typer.Typer) -> None:
     @app.command("confirm", help="Add a peak confirmed with an authentic standard to the library, from a screening output.",
                  epilog=EX_CONFIRM)
     def confirm_cmd(
-        results: Annotated[str, typer.Argument(metavar="RESULTS", help="Screening output: OUT.csv (with OUT.csv.meta.json) or OUT.json.")],
-        peak: Annotated[str, typer.Option("--peak", metavar="PEAK", help="The peak id, as in the 'peak' column.")],
-        name: Annotated[str, typer.Option("--name", metavar="NAME", help="The compound the standard confirmed.")],
+        results: Annotated[Optional[str], typer.Argument(metavar="RESULTS", help="Screening output: OUT.csv (with OUT.csv.meta.json) or OUT.json.")] = None,
+        peak: Annotated[Optional[str], typer.Option("--peak", metavar="PEAK", help="The peak id, as in the 'peak' column.")] = None,
+        name: Annotated[Optional[str], typer.Option("--name", metavar="NAME", help="The compound the standard confirmed.")] = None,
+        review: Annotated[Optional[str], typer.Option("--review", metavar="RESULT.review.json", help="A review record: add every peak it accepted and marked as confirmed with a standard (--peak picks one).")] = None,
         run: Annotated[Optional[str], typer.Option("--run", metavar="RUN", help="The run label, when the output holds several runs.")] = None,
         source: Source = None,
         analyst: Analyst = None,
@@ -109,7 +112,27 @@ def register(app: typer.Typer) -> None:
         as_json: JsonFlag = False,
     ) -> None:
         from matcher.api import open_library
+        from matcher.errors import MatcherError
 
+        if review is not None:
+            if results is not None or name is not None or measured:
+                raise MatcherError("--review takes the peaks, names and result from the review record; "
+                                   "leave out RESULTS, --name and --measured")
+            outcomes = open_library(db).confirm_review(review, source=source, analyst=analyst, peak=peak, run=run,
+                                                       force=force, new=new, as_existing=as_existing)
+            if as_json:
+                say(json.dumps([o.as_dict() for o in outcomes], indent=2, ensure_ascii=False))
+            else:
+                for o in outcomes:
+                    say(f"peak {o.peak} (run {o.run}), {o.name}: " + (o.message if o.added else f"refused: {o.message}"))
+            refused = sum(1 for o in outcomes if not o.added)
+            if refused:
+                note(f"{refused} of {len(outcomes)} refused; nothing written for them")
+                raise typer.Exit(1)
+            return
+        missing = [what for what, v in (("RESULTS", results), ("--peak", peak), ("--name", name)) if v is None]
+        if missing:
+            raise MatcherError(f"confirm needs {', '.join(missing)} (or --review RESULT.review.json)")
         result = open_library(db).confirm(results, peak, name, run=run, source=source, analyst=analyst, force=force,
                                       new=new, as_existing=as_existing, measured=measured, ask=_asker(),
                                       cas=cas, formula=formula, phase=phase)

@@ -91,6 +91,7 @@ def _register_all() -> None:
         "curate_cmds",
         "evaluate_cmds",
         "demo_cmds",
+        "review_cmds",
     ):
         try:
             mod = importlib.import_module(f"{__package__}.{name}")

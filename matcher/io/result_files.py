@@ -250,3 +250,198 @@ def _read_peak(results_path: str | os.PathLike, peak: Any, *, run: str | None = 
     facts.pop("class", None)
     return PeakFacts(results=str(path), run=label, peak=str(peak).strip(), ri=ri, ri_measured=ri_measured,
                      phase_class=check_class(cls), flags=flags, best=best, sidecar=sidecar, **facts)
+
+
+# --------------------------------------------------------------------------- a whole result, for review
+
+
+@dataclass
+class ResultView:
+    """A whole screening output read back: every run with its peaks and their candidates.
+
+    ``runs`` is a list of dicts ``{"label", "source", "class", "checksum", "standards", "peaks"}``;
+    each peak holds the peak keys of :data:`matcher.results.PEAK_KEYS`, ``flags`` (common to
+    the peak's rows) and ``candidates`` (records of :func:`matcher.results.candidate_record`,
+    with ``flags``, ``evidence`` and any further columns the output carries). ``sha256`` is the
+    checksum of the result file's bytes (what a review record is tied to).
+    """
+
+    path: str
+    sha256: str
+    caution: str
+    created: str
+    library: dict
+    runs: list
+    sidecar: bool = True
+
+    def peak_count(self) -> int:
+        return sum(len(r["peaks"]) for r in self.runs)
+
+
+def _group_rows(rows: list[dict], columns: list[str]) -> list[dict]:
+    """Output rows grouped per peak (in file order): the peak's fields once, the ranked candidates nested."""
+    import matcher.results as results
+    from matcher.results import (DETAIL_COLUMNS, EVIDENCE_COLUMNS, PEAK_KEYS, SHORTLIST_COLUMNS,
+                                 candidate_record, plain)
+
+    prefix = getattr(results, "EVIDENCE_PREFIX", "ev_")
+    ev_cols = [c for c in EVIDENCE_COLUMNS if c in columns] + [
+        c for c in columns if c.startswith(prefix) and c not in EVIDENCE_COLUMNS]
+    known = set(SHORTLIST_COLUMNS) | set(DETAIL_COLUMNS) | set(ev_cols)
+    extra = [c for c in columns if c not in known]
+    order: list[str] = []
+    groups: dict[str, list[dict]] = {}
+    for row in rows:
+        key = str(plain(row.get("peak")))
+        if key not in groups:
+            groups[key] = []
+            order.append(key)
+        groups[key].append(row)
+    peaks = []
+    for key in order:
+        rows_p = groups[key]
+        first = rows_p[0]
+        peak = {k: plain(first.get(k)) for k in PEAK_KEYS}
+        peak["peak"] = key
+        flag_lists = [[f for f in str(r.get("flags") or "").split(";") if f] for r in rows_p]
+        candidates = []
+        for r, flags in zip(rows_p, flag_lists):
+            if plain(r.get("rank")) is None:
+                continue
+            rec = candidate_record(r.get, flags, evidence_columns=ev_cols, extra=extra)
+            candidates.append(rec)
+        candidates.sort(key=lambda c: c["rank"])
+        common = set(flag_lists[0]).intersection(*flag_lists[1:]) if flag_lists else set()
+        peak["flags"] = flag_lists[0] if not candidates else [f for f in flag_lists[0] if f in common]
+        peak["candidates"] = candidates
+        peaks.append(peak)
+    return peaks
+
+
+def _json_peak(p: dict) -> dict:
+    """One peak of the screen JSON as the review reads it: the peak's keys, its flags, its candidates by rank."""
+    from matcher.results import PEAK_KEYS, plain
+
+    if not isinstance(p, dict):
+        raise TypeError("a peak is not an object")
+    peak = {k: plain(p.get(k)) for k in PEAK_KEYS}
+    for k, v in p.items():  # any further peak fields the output carries (a spectrum, an area)
+        if k not in peak and k not in ("flags", "candidates"):
+            peak[k] = v
+    peak["peak"] = str(plain(p.get("peak")))
+    peak["flags"] = [str(f) for f in p.get("flags") or []]
+    cands = [dict(c) for c in p.get("candidates") or []]
+    for c in cands:
+        c["flags"] = [str(f) for f in c.get("flags") or []]
+        if not isinstance(c.get("evidence") or {}, dict):
+            raise TypeError("evidence is not an object")
+        c["evidence"] = dict(c.get("evidence") or {})
+    cands.sort(key=lambda c: (c.get("rank") is None, c.get("rank") or 0))
+    peak["candidates"] = cands
+    return peak
+
+
+def _standards(run_doc: dict | None) -> list[dict]:
+    cal = (run_doc or {}).get("calibration") or {}
+    out = []
+    for s in cal.get("standards") or []:
+        if isinstance(s, dict) and _num(s.get("index")) is not None:
+            out.append({"name": str(s.get("name") or ""), "index": _num(s.get("index"))})
+    return out
+
+
+def _run_entry(label: str, run_doc: dict | None, peaks: list[dict]) -> dict:
+    return {"label": label, "source": str((run_doc or {}).get("source") or ""),
+            "class": str((run_doc or {}).get("class") or (peaks[0].get("class") if peaks else "") or ""),
+            "checksum": _checksum(run_doc) if run_doc else "", "standards": _standards(run_doc),
+            "peaks": peaks}
+
+
+def read_result(results_path: str | os.PathLike) -> ResultView:
+    """Every run, peak and candidate of a screening CSV (+ sidecar) or JSON output.
+
+    The file is read once through :func:`matcher.io.bounded.read_bytes`; its SHA-256 is
+    returned with it. A file that is not a screening output, or was edited into another
+    shape, is refused with one :class:`InputError` naming it.
+    """
+    try:
+        return _read_result(results_path)
+    except MatcherError:
+        raise
+    except (AttributeError, TypeError, KeyError, IndexError, ValueError, OverflowError, csv.Error) as exc:
+        raise InputError(f"not a matcher screening output as written by matcher screen ({type(exc).__name__}); "
+                         f"was it edited by hand?", file=str(results_path)) from None
+
+
+def _read_result(results_path: str | os.PathLike) -> ResultView:
+    import hashlib
+    import io
+
+    from matcher.io.bounded import read_bytes
+    from matcher.limits import MAX_CELL
+
+    from matcher.io.bounded import loads_json
+    from matcher.limits import MAX_JSON_BYTES
+
+    path = Path(results_path)
+    is_json = path.suffix.lower() == ".json"
+    data = read_bytes(path, what="screening output", **({"limit": MAX_JSON_BYTES} if is_json else {}))
+    digest = hashlib.sha256(data).hexdigest()  # of the very bytes read below
+    if is_json:
+        doc = loads_json(data, path=str(path), what="JSON output")
+        if not isinstance(doc, dict) or doc.get("format") != "matcher.screen-output":
+            raise InputError("not a matcher screening output (JSON output)", file=str(path))
+        if doc.get("content") != "shortlist":
+            raise InputError("this is the provenance sidecar of a CSV; give the CSV itself", file=str(path))
+        runs = [_run_entry(str(rd.get("label")), rd, [_json_peak(p) for p in rd.get("peaks") or []])
+                for rd in doc.get("runs") or []]
+        sidecar = True
+    else:
+        side = sidecar_path(path)
+        doc = _load_json(side, "provenance sidecar") if side.is_file() else {}
+        try:
+            text = data.decode("utf-8-sig")
+        except UnicodeDecodeError:
+            raise InputError("not a screening CSV (not UTF-8 text)", file=str(path)) from None
+        reader = csv.DictReader(io.StringIO(text, newline=""))
+        columns = list(reader.fieldnames or [])
+        need = {"peak", "ri", "class", "rank", "name"} - set(columns)
+        if need:
+            raise InputError(f"not a screening CSV: missing column(s) {', '.join(sorted(need))}", file=str(path), line=1)
+        per_run: dict[str, list[dict]] = {}
+        for k, row in enumerate(reader, start=1):
+            if None in row or any(v is None for v in row.values()):
+                raise InputError("a row has more or fewer fields than the header", file=str(path), row=k, line=k + 1)
+            for c, v in row.items():
+                if len(v) > MAX_CELL:
+                    raise InputError(f"a cell has {len(v)} characters (at most {MAX_CELL})", file=str(path),
+                                     row=k, line=k + 1, column=c)
+            label = str(row.get("run") or "").strip() or "run"
+            per_run.setdefault(label, []).append({c: _cell(c, v) for c, v in row.items()})
+        runs = []
+        for label, rows in per_run.items():
+            rd = next((r for r in doc.get("runs") or [] if str(r.get("label")) == label), None)
+            runs.append(_run_entry(label, rd, _group_rows(rows, columns)))
+        sidecar = bool(doc)
+    return ResultView(path=str(path), sha256=digest, caution=str(doc.get("caution") or ""),
+                      created=str(doc.get("created") or ""), library=dict(doc.get("library") or {}), runs=runs,
+                      sidecar=sidecar)
+
+
+_TEXT_COLUMNS = {"peak", "class", "name", "cas", "flags", "run", "formula", "hit"}
+
+
+def _cell(column: str, value: str) -> Any:
+    """A CSV cell as the value the JSON output would hold: numbers as numbers, empty as None."""
+    if column in _TEXT_COLUMNS:
+        return value
+    v = value.strip()
+    if v == "":
+        return None
+    if v in ("true", "false"):
+        return v == "true"
+    try:
+        n = float(v)
+    except ValueError:
+        return value
+    return n if math.isfinite(n) else None
