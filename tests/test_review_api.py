@@ -73,17 +73,17 @@ def test_every_peak_is_listed_with_its_candidates_and_no_decision(result):
     assert r.status_code == 200
     doc = r.json()
     peaks = doc["peaks"]
-    # every peak id of the CSV, in file order (the demo run has 41 peaks)
+    # every peak id of the CSV, in file order (the demo run has 34 peaks)
     assert [p["peak"] for p in peaks] == demo_peak_ids(result)
-    assert len(peaks) == 41 == doc["summary"]["peaks"]
+    assert len(peaks) == 34 == doc["summary"]["peaks"]
     assert all(p["decision"] is None for p in peaks)
     first = peaks[0]
     with open(result, newline="", encoding="utf-8") as fh:
         rows = [r for r in csv.DictReader(fh) if r["peak"] == first["peak"]]
     assert [c["name"] for c in first["candidates"]] == [r["name"] for r in rows if r["rank"]]
     assert first["candidates"][0]["probability"] == pytest.approx(float(rows[0]["probability"]))
-    # the ladder position: peak 1's index 802.97 lies between n-C8 (800) and n-C9 (900) of the demo ladder
-    assert first["ladder"]["below"]["index"] == 800 and first["ladder"]["above"]["index"] == 900
+    # the ladder position: peak 1's index 923.93 lies between n-C9 (900) and n-C10 (1000) of the demo ladder
+    assert first["ladder"]["below"]["index"] == 900 and first["ladder"]["above"]["index"] == 1000
     assert "Results are tentative" in doc["summary"]["caution"]
 
 
@@ -226,7 +226,7 @@ def test_a_changed_result_is_refused_not_mixed(result):
     client, _ = client_for(result)
     client.post("/api/decisions", json={"run": "run", "peak": "7", "decision": "reject"}, headers=H)
     before = record_path(result).read_bytes()
-    result.write_text(result.read_text(encoding="utf-8").replace("802.97", "802.98"), encoding="utf-8")
+    result.write_text(result.read_text(encoding="utf-8").replace("923.93", "923.94"), encoding="utf-8")
     # the running session refuses the next decision ...
     r = client.post("/api/decisions", json={"run": "run", "peak": "8", "decision": "reject"}, headers=H)
     assert r.status_code == 409 and "changed since" in r.json()["error"]
@@ -282,11 +282,11 @@ def test_adding_from_the_page_goes_through_confirm_and_is_listed(demo, result, t
     # not accepted yet: refused
     assert client.post("/api/library", json={"run": "run", "peak": "7"}, headers=H).status_code == 409
     client.post("/api/decisions", json={"run": "run", "peak": "7", "decision": "accept",
-                                        "name": "6-methyl-5-hepten-2-one"}, headers=H)
+                                        "name": "δ-3-carene"}, headers=H)
     r = client.post("/api/library", json={"run": "run", "peak": "7"}, headers=H)
     assert r.status_code == 409 and "confirmed with an authentic standard" in r.json()["error"]  # accepting is not confirming
     client.post("/api/decisions", json={"run": "run", "peak": "7", "decision": "accept",
-                                        "name": "6-methyl-5-hepten-2-one", "standard": True}, headers=H)
+                                        "name": "δ-3-carene", "standard": True}, headers=H)
     r = client.post("/api/library", json={"run": "run", "peak": "7", "source": "std lot M-7"}, headers=H)
     assert r.status_code == 200, r.text
     assert r.json()["added"] is True
@@ -296,7 +296,7 @@ def test_adding_from_the_page_goes_through_confirm_and_is_listed(demo, result, t
     assert peaks["7"]["added"]["observation"] == r.json()["observation"]
     import matcher
 
-    hist = matcher.open_library(str(db)).history("6-methyl-5-hepten-2-one")
+    hist = matcher.open_library(str(db)).history("δ-3-carene")
     assert any("std lot M-7" in json.dumps(h) for h in hist)
 
 

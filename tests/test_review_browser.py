@@ -85,13 +85,13 @@ def test_the_page_lists_every_peak_carries_the_caution_and_a_keyboard_decision_s
     server = Server(result, "ana", tmp_path)
     try:
         page, requests = _open(browser, server)
-        # every peak of the run, by id (the demo run has 41 peaks)
+        # every peak of the run, by id (the demo run has 34 peaks)
         listed = page.eval_on_selector_all("#peaks li", "els => els.map(e => e.dataset.peak)")
         import csv
 
         with open(result, newline="", encoding="utf-8") as fh:
             ids = list(dict.fromkeys(r["peak"] for r in csv.DictReader(fh)))
-        assert sorted(listed) == sorted(ids) and len(listed) == 41
+        assert sorted(listed) == sorted(ids) and len(listed) == 34
         # the caution and what accepting means are on the page
         text = " ".join(page.inner_text("body").split())
         assert "Results are tentative (putative) identifications, not confirmed identities." in text
@@ -150,7 +150,7 @@ def test_filters_and_a_note_reach_the_record(browser, demo, tmp_path):
         page, _ = _open(browser, server)
         page.check("#f-review")
         marked = page.eval_on_selector_all("#peaks li", "els => els.map(e => e.dataset.peak)")
-        assert 0 < len(marked) < 41
+        assert 0 < len(marked) < 34
         page.keyboard.press("n")
         page.keyboard.type("two co-eluting peaks; re-run on the polar column")
         page.keyboard.press("Escape")

@@ -23,6 +23,7 @@ Examples
   The reviewed list for the QC record, and a report with the review section:
 
     matcher review shortlist.csv --export review.csv
+
     matcher review shortlist.csv --export review.html
 
 Decisions are kept in shortlist.csv.review.json beside the result, written at once; starting
@@ -43,8 +44,8 @@ def register(app: typer.Typer) -> None:
     def review_cmd(
         result: Annotated[str, typer.Argument(metavar="RESULT", help="Screening output of matcher screen: OUT.csv (with its .meta.json) or OUT.json.")],
         db: DbOption = None,
-        port: Annotated[Optional[int], typer.Option("--port", help="Port on 127.0.0.1 (default: a free one).")] = None,
-        reviewer: Annotated[Optional[str], typer.Option("--reviewer", help="Your name, kept with each decision (default: your login).")] = None,
+        port: Annotated[Optional[int], typer.Option("--port", metavar="PORT", help="Port on 127.0.0.1 (default: a free one).")] = None,
+        reviewer: Annotated[Optional[str], typer.Option("--reviewer", metavar="NAME", help="Your name, kept with each decision (default: your login).")] = None,
         open_browser: Annotated[bool, typer.Option("--open", help="Open the page in the default browser.")] = False,
         export: Annotated[Optional[str], typer.Option("--export", metavar="FILE", help="Write the reviewed list (.csv, or .html with the review section) and exit; no server.")] = None,
     ) -> None:

@@ -284,7 +284,7 @@ def _group_rows(rows: list[dict], columns: list[str]) -> list[dict]:
     from matcher.results import (DETAIL_COLUMNS, EVIDENCE_COLUMNS, PEAK_KEYS, SHORTLIST_COLUMNS,
                                  candidate_record, plain)
 
-    prefix = getattr(results, "EVIDENCE_PREFIX", "ev_")
+    prefix = results.EVIDENCE_PREFIX
     ev_cols = [c for c in EVIDENCE_COLUMNS if c in columns] + [
         c for c in columns if c.startswith(prefix) and c not in EVIDENCE_COLUMNS]
     known = set(SHORTLIST_COLUMNS) | set(DETAIL_COLUMNS) | set(ev_cols)
