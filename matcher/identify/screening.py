@@ -32,7 +32,7 @@ from matcher.identify.shortlist import PeakInput, PreparedClass, Shortlist, neig
 from matcher.store.snapshot import LibrarySnapshot
 
 CHUNK = 50_000  # peaks scored at once at most
-MAX_PAIRS = 400_000  # peak-candidate pairs scored at once, on average (bounds a chunk's memory, ~0.3 GB)
+MAX_PAIRS = 150_000  # peak-candidate pairs per core, on average: bounds a chunk's memory (and is faster than larger chunks)
 MAX_FIT_PEAKS = 20_000  # peaks used to fit the run model (a seeded sample beyond this)
 
 
