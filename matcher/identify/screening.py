@@ -159,39 +159,44 @@ def fit_run_model(home: PreparedClass, peaks: PeakInput, model: Model, w: np.nda
     return model, info, lam
 
 
-def pair_budget_size(x: np.ndarray, w: np.ndarray, entries_ri: np.ndarray, size: int = CHUNK,
-                     pairs: int = None) -> int:
-    """Peaks per chunk so that a chunk holds at most ``pairs`` peak-candidate pairs on average.
+def candidate_counts(x: np.ndarray, w: np.ndarray, entries_ri: np.ndarray) -> np.ndarray:
+    """Library entries inside each peak's window (the peak's share of the pairs to score); 0 without an index.
 
-    >>> pair_budget_size(np.arange(1000.0), np.full(1000, 5.0), np.arange(0.0, 1000.0, 0.5), size=800, pairs=2000)  # 21 entries in each window
-    95
+    >>> candidate_counts(np.array([5.0, np.nan]), np.array([1.0, 1.0]), np.arange(0.0, 10.0, 0.5)).tolist()
+    [5, 0]
     """
-    pairs = MAX_PAIRS if pairs is None else pairs
-    ok = np.isfinite(x)
-    if not ok.any() or not len(entries_ri):
-        return size
-    count = np.searchsorted(entries_ri, x[ok] + w[ok], "right") - np.searchsorted(entries_ri, x[ok] - w[ok], "left")
-    per_peak = max(float(count.mean()), 1.0)
-    return int(max(1000 if len(x) > 1000 else 1, min(size, pairs // per_peak)))
+    ok = np.isfinite(x) & np.isfinite(w)
+    out = np.zeros(len(x), dtype=np.int64)
+    if ok.any() and len(entries_ri):
+        out[ok] = np.searchsorted(entries_ri, x[ok] + w[ok], "right") - np.searchsorted(entries_ri, x[ok] - w[ok], "left")
+    return out
 
 
-def index_chunks(x: np.ndarray, w: np.ndarray, size: int = CHUNK):
+def index_chunks(x: np.ndarray, w: np.ndarray, size: int = CHUNK, pairs: np.ndarray | None = None,
+                 budget: int | None = None):
     """Windows of the index scale: (core positions, context positions) per chunk.
 
-    A run of at most ``size`` peaks is one chunk, in file order. A longer run is
-    cut, in index order, into cores of ``size`` peaks; each core is scored with a
-    *halo* of the peaks within two half-widths of its ends as context, so a
-    compound's competition between peaks (one compound, one peak) and the
-    run-level flags see every peak that can share a candidate with a core peak
-    (two peaks share a candidate only when they lie within w₁ + w₂ of each other).
-    Only the core's rows are kept. Peaks without an index come last.
+    A run of at most ``size`` peaks (and, given ``pairs`` per peak, at most
+    ``budget`` pairs in all) is one chunk, in file order. A longer run is cut,
+    in index order, into cores of at most ``size`` peaks and ``budget`` pairs
+    (at least one peak each), so dense parts of the scale get short cores and a
+    chunk's memory stays bounded; each core is scored with a *halo* of the peaks
+    within two half-widths of its ends as context, so a compound's competition
+    between peaks (one compound, one peak) and the run-level flags see every peak
+    that can share a candidate with a core peak (two peaks share a candidate only
+    when they lie within w₁ + w₂ of each other). Only the core's rows are kept.
+    Peaks without an index come last.
 
     >>> x = np.array([5.0, 1.0, 3.0, 2.0, 4.0]); w = np.full(5, 0.6)
     >>> [(c.tolist(), k.tolist()) for c, k in index_chunks(x, w, size=2)]
     [([1, 3], [1, 3, 2]), ([2, 4], [3, 2, 4, 0]), ([0], [4, 0])]
+    >>> [c.tolist() for c, _ in index_chunks(x, w, pairs=np.array([1, 1, 5, 1, 1]), budget=4)]
+    [[1, 3], [2], [4, 0]]
     """
     n = len(x)
-    if n <= size:
+    budget = MAX_PAIRS if budget is None else budget
+    total = int(np.sum(pairs)) if pairs is not None else 0
+    if n <= size and total <= budget:
         everything = np.arange(n)
         yield everything, everything
         return
@@ -200,8 +205,17 @@ def index_chunks(x: np.ndarray, w: np.ndarray, size: int = CHUNK):
     xs = key[order]
     finite_w = w[np.isfinite(w)]
     halo = 2.0 * float(finite_w.max()) if len(finite_w) else 0.0
-    for start in range(0, n, size):
-        stop = min(n, start + size)
+    if pairs is None:
+        cuts = list(range(0, n, size)) + [n]
+    else:  # cut where the cumulative pair count passes each multiple of the budget, and every `size` peaks
+        cum = np.cumsum(np.asarray(pairs, dtype=np.int64)[order])
+        cuts, start = [0], 0
+        while start < n:
+            stop = int(np.searchsorted(cum, (cum[start - 1] if start else 0) + budget, "right"))
+            stop = min(max(stop, start + 1), start + size, n)
+            cuts.append(stop)
+            start = stop
+    for start, stop in zip(cuts[:-1], cuts[1:]):
         lo, hi = xs[start], xs[stop - 1]
         a = int(np.searchsorted(xs, lo - halo, "left")) if np.isfinite(lo) else start
         b = int(np.searchsorted(xs, hi + halo, "right")) if np.isfinite(hi) else stop
@@ -239,7 +253,7 @@ def iter_shortlist(home, peaks: PeakInput, model: Model, *, window, window_perce
     """
     x = np.asarray(peaks.ri, dtype=float)
     w = half_widths(x, home.phase_class, window, window_percent)
-    for core, context in index_chunks(x, w, pair_budget_size(x, w, home.entries.ri, CHUNK)):
+    for core, context in index_chunks(x, w, CHUNK, candidate_counts(x, w, home.entries.ri), MAX_PAIRS):
         sub = peaks if len(context) == len(x) else _subset(peaks, context)
         sl = shortlist(home, sub, model, window=window, window_percent=window_percent, top=top, neighbour=neighbour)
         if run_level_flags:
