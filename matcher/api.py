@@ -133,6 +133,24 @@ class Library:
 
         return check(self.db, strict=strict)
 
+    def import_spectra(self, path: str | os.PathLike, *, source: str | None = None, new: bool = False,
+                       analyst: str | None = None):
+        """Import reference mass spectra from a JCAMP-DX file (``matcher library import-spectra``); all or nothing.
+
+        Compounds are found by ``##TITLE``/``##NAMES``, then CAS; ``source`` records where the spectra come from
+        (own standards, a licensed collection); ``new=True`` creates compounds whose names are close to existing
+        ones instead of refusing. Returns a :class:`~matcher.store.spectra.SpectraImport`.
+        """
+        from matcher.store.spectra import import_spectra
+
+        return import_spectra(self.db, os.fspath(path), source=source, new=new, who=analyst)
+
+    def export_spectra(self, path: str | os.PathLike | None = None, *, name: str | None = None) -> str:
+        """The reference spectra (all, or one compound's) as JCAMP-DX text, also written to ``path`` when given."""
+        from matcher.store.spectra import export_spectra
+
+        return export_spectra(self.db, None if path is None else os.fspath(path), name=name)
+
     def export(self, path: str | os.PathLike | None = None) -> str:
         """The library as library-CSV text, also written to ``path`` (``.csv`` or ``.xlsx``) when given."""
         from matcher.store.library_io import export_library
@@ -277,7 +295,8 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
            window_percent: float | None = None, top: int | None = None, fallback: bool = False,
            homologues: bool = False, adaptive: bool = False, anchors: str | os.PathLike | None = None,
            measurement_sd: float | None = None, crowding: str | float | None = None, split_peaks: bool = False,
-           labels: Sequence[str] | None = None, progress: Callable[[int], None] | None = None) -> "ScreenResult":
+           labels: Sequence[str] | None = None, spectra: Any = None,
+           progress: Callable[[int], None] | None = None) -> "ScreenResult":
     """Shortlist every peak of one run, or of a batch, against one class of the library.
 
     ``peaks``: a peak table (path, DataFrame or :class:`~matcher.io.peak_tables.PeakTable`)
@@ -291,7 +310,10 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
     screen`` writes. ``crowding`` is the prior on compounds not in the library
     (``sparse``, ``moderate``, ``crowded``, ``dense`` or unlisted peaks per 100
     index units; the run refines it); ``split_peaks=True`` lets one compound
-    explain several peaks.
+    explain several peaks. ``spectra``: one JCAMP-DX file per run whose
+    blocks are titled by peak id (a table's ``spectrum`` column is read
+    without it); compared with the library's reference spectra, they add
+    ``spectrum_similarity`` and the ``ev_spectrum`` evidence.
     """
     from matcher.identify.screening import screen as _screen
 
@@ -300,18 +322,20 @@ def screen(peaks: Any, *, phase_class: str, calibration: Any = None, ladder: Any
                    window_percent=window_percent, top=top, fallback=fallback, homologues=homologues,
                    adaptive=adaptive, anchors=None if anchors is None else os.fspath(anchors),
                    measurement_sd=measurement_sd, crowding=crowding, split_peaks=split_peaks, labels=labels,
-                   progress=progress)
+                   spectra=spectra, progress=progress)
 
 
 def query(ri: float, phase_class: str, *, library: Any = None, window: float | None = None,
           window_percent: float | None = None, mol_ion: float | None = None, ions: Any = None,
           hit: str | None = None, hit_score: float | None = None, top: int | None = None,
           fallback: bool = False, homologues: bool = False, measurement_sd: float | None = None,
-          crowding: str | float | None = None) -> "QueryResult":
+          crowding: str | float | None = None, spectrum: Any = None) -> "QueryResult":
     """Ranked candidates for one retention index; returns a :class:`~matcher.identify.query.QueryResult`.
 
     ``ions`` are key ions (whole m/z: a list or text such as ``"93 136"``);
     ``hit`` and ``hit_score`` (0-100) are your spectral search's proposal.
+    ``spectrum`` is the peak's mass spectrum: a JCAMP-DX file with one block,
+    or ``(mz, intensity)`` arrays.
     ``result.candidates`` lists records in rank order, ``result.table`` the
     same as a DataFrame, ``result.to_dict()`` is the ``matcher query --json``
     document.
@@ -320,7 +344,7 @@ def query(ri: float, phase_class: str, *, library: Any = None, window: float | N
 
     return _query(ri, phase_class, **_source(library), window=window, window_percent=window_percent,
                   mol_ion=mol_ion, ions=ions, hit=hit, hit_score=hit_score, top=top, fallback=fallback,
-                  homologues=homologues, measurement_sd=measurement_sd, crowding=crowding)
+                  homologues=homologues, measurement_sd=measurement_sd, crowding=crowding, spectrum=spectrum)
 
 
 @dataclass

@@ -110,6 +110,16 @@ class SpectrumSet:
         idx = np.repeat(self.start[rows] - start[:-1], cnt) + np.arange(start[-1])
         return SpectrumSet(start, self.mz[idx], self.w[idx])
 
+    def relative(self, row: int) -> tuple[np.ndarray, np.ndarray]:
+        """Row ``row`` back in the shared form: nominal m/z and intensities relative to its base peak (100).
+
+        The weights are undone (W / (m/z)^3, to the power 1 / 0.6); float32 rounding leaves about 6 digits.
+        """
+        a, b = int(self.start[row]), int(self.start[row + 1])
+        mz = self.mz[a:b].astype(np.float64)
+        y = (self.w[a:b].astype(np.float64) / (mz / 100.0) ** MZ_POWER) ** (1.0 / INTENSITY_POWER)
+        return mz, (100.0 * y / y.max() if len(y) else y)
+
     @classmethod
     def empty(cls, n: int = 0) -> "SpectrumSet":
         return cls(np.zeros(n + 1, dtype=np.int64), np.zeros(0, dtype=np.int32), np.zeros(0, dtype=np.float32))
@@ -238,7 +248,8 @@ def _block(unknown: SpectrumSet, get, u: np.ndarray, r: np.ndarray) -> np.ndarra
     n_u = cnt.astype(np.float64)
     fr = np.divide(fr_sum, n_ul - 1.0, out=np.zeros(m), where=n_ul >= 2)
     composite = (n_u * fd + n_ul * fr) / (n_u + n_ul)
-    return np.clip(np.where(n_ul >= 2, composite, fd), 0.0, 1.0)
+    # float32 weights: round to 6 decimals so that a spectrum compared with itself reports exactly 1
+    return np.round(np.clip(np.where(n_ul >= 2, composite, fd), 0.0, 1.0), 6)
 
 
 def similarity(a, b) -> float:

@@ -16,6 +16,10 @@ Example: a peak at index 1031 on a 5 % phenyl column with molecular ion 136
     matcher query 1031 --class slightly-polar --mol-ion 136
 
     matcher query 1031 --class slightly-polar --ions "68 93 136" --hit limonene --hit-score 88 --json
+
+  With the peak's mass spectrum (a JCAMP-DX file of one block), compared with the library's spectra:
+
+    matcher query 1031 --class slightly-polar --spectrum peak-17.jdx
 """
 
 
@@ -40,6 +44,7 @@ def register(app: typer.Typer) -> None:
         homologues: Annotated[bool, typer.Option("--homologues", help="Propose missing members of homologous series (flagged predicted).")] = False,
         sd: Annotated[Optional[float], typer.Option("--sd", metavar="UNITS", help="Index scatter of your measurement (default: 0.3 x the class window).")] = None,
         crowding: Annotated[Optional[str], typer.Option("--crowding", metavar="TYPE|N", help="How crowded the sample is with compounds not in the library: sparse, moderate (default), crowded, dense, or unlisted peaks per 100 index units.")] = None,
+        spectrum: Annotated[Optional[str], typer.Option("--spectrum", metavar="ONE.jdx", help="The peak's mass spectrum: a JCAMP-DX file with one block; compared with the library's reference spectra.")] = None,
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
@@ -47,7 +52,7 @@ def register(app: typer.Typer) -> None:
 
         result = query(ri, phase_class, library=db, window=window, window_percent=window_percent, mol_ion=mol_ion,
                        ions=ions or None, hit=hit, hit_score=hit_score, top=top, fallback=fallback,
-                       homologues=homologues, measurement_sd=sd, crowding=crowding)
+                       homologues=homologues, measurement_sd=sd, crowding=crowding, spectrum=spectrum)
         doc = result.to_dict()
         if as_json:
             say(json.dumps(doc, indent=2, ensure_ascii=False))

@@ -24,6 +24,10 @@ Examples
   A peak table whose time column is called 'Ret.Time':
 
     matcher screen export.csv --ladder alkanes.csv --class nonpolar --map rt=Ret.Time -o out.xlsx
+
+  A run with its peaks' mass spectra (JCAMP-DX blocks titled by peak id), compared with the library's spectra:
+
+    matcher screen run-042.csv --ladder alkanes.csv --spectra run-042.jdx --class slightly-polar -o shortlist.csv
 """
 
 
@@ -55,6 +59,7 @@ def register(app: typer.Typer) -> None:
         sd: Annotated[Optional[float], typer.Option("--sd", metavar="UNITS", help="Index scatter of your runs (default: 0.3 x the class window; estimated with --adaptive).")] = None,
         crowding: Annotated[Optional[str], typer.Option("--crowding", metavar="TYPE|N", help="How crowded the sample is with compounds not in the library, as a prior: sparse, moderate (default), crowded, dense, or unlisted peaks per 100 index units. The run's own peaks refine it.")] = None,
         split_peaks: Annotated[bool, typer.Option("--split-peaks", help="Let one compound explain several peaks (split or overloaded peaks); by default a compound explains at most one peak of a run.")] = False,
+        spectra: Annotated[Optional[List[str]], typer.Option("--spectra", metavar="RUN.jdx", help="The peaks' mass spectra: a JCAMP-DX file per run (in the order of the runs), each block titled by its peak id. A 'spectrum' column of the peak table is read without it.")] = None,
         quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bar and no summary.")] = False,
         db: DbOption = None,
     ) -> None:
@@ -72,7 +77,8 @@ def register(app: typer.Typer) -> None:
         outputs = [("-o", out)] + ([("-o (its provenance sidecar)", str(sidecar_path(out)))] if csv_out else [])
         guard_outputs(outputs + [("--report", report)], db=db,
                       inputs=[("the peak table", p) for p in peaks] + [("the calibration", c) for c in calibration or []]
-                      + [("the ladder", x) for x in ladder or []] + [("the anchors file", anchors)])
+                      + [("the ladder", x) for x in ladder or []] + [("the anchors file", anchors)]
+                      + [("the spectra file", x) for x in spectra or []])
 
         bar = None
         progress = None
@@ -90,7 +96,7 @@ def register(app: typer.Typer) -> None:
                             dead_time=dead_time, rt_unit=rt_unit, header_map=parse_map(header_map) or None,
                             window=window, window_percent=window_percent, top=top, fallback=fallback,
                             homologues=homologues, adaptive=adaptive, anchors=anchors, measurement_sd=sd,
-                            crowding=crowding, split_peaks=split_peaks, progress=progress)
+                            crowding=crowding, split_peaks=split_peaks, spectra=spectra or None, progress=progress)
         finally:
             if bar is not None:
                 bar.__exit__(None, None, None)

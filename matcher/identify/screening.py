@@ -113,9 +113,13 @@ def _label(run: RunInput) -> str:
     return "run" if name.startswith("<") else os.path.splitext(os.path.basename(name))[0]
 
 
-def _hints_for_fit(peaks: PeakInput) -> PeakHints:
+def _hints_for_fit(peaks: PeakInput, home: PreparedClass | None = None) -> PeakHints:
+    from matcher.identify.shortlist import spectrum_hints
+
     masks = ion_masks(peaks.ions) if peaks.ions is not None and any(len(i) for i in peaks.ions) else None
-    return PeakHints(np.asarray(peaks.mol_ion, float) if peaks.mol_ion is not None else np.full(len(peaks), np.nan), masks)
+    extra = spectrum_hints(peaks, home) if home is not None else {}
+    return PeakHints(np.asarray(peaks.mol_ion, float) if peaks.mol_ion is not None else np.full(len(peaks), np.nan),
+                     masks, **extra)
 
 
 def _subset(peaks: PeakInput, idx: np.ndarray) -> PeakInput:
@@ -127,6 +131,7 @@ def _subset(peaks: PeakInput, idx: np.ndarray) -> PeakInput:
         None if peaks.hit_score is None else np.asarray(peaks.hit_score)[idx],
         None if peaks.extrapolated is None else np.asarray(peaks.extrapolated)[idx],
         None if peaks.unlisted is None else np.asarray(peaks.unlisted)[idx],
+        None if peaks.spectra is None else peaks.spectra.take(idx),
     )
 
 
@@ -143,7 +148,7 @@ def fit_run_model(home: PreparedClass, peaks: PeakInput, model: Model, w: np.nda
         idx = np.sort(np.random.default_rng(20261201).choice(idx, MAX_FIT_PEAKS, replace=False))
     sub = _subset(peaks, idx)
     model, info = fit(sub.ri, home.entries, home.compounds, home.mass_bg, model, w[idx],
-                      hints=_hints_for_fit(sub), compound_ion_masks=home.ion_masks, crowding=crowding)
+                      hints=_hints_for_fit(sub, home), compound_ion_masks=home.ion_masks, crowding=crowding)
     own = np.zeros(len(x))
     if "own_unlisted" in info:
         own[idx] = info.pop("own_unlisted")
@@ -309,6 +314,8 @@ def _table(sl: Shortlist, label: str, phase_class: str, peak_ids, rt, x, x_raw, 
         "ev_mol_ion": c["ev_mol_ion"],
         "ev_ions": c["ev_ions"],
         "ev_hit": c["ev_hit"],
+        "ev_spectrum": c["ev_spectrum"],
+        "spectrum_similarity": c["spectrum_similarity"],
     }
     df = pd.DataFrame(data)
     df.loc[df["rank"].isna(), "library_n"] = pd.NA
@@ -316,7 +323,7 @@ def _table(sl: Shortlist, label: str, phase_class: str, peak_ids, rt, x, x_raw, 
 
 
 def _with(peaks: PeakInput, x: np.ndarray, lam: np.ndarray) -> PeakInput:
-    return PeakInput(x, peaks.mol_ion, peaks.ions, peaks.hit, peaks.hit_score, peaks.extrapolated, lam)
+    return PeakInput(x, peaks.mol_ion, peaks.ions, peaks.hit, peaks.hit_score, peaks.extrapolated, lam, peaks.spectra)
 
 
 def _shift_profile(home: PreparedClass, peaks: PeakInput, model: Model, w: np.ndarray, lam: np.ndarray) -> float:
@@ -334,7 +341,12 @@ def _shift_profile(home: PreparedClass, peaks: PeakInput, model: Model, w: np.nd
     reach = float(np.max(w[ok]))
     pairs = window_pairs(home.entries.ri, xs, w[ok] * 2.0)
     sub = _subset(peaks, np.flatnonzero(ok))
-    hints = _hints_for_fit(sub)
+    hints = _hints_for_fit(sub, home)
+    if hints.compares_spectra():  # the pairs do not move with the shift: compare the spectra once
+        from matcher.chem.spectra import best_similarity
+
+        hints.spectrum_similarity, hints.spectrum_reference = best_similarity(
+            hints.spectra, hints.references, pairs.peak, home.entries.compound[pairs.entry], lookup=hints.lookup)
     groups = _Groups(pairs.peak, len(xs))  # per peak: log(1 + Σ_j w_pj), the "1" being not-in-library
     best_b, best_ll = 0.0, -np.inf
     for b in np.arange(-reach, reach + SHIFT_STEP / 2, SHIFT_STEP):
@@ -416,6 +428,51 @@ def screen_run(home: PreparedClass, peaks: PeakInput, base_sd: float, *, window=
     return sl, x, model, info, correction, notices
 
 
+def peak_spectra(path: Any, peak_ids: np.ndarray) -> list:
+    """One spectrum (or None) per peak from a JCAMP-DX file whose blocks are titled by peak id.
+
+    A block whose title names no peak of the run, or a peak named twice, refuses the file (file, block, line).
+    """
+    from matcher.io.jcamp import read_jcamp
+
+    blocks = read_jcamp(path)
+    pos = {str(p).strip(): i for i, p in enumerate(peak_ids)}
+    out: list = [None] * len(peak_ids)
+    for b in blocks:
+        i = pos.get(b.title.strip())
+        if i is None:
+            raise InputError(f"block {b.block} (line {b.line}): title {b.title[:60]!r} is not a peak id of the run "
+                             "(each block of a run's spectra file is titled by its peak id)", file=os.fspath(path))
+        if out[i] is not None:
+            raise InputError(f"block {b.block} (line {b.line}): peak {b.title[:60]!r} has a spectrum already",
+                             file=os.fspath(path))
+        out[i] = b.spectrum
+    return out
+
+
+#: the report draws the spectra of at most this many peaks per run
+REPORT_SPECTRA = 2000
+
+
+def review_spectra(sl: Shortlist, home: PreparedClass, peak_ids, spectra) -> dict:
+    """For each peak to review whose leading candidate was compared by spectrum: both spectra and the similarity."""
+    if spectra is None or home.references is None:
+        return {}
+    c = sl.columns
+    rows = np.flatnonzero((c["rank"] == 1) & np.isfinite(c["spectrum_similarity"]) & (c["spectrum_reference"] >= 0)
+                          & F.has_flag(c["flags"], "review"))[:REPORT_SPECTRA]
+    out = {}
+    for i in rows:
+        p = int(c["peak"][i])
+        out[str(peak_ids[p])] = {
+            "unknown": spectra[p],
+            "reference": home.references.spectra.relative(int(c["spectrum_reference"][i])),
+            "name": str(c["name"][i]),
+            "similarity": float(c["spectrum_similarity"][i]),
+        }
+    return out
+
+
 def _anchor_entry_sd(home: PreparedClass, ref: np.ndarray) -> np.ndarray:
     """The library spread of the entries the anchors point at (nearest entry by reference index)."""
     e = home.entries
@@ -450,6 +507,7 @@ def screen(
     labels: Sequence[str] | None = None,
     crowding: str | float | None = None,
     split_peaks: bool = False,
+    spectra: Any = None,
     progress: Callable[[int], None] | None = None,
 ) -> ScreenResult:
     """Screen runs against one class of the house library; see the module doc.
@@ -476,6 +534,9 @@ def screen(
     plan = plan_runs(peak_files, calibration, ladder, labels)
     if not plan:
         raise MatcherError("no peak file given")
+    spectra_files = [] if spectra is None else ([spectra] if isinstance(spectra, (str, os.PathLike)) else list(spectra))
+    if spectra_files and len(spectra_files) != len(plan):
+        raise MatcherError(f"{len(spectra_files)} spectra files for {len(plan)} runs: give one per run, in the same order")
     # read and convert every run before any heavy work, so a bad file fails fast
     loaded = []
     for run in plan:
@@ -489,7 +550,15 @@ def screen(
             if cal is None:
                 raise MatcherError(f"{run.peaks_path}: the table has no 'ri' column; give --calibration CAL.json or --ladder LADDER.csv")
             x, extrap = cal.convert(np.asarray(table.rt, dtype=float))
-        loaded.append((run, table, cal, np.asarray(x, dtype=float), np.asarray(extrap, dtype=bool)))
+        spec = None
+        if spectra_files:
+            if getattr(table, "spectra", ()):
+                raise MatcherError(f"{run.peaks_path} has a 'spectrum' column and --spectra {spectra_files[len(loaded)]} "
+                                   "was given too: give the spectra once")
+            spec = peak_spectra(spectra_files[len(loaded)], np.asarray(table.peak))
+        elif getattr(table, "spectra", ()):
+            spec = list(table.spectra)
+        loaded.append((run, table, cal, np.asarray(x, dtype=float), np.asarray(extrap, dtype=bool), spec))
 
     if snapshot is None:
         from matcher.store.snapshot_loader import load_snapshot
@@ -501,14 +570,17 @@ def screen(
 
     runs: list[RunResult] = []
     labels_seen: dict[str, int] = {}
-    for run, table, cal, x_raw, extrap in loaded:
+    from matcher.chem.spectra import SpectrumSet
+
+    for run, table, cal, x_raw, extrap, spec in loaded:
         label = _label(run)
         if label in labels_seen:
             labels_seen[label] += 1
             label = f"{label}-{labels_seen[label]}"
         else:
             labels_seen[label] = 1
-        peaks = PeakInput(x_raw, table.mol_ion, table.ions, table.hit, table.hit_score, extrap)
+        packed = SpectrumSet.from_spectra(spec) if spec is not None else None
+        peaks = PeakInput(x_raw, table.mol_ion, table.ions, table.hit, table.hit_score, extrap, spectra=packed)
         user_anchors = None
         if anchors:
             user_anchors = _anchors_from_file(anchors, label, np.asarray(table.peak), snapshot, home)
@@ -524,6 +596,7 @@ def screen(
             table=df, calibration=None if cal is None else cal.to_dict(), correction=correction,
             measurement_sd=model.measurement_sd, notices=notices, peak_count=len(table.peak), run_model=info,
             checksum=getattr(table, "checksum", ""),
+            spectra=review_spectra(sl, home, table.peak, spec),
         ))
 
     return ScreenResult(
@@ -535,5 +608,7 @@ def screen(
         caution=CAUTION,
         settings={"class": phase_class, "top": top, "fallback": fallback, "homologues": homologues,
                   "adaptive": adaptive, "anchors": anchors, "window": window, "window_percent": window_percent,
-                  "measurement_sd": measurement_sd, "crowding": crowding, "split_peaks": split_peaks},
+                  "measurement_sd": measurement_sd, "crowding": crowding, "split_peaks": split_peaks,
+                  "spectra": [os.fspath(f) for f in spectra_files] or None,
+                  "spectrum_model": home.spectrum_model.describe() if home.spectrum_model is not None else None},
     )

@@ -16,7 +16,7 @@ The file holds nothing but the header and the rows, so any CSV reader
 * booleans are ``true`` / ``false``;
 * ``rt`` 4 decimals, indices and deviations (``ri``, ``ri_measured``,
   ``library_ri``, ``delta_ri``, ``library_sd``) 2 decimals, ``score`` and the
-  ``ev_*`` evidence 4 decimals, ``hit_score`` 2;
+  ``ev_*`` evidence and ``spectrum_similarity`` 4 decimals, ``hit_score`` 2;
 * ``probability`` and ``not_in_library`` 6 decimals, **rounded down**, so a
   peak's listed probabilities never add up to more than 1 in the file;
 * ``flags`` semicolon-separated;
@@ -94,7 +94,8 @@ SIDECAR_SUFFIX = ".meta.json"
 INT_COLUMNS = ("rank", "library_n", "nominal_mass", "mol_ion")
 DECIMALS: dict[str, int] = {
     "rt": 4, "ri": 2, "ri_measured": 2, "library_ri": 2, "delta_ri": 2, "library_sd": 2,
-    "score": 4, "hit_score": 2, "ev_index": 4, "ev_mol_ion": 4, "ev_ions": 4, "ev_hit": 4,
+    "score": 4, "hit_score": 2, "ev_index": 4, "ev_mol_ion": 4, "ev_ions": 4, "ev_hit": 4, "ev_spectrum": 4,
+    "spectrum_similarity": 4,
 }
 PROBABILITY_COLUMNS = ("probability", "not_in_library")
 PROBABILITY_DECIMALS = 6
