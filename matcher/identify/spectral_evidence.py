@@ -23,17 +23,19 @@ Each Beta comes from the mean and variance of the measured similarities,
 shrunk towards a documented default with the weight of :data:`PRIOR_PAIRS`
 pairs, so a small library leans on the defaults and a large one on itself:
 
-* same compound: mean :data:`DEFAULT_SAME` [0] = 0.90, sd 0.06 (our
-  assumption; match factors of replicate EI spectra are usually above 0.8 on
-  this scale, common practice, no single source), never narrower than
-  :data:`MIN_SAME_SD` (unknowns from real runs are noisier than library
-  replicates);
+* same compound: mean 0.85, sd 0.08 (:data:`DEFAULT_SAME`, our
+  assumption: a run's spectrum of a compound usually matches its reference
+  above 0.7 on this scale, above 0.8 when clean; common practice, no single
+  source), never narrower than :data:`MIN_SAME_SD` (unknowns from real runs
+  are noisier than library replicates);
 * different compounds of one nominal mass: mean 0.50, sd 0.20 (our
   assumption).
 
 The ratio is tabulated on a grid, made non-decreasing in *s* (a higher
-similarity never counts as weaker evidence) and capped at ±:data:`CAP` nats,
-so that one spectrum cannot outweigh everything else.
+similarity never counts as weaker evidence) and bounded softly to ±:data:`CAP`
+nats (:math:`CAP \\cdot \\tanh(e / CAP)`: linear near 0, still rising near the
+bounds, so candidates stay ordered by similarity), so that one spectrum
+cannot outweigh everything else.
 
 >>> m = SpectrumModel.default()
 >>> bool(m.log_ratio(np.array([0.95]))[0] > 0 > m.log_ratio(np.array([0.5]))[0])
@@ -49,13 +51,13 @@ import numpy as np
 from matcher.chem.spectra import ReferenceSpectra, pair_similarity
 
 #: default (mean, sd) of the similarity of two spectra of one compound (our assumption)
-DEFAULT_SAME = (0.90, 0.06)
+DEFAULT_SAME = (0.85, 0.08)
 #: default (mean, sd) of the similarity of spectra of two compounds of one nominal mass (our assumption)
 DEFAULT_OTHER = (0.50, 0.20)
 #: the defaults weigh as much as this many measured pairs
 PRIOR_PAIRS = 20
 #: the same-compound spread is never taken narrower than this
-MIN_SAME_SD = 0.04
+MIN_SAME_SD = 0.06
 #: |e_spec| is capped here (nats)
 CAP = 10.0
 #: at most this many pairs of each kind are compared when calibrating (seeded sample)
@@ -109,7 +111,7 @@ class SpectrumModel:
         a1, b1 = _beta_from(*same)
         a2, b2 = _beta_from(*other)
         lr = _log_beta_pdf(_GRID, a1, b1) - _log_beta_pdf(_GRID, a2, b2)
-        lr = np.clip(np.maximum.accumulate(lr), -CAP, CAP)
+        lr = CAP * np.tanh(np.maximum.accumulate(lr) / CAP)
         return cls(same, other, int(same_pairs), int(other_pairs), lr)
 
     @classmethod
