@@ -394,12 +394,18 @@ def test_molecular_ion_not_counted_twice(oils_library, tmp_path):
 def test_report_draws_both_spectra_for_peaks_to_review(oils_library, tmp_path):
     url, rows, jdx = oils_library
     _cli("library", "import-spectra", jdx, "--db", url)
-    run, spectra, _ = _run_files(tmp_path, rows, noise=0.5)
+    run, spectra, unknowns = _run_files(tmp_path, rows)
+    # peaks 1 and 20 get each other's spectra: their index and their spectrum disagree
+    unknowns[0], unknowns[19] = unknowns[19], unknowns[0]
+    spectra.write_text(run_jcamp([f"P{i + 1}" for i in range(len(rows))], unknowns), encoding="utf-8")
     import matcher
 
     res = matcher.screen(str(run), phase_class="slightly-polar", library=url, spectra=str(spectra))
     drawn = res.runs[0].spectra
-    assert drawn, "no peak to review got its spectra"
+    top = res.top().set_index("peak")
+    assert {"P1", "P20"} <= set(drawn)
+    assert "review" in top.loc["P1", "flags"] and "spectrum-unlike" in top.loc["P1", "flags"]
+    assert drawn["P1"]["similarity"] == pytest.approx(top.loc["P1", "spectrum_similarity"])
     html = tmp_path / "r.html"
     res.to_html(html)
     text = html.read_text(encoding="utf-8")
