@@ -361,6 +361,8 @@ class Evaluation:
     queries: dict[str, int]
     classes: dict[str, dict] = field(default_factory=dict)
     library: dict[str, Any] = field(default_factory=dict)
+    #: the same rates with index and spectrum (None when the library holds no spectra), see matcher.identify.evaluation
+    with_spectra: dict[str, Any] | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """The document ``matcher evaluate --json`` prints."""

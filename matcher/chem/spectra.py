@@ -102,12 +102,12 @@ class SpectrumSet:
         return self.counts > 0
 
     def take(self, rows: np.ndarray) -> "SpectrumSet":
-        """The rows ``rows`` as a new set (in that order)."""
+        """The rows ``rows`` as a new set (in that order); a row -1 gives an empty row (no spectrum)."""
         rows = np.asarray(rows, dtype=np.int64)
-        cnt = self.counts[rows]
+        cnt = np.where(rows >= 0, self.counts[np.maximum(rows, 0)], 0) if len(self) else np.zeros(len(rows), np.int64)
         start = np.zeros(len(rows) + 1, dtype=np.int64)
         np.cumsum(cnt, out=start[1:])
-        idx = np.repeat(self.start[rows] - start[:-1], cnt) + np.arange(start[-1])
+        idx = np.repeat(self.start[np.maximum(rows, 0)] - start[:-1], cnt) + np.arange(start[-1])
         return SpectrumSet(start, self.mz[idx], self.w[idx])
 
     def relative(self, row: int) -> tuple[np.ndarray, np.ndarray]:
