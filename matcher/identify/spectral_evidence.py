@@ -31,8 +31,10 @@ pairs, so a small library leans on the defaults and a large one on itself:
 * different compounds of one nominal mass: mean 0.50, sd 0.20 (our
   assumption).
 
-The ratio is tabulated on a grid, made non-decreasing in *s* (a higher
-similarity never counts as weaker evidence) and bounded softly to ±:data:`CAP`
+The ratio is tabulated on a grid, made non-decreasing in *s* by a
+weighted isotonic fit (pool-adjacent-violators, weights the two densities:
+a higher similarity never counts as weaker evidence, and the tails, where
+no data inform the Beta shapes, follow their neighbours) and bounded softly to ±:data:`CAP`
 nats (:math:`CAP \\cdot \\tanh(e / CAP)`: linear near 0, still rising near the
 bounds, so candidates stay ordered by similarity), so that one spectrum
 cannot outweigh everything else.
@@ -81,6 +83,25 @@ def _log_beta_pdf(s: np.ndarray, a: float, b: float) -> np.ndarray:
     return (a - 1) * np.log(s) + (b - 1) * np.log1p(-s) - (lgamma(a) + lgamma(b) - lgamma(a + b))
 
 
+def isotonic(y: np.ndarray, w: np.ndarray) -> np.ndarray:
+    """Weighted least-squares non-decreasing fit (pool-adjacent-violators).
+
+    >>> isotonic(np.array([1.0, 3.0, 2.0, 4.0]), np.ones(4)).tolist()
+    [1.0, 2.5, 2.5, 4.0]
+    """
+    vals: list[float] = []
+    wts: list[float] = []
+    sizes: list[int] = []
+    for v, wt in zip(np.asarray(y, float), np.maximum(np.asarray(w, float), 1e-300)):
+        vals.append(float(v)); wts.append(float(wt)); sizes.append(1)
+        while len(vals) > 1 and vals[-2] > vals[-1]:
+            v2, w2, n2 = vals.pop(), wts.pop(), sizes.pop()
+            v1, w1, n1 = vals.pop(), wts.pop(), sizes.pop()
+            wsum = w1 + w2
+            vals.append((v1 * w1 + v2 * w2) / wsum); wts.append(wsum); sizes.append(n1 + n2)
+    return np.repeat(np.array(vals), sizes)
+
+
 def _shrunk(values: np.ndarray, default: tuple[float, float]) -> tuple[float, float]:
     """Mean and sd of measured similarities shrunk towards (mean, sd) with weight PRIOR_PAIRS."""
     m0, s0 = default
@@ -110,8 +131,12 @@ class SpectrumModel:
         same = (same[0], max(same[1], MIN_SAME_SD))
         a1, b1 = _beta_from(*same)
         a2, b2 = _beta_from(*other)
-        lr = _log_beta_pdf(_GRID, a1, b1) - _log_beta_pdf(_GRID, a2, b2)
-        lr = CAP * np.tanh(np.maximum.accumulate(lr) / CAP)
+        l1, l2 = _log_beta_pdf(_GRID, a1, b1), _log_beta_pdf(_GRID, a2, b2)
+        # made non-decreasing by a weighted isotonic fit: where neither density has mass (the tails, where the
+        # Beta shapes are not informed by any data) the ratio follows its well-supported neighbours
+        top = np.maximum(l1, l2)
+        weight = np.exp(top - top.max()) * (1.0 + np.exp(-np.abs(l1 - l2)))
+        lr = CAP * np.tanh(isotonic(l1 - l2, weight) / CAP)
         return cls(same, other, int(same_pairs), int(other_pairs), lr)
 
     @classmethod
