@@ -41,6 +41,8 @@ _LAZY = {
     "screen": "matcher.api",
     "query": "matcher.api",
     "evaluate": "matcher.api",
+    "spectrum_similarity": "matcher.api",
+    "spectrum_similarity_matrix": "matcher.api",
     "Evaluation": "matcher.api",
     "MatcherError": "matcher.errors",
     "InputError": "matcher.errors",

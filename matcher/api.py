@@ -396,3 +396,21 @@ def _tiny_snapshot():
 
 
 __all__ = ["Library", "open_library", "calibrate", "read_peaks", "screen", "query", "evaluate", "Evaluation"]
+
+
+def spectrum_similarity(a: Any, b: Any) -> float:
+    """Stein & Scott composite similarity (0-1, 1 = identical) of two mass spectra in the shared form.
+
+    Each spectrum is ``(mz, intensity)`` arrays (as in ``PeakTable.spectra``; see :mod:`matcher.chem.spectra`);
+    NaN when either is missing. For many pairs at once use :func:`spectrum_similarity_matrix`.
+    """
+    from matcher.chem.spectra import similarity
+
+    return similarity(a, b)
+
+
+def spectrum_similarity_matrix(unknowns: Sequence, references: Sequence):
+    """Similarity of every unknown spectrum with every reference spectrum (a NumPy array, vectorised)."""
+    from matcher.chem.spectra import similarity_matrix
+
+    return similarity_matrix(unknowns, references)

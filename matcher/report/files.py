@@ -109,7 +109,7 @@ def output_columns(table: pd.DataFrame | None = None) -> list[str]:
     """Contract columns, then detail columns, then any further columns of ``table``.
 
     >>> output_columns()[:3], len(output_columns())
-    (['peak', 'rt', 'ri'], 26)
+    (['peak', 'rt', 'ri'], 28)
     """
     cols = list(SHORTLIST_COLUMNS) + list(DETAIL_COLUMNS)
     if table is not None:
