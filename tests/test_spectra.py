@@ -194,6 +194,82 @@ def test_write_read_write_is_lossless(tables, title):
     assert jcamp_text(back) == text
 
 
+_JCAMP_BITS = ["##TITLE=a\n", "##END=\n", "##PEAK TABLE=(XY..XY)\n", "##XYDATA=(XY..XY)\n", "41,10 93,100\n",
+               "##NPOINTS=2\n", "##YFACTOR=0\n", "##DATA TYPE=LINK\n", "##BLOCKS=1\n", "$$ note\n", "93,x\n",
+               "##NTUPLES=MASS SPECTRUM\n", "1e400,1\n", "\x00\n", "##\n", "##CAS REGISTRY NO=80-56-8\n", "\n"]
+
+
+@given(st.lists(st.sampled_from(_JCAMP_BITS), max_size=25), st.text(max_size=30))
+@settings(max_examples=300, deadline=None)
+def test_any_text_is_read_or_refused_by_name(bits, noise):
+    """Fuzzing the reader with pieces of real records: a list of spectra or an InputError, nothing else."""
+    text = "".join(bits) + noise
+    try:
+        got = parse_jcamp(text, "fuzz.jdx")
+    except InputError as exc:
+        assert str(exc).startswith("fuzz.jdx") and "\n" not in str(exc)
+        return
+    for sp in got:
+        assert len(sp.mz) == len(sp.intensity) > 0 and np.all(np.diff(sp.mz) > 0) and np.all(sp.intensity >= 0)
+
+
+def test_calibration_learns_from_replicates():
+    from matcher.chem.spectra import ReferenceSpectra
+    from matcher.identify.spectral_evidence import DEFAULT_SAME, calibrate_spectra
+
+    rows = essential_oils()[:20]
+    rng = np.random.default_rng(2)
+    spectra, comp = [], []
+    for k, r in enumerate(rows):
+        ref = constructed_spectrum(r["name"], r["formula"])
+        for _ in range(3):  # three replicate spectra per compound, a little noise each
+            spectra.append(noisy_unknown(ref, r["formula"], rng, noise=0.05, strays=0))
+            comp.append(k)
+    from matcher.chem.formula import nominal_mass
+
+    refs = ReferenceSpectra.build(np.array(comp), spectra)
+    model = calibrate_spectra(refs, np.array([nominal_mass(r["formula"]) for r in rows], float))
+    d = model.describe()
+    assert d["same_pairs"] == 60 and d["other_pairs"] > 100  # 20 x 3 replicate pairs; isomers of one mass
+    assert d["same_mean"] > DEFAULT_SAME[0] and d["same_mean"] > d["other_mean"] + 0.15
+    grid = np.linspace(0, 1, 201)
+    lr = model.log_ratio(grid)
+    assert np.all(np.diff(lr) >= 0) and lr[0] < -3 and lr[-1] > 3  # monotone, both ways
+    assert model.log_ratio(np.array([np.nan]))[0] == 0.0  # nothing compared: no evidence
+
+
+def test_evaluate_with_and_without_spectra(library_url, tmp_path):
+    """Two observations and two replicate spectra per compound: the spectra lift top-1 and absent detection."""
+    import matcher
+
+    rows = essential_oils()
+    lib_csv = tmp_path / "oils2.csv"
+    with open(lib_csv, "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh)
+        w.writerow(["name", "phase_class", "ri", "formula", "cas"])
+        for r in rows:
+            w.writerow([r["name"], "slightly-polar", r["ri_adams"], r["formula"], r["cas"]])
+            w.writerow([r["name"], "slightly-polar", r["ri_compilation"], r["formula"], r["cas"]])
+    rng = np.random.default_rng(5)
+    items = [JcampSpectrum(title=r["name"], mz=u[0], intensity=u[1])
+             for r in rows for u in (noisy_unknown(constructed_spectrum(r["name"], r["formula"]), r["formula"], rng,
+                                                   noise=0.15, strays=1) for _ in range(2))]
+    jdx = tmp_path / "rep.jdx"
+    jdx.write_text(jcamp_text(items), encoding="utf-8")
+    lib = matcher.open_library(library_url)
+    lib.init()
+    lib.import_file(lib_csv)
+    lib.import_spectra(jdx)
+    ev = matcher.evaluate(lib)
+    spec = ev.with_spectra
+    assert spec["queries_with_spectrum"] == {"leave_one_out": 86, "removed": 43}
+    # measured: index only 67 % first, 65 % of removed compounds answered "not in library";
+    # with a held-out replicate spectrum 100 % and 100 %, calibration error 0.19 -> 0.01
+    assert ev.top1 < 0.8 and spec["top1"] >= 0.95
+    assert spec["not_in_library_detection"] >= 0.9 > ev.not_in_library_detection
+    assert spec["ece"] < ev.ece
+
+
 # --------------------------------------------------------------------------- the store and the commands
 
 
