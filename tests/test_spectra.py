@@ -482,6 +482,17 @@ def test_report_draws_both_spectra_for_peaks_to_review(oils_library, tmp_path):
     assert {"P1", "P20"} <= set(drawn)
     assert "review" in top.loc["P1", "flags"] and "spectrum-unlike" in top.loc["P1", "flags"]
     assert drawn["P1"]["similarity"] == pytest.approx(top.loc["P1", "spectrum_similarity"])
+    # the JSON document keeps the contract: spectrum_similarity per candidate, evidence.spectrum
+    import importlib.resources
+
+    import jsonschema
+
+    schema = json.loads(importlib.resources.files("matcher.schemas").joinpath("screen-output.schema.json").read_text())
+    doc = json.loads(res.to_json())
+    jsonschema.Draft202012Validator(schema).validate(doc)
+    first = doc["runs"][0]["peaks"][1]["candidates"][0]
+    assert 0 < first["spectrum_similarity"] < 1 and first["evidence"]["spectrum"] != 0
+    assert doc["settings"]["spectrum_model"]["other_pairs"] > 0
     html = tmp_path / "r.html"
     res.to_html(html)
     text = html.read_text(encoding="utf-8")

@@ -69,9 +69,12 @@ def render(doc: dict) -> str:
     if not doc["candidates"]:
         body = "no library entry inside the window (not in library: 1.00)"
     else:
-        rows = [[c["rank"], c["name"], f"{c['library_ri']:.1f}", f"{c['delta_ri']:+.1f}", f"{c['probability']:.3f}",
-                 ";".join(c["flags"])] for c in doc["candidates"]]
-        body = format_table(["rank", "name", "library index", "deviation", "probability", "flags"], rows, align="rlrrrl")
+        spectral = any(c.get("spectrum_similarity") is not None for c in doc["candidates"])
+        rows = [[c["rank"], c["name"], f"{c['library_ri']:.1f}", f"{c['delta_ri']:+.1f}", f"{c['probability']:.3f}"]
+                + ([("-" if c.get("spectrum_similarity") is None else f"{c['spectrum_similarity']:.3f}")] if spectral else [])
+                + [";".join(c["flags"])] for c in doc["candidates"]]
+        heads = ["rank", "name", "library index", "deviation", "probability"] + (["spectrum"] if spectral else []) + ["flags"]
+        body = format_table(heads, rows, align="rlrrr" + ("r" if spectral else "") + "l")
         body += f"\nnot in library: {doc['not_in_library']:.3f}"
     notes = "".join(f"\nnote: {n}" for n in doc["notes"])
     return f"{head}\n\n{body}{notes}\n\n{doc['caution']}"
