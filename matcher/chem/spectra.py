@@ -87,6 +87,10 @@ class SpectrumSet:
     start: np.ndarray  # int64, len n + 1
     mz: np.ndarray  # int32
     w: np.ndarray  # float32
+    #: row numbers in the set this one was taken from (None: this is the original), for the cache below
+    origin: np.ndarray | None = None
+    #: similarities already computed for this run (:class:`SimilarityCache`), shared by every subset taken
+    cache: "SimilarityCache | None" = None
 
     def __len__(self) -> int:
         return len(self.start) - 1
@@ -108,7 +112,16 @@ class SpectrumSet:
         start = np.zeros(len(rows) + 1, dtype=np.int64)
         np.cumsum(cnt, out=start[1:])
         idx = np.repeat(self.start[np.maximum(rows, 0)] - start[:-1], cnt) + np.arange(start[-1])
-        return SpectrumSet(start, self.mz[idx], self.w[idx])
+        origin = None
+        if self.cache is not None:
+            base = self.origin if self.origin is not None else np.arange(len(self), dtype=np.int64)
+            origin = np.where(rows >= 0, base[np.maximum(rows, 0)], -1)
+        return SpectrumSet(start, self.mz[idx], self.w[idx], origin, self.cache)
+
+    def with_cache(self) -> "SpectrumSet":
+        """The same spectra with a fresh :class:`SimilarityCache`: a (row, compound) pair is compared once per run
+        however many times the run model, the adaptive correction and the shortlist ask for it."""
+        return SpectrumSet(self.start, self.mz, self.w, None, SimilarityCache())
 
     def relative(self, row: int) -> tuple[np.ndarray, np.ndarray]:
         """Row ``row`` back in the shared form: nominal m/z and intensities relative to its base peak (100).
@@ -173,15 +186,13 @@ def _lookup(ref: SpectrumSet):
     n = len(ref)
     width = int(ref.mz.max()) + 1 if len(ref.mz) else 1
     row_of = np.repeat(np.arange(n, dtype=np.int64), ref.counts)
-    if n * width <= DENSE_CELLS:
-        dense = np.zeros((max(n, 1), width), dtype=np.float32)
-        dense[row_of, ref.mz] = ref.w
+    if n * (width + 1) <= DENSE_CELLS:
+        # one extra, always empty column: an unknown's m/z beyond the references' range reads 0 there
+        flat = np.zeros(max(n, 1) * (width + 1), dtype=np.float32)
+        flat[row_of * (width + 1) + ref.mz] = ref.w
 
         def get(rows, mz):
-            inside = mz < width
-            out = np.zeros(len(rows), dtype=np.float32)
-            out[inside] = dense[rows[inside], mz[inside]]
-            return out
+            return flat.take(rows * (width + 1) + np.minimum(mz, width))
         return get
     keys = row_of * width + ref.mz  # ascending: rows in order, m/z ascending within a row
 
@@ -308,13 +319,56 @@ class ReferenceSpectra:
             self.compound, compound_rows, side="left")
 
 
+class SimilarityCache:
+    """Best similarities already computed, keyed by (original unknown row, compound row); sorted arrays."""
+
+    def __init__(self) -> None:
+        self.keys = np.zeros(0, dtype=np.int64)
+        self.sim = np.zeros(0)
+        self.which = np.zeros(0, dtype=np.int64)
+
+    @staticmethod
+    def key(row: np.ndarray, compound: np.ndarray) -> np.ndarray:
+        return np.asarray(row, dtype=np.int64) * (1 << 31) + np.asarray(compound, dtype=np.int64)
+
+    def find(self, keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(position, found) of each key."""
+        i = np.clip(np.searchsorted(self.keys, keys), 0, max(len(self.keys) - 1, 0))
+        found = (self.keys[i] == keys) if len(self.keys) else np.zeros(len(keys), dtype=bool)
+        return i, found
+
+    def add(self, keys: np.ndarray, sim: np.ndarray, which: np.ndarray) -> None:
+        keys, first = np.unique(keys, return_index=True)
+        k = np.concatenate([self.keys, keys])
+        order = np.argsort(k, kind="stable")
+        self.keys = k[order]
+        self.sim = np.concatenate([self.sim, sim[first]])[order]
+        self.which = np.concatenate([self.which, which[first]])[order]
+
+
 def best_similarity(unknown: SpectrumSet, refs: ReferenceSpectra, peak: np.ndarray, compound: np.ndarray,
                     *, lookup=None) -> tuple[np.ndarray, np.ndarray]:
     """Per (peak, compound) pair: the best similarity over the compound's reference spectra, and which spectrum.
 
-    Returns (similarity, spectrum row); NaN and -1 where the peak or the compound has no spectrum.
+    Returns (similarity, spectrum row); NaN and -1 where the peak or the compound has no spectrum. With a
+    cache on ``unknown`` (:meth:`SpectrumSet.with_cache`) pairs compared before are not compared again.
     """
     peak = np.asarray(peak, dtype=np.int64)
+    compound = np.asarray(compound, dtype=np.int64)
+    cache = unknown.cache
+    if cache is not None and len(peak):
+        rows = unknown.origin[peak] if unknown.origin is not None else peak
+        keys = SimilarityCache.key(rows, compound)
+        pos, found = cache.find(keys)
+        sim = np.where(found, cache.sim[pos] if len(cache.keys) else np.nan, np.nan)
+        which = np.where(found, cache.which[pos] if len(cache.keys) else -1, -1)
+        todo = np.flatnonzero(~found)
+        if len(todo):
+            plain = SpectrumSet(unknown.start, unknown.mz, unknown.w)
+            s2, w2 = best_similarity(plain, refs, peak[todo], compound[todo], lookup=lookup)
+            sim[todo], which[todo] = s2, w2
+            cache.add(keys[todo], s2, w2)
+        return sim, which.astype(np.int64)
     best = np.full(len(peak), np.nan)
     which = np.full(len(peak), -1, dtype=np.int64)
     if not len(peak) or not len(refs):

@@ -579,7 +579,7 @@ def screen(
             label = f"{label}-{labels_seen[label]}"
         else:
             labels_seen[label] = 1
-        packed = SpectrumSet.from_spectra(spec) if spec is not None else None
+        packed = SpectrumSet.from_spectra(spec).with_cache() if spec is not None else None
         peaks = PeakInput(x_raw, table.mol_ion, table.ions, table.hit, table.hit_score, extrap, spectra=packed)
         user_anchors = None
         if anchors:

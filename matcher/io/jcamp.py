@@ -104,24 +104,53 @@ def _fail(file: str, line: int, why: str, block: int | None = None, title: str |
     return InputError(f"{where}line {line}: {why}; nothing was imported", file=file)
 
 
+_RECORD = re.compile(r"^[ \t]*##", re.M)
+_COMMENT = re.compile(r"\$\$[^\n\r]*")
+
+
+class _Rec(list):
+    """[label as written, label key, first-line value, line number, lines after it]; the lines after it are
+    kept as one text and split (with their numbers) only when asked, so tables of many blocks stay fast."""
+
+    @property
+    def body(self) -> str:
+        return self[4]
+
+    def lines(self) -> list[tuple[int, str]]:
+        out = []
+        for k, raw in enumerate(self[4].split("\n"), start=self[3] + 1):
+            t = raw.strip()
+            if t:
+                out.append((k, t))
+        return out
+
+
 def _records(text: str, file: str):
-    """(label, key, value, first line, value lines with their numbers) for every record."""
+    """Every record: label, key, value, first line, and the lines after it (see :class:`_Rec`)."""
+    text = text.replace("\r\n", "\n").replace("\r", "\n")
+    if "$$" in text:
+        text = _COMMENT.sub("", text)
+    starts = [m.start() for m in _RECORD.finditer(text)]
+    head = text[: starts[0]] if starts else text
+    if head.strip():
+        bad = next(k for k, ln in enumerate(head.split("\n"), start=1) if ln.strip())
+        raise _fail(file, bad, "text before the first ##TITLE record")
     recs = []
-    cur = None
-    for no, raw in enumerate(text.splitlines(), start=1):
-        line = raw.split("$$", 1)[0].rstrip()
-        stripped = line.lstrip()
-        if stripped.startswith("##"):
-            body = stripped[2:]
-            label, eq, value = body.partition("=")
-            if not eq:
-                raise _fail(file, no, f"record {stripped[:40]!r} has no '='")
-            cur = [label.strip(), label_key(label), value.strip(), no, []]
-            recs.append(cur)
-        elif stripped:
-            if cur is None:
-                raise _fail(file, no, "text before the first ##TITLE record")
-            cur[4].append((no, stripped))
+    keys: dict[str, str] = {}
+    line = 1 + head.count("\n")
+    bounds = starts + [len(text)]
+    for a, b in zip(bounds[:-1], bounds[1:]):
+        chunk = text[a:b]
+        first, nl, rest = chunk.partition("\n")
+        body = first.strip()[2:]
+        label, eq, value = body.partition("=")
+        if not eq:
+            raise _fail(file, line, f"record {first.strip()[:40]!r} has no '='")
+        k = keys.get(label)
+        if k is None:
+            k = keys[label] = label_key(label)
+        recs.append(_Rec([label.strip(), k, value.strip(), line, rest]))
+        line += chunk.count("\n")
     return recs
 
 
@@ -134,7 +163,29 @@ def _number(tok: str, file: str, no: int, block: int, title: str) -> float:
 
 
 def _table(rec, file: str, block: int, title: str, xf: float, yf: float, npoints: int | None):
-    label, key, value, no, lines = rec
+    """The table's (m/z, intensity), sorted: one NumPy parse of all its values; on any problem the careful
+    reading below finds the line to name."""
+    label, key, value, no = rec[:4]
+    if value.replace(" ", "").upper() == "(XY..XY)":
+        body = rec.body.replace(",", " ").replace(";", " ").split()
+        try:
+            arr = np.array(body, dtype=np.float64)
+        except ValueError:
+            arr = None
+        if arr is not None and len(arr) % 2 == 0 and len(arr) and (npoints is None or npoints == len(arr) // 2):
+            arr = arr.reshape(-1, 2)
+            mz, y = arr[:, 0] * xf, arr[:, 1] * yf
+            if np.all(np.isfinite(mz) & (mz >= 1) & (mz <= MAX_MZ)) and np.all(np.isfinite(y) & (y >= 0)):
+                order = np.argsort(mz, kind="stable")
+                mz, y = mz[order], y[order]
+                if not np.any(np.diff(mz) == 0):
+                    return mz, y
+    return _table_checked(rec, file, block, title, xf, yf, npoints)
+
+
+def _table_checked(rec, file: str, block: int, title: str, xf: float, yf: float, npoints: int | None):
+    label, key, value, no = rec[:4]
+    lines = rec.lines()
     form = value.replace(" ", "").upper()
     if form != "(XY..XY)":
         raise _fail(file, no, f"##{label}={value} is not read (only (XY..XY) tables of m/z,intensity pairs)", block, title)
@@ -177,7 +228,7 @@ def parse_jcamp(text: str, file: str = "<text>") -> list[JcampSpectrum]:
     stack: list[dict] = []  # open blocks
     blocks = 0
     for rec in recs:
-        label, key, value, no, lines = rec
+        label, key, value, no = rec[:4]
         if key == "TITLE":
             blocks += 1
             if blocks > MAX_BLOCKS:
@@ -237,7 +288,7 @@ def _finish(blk: dict, file: str) -> JcampSpectrum | None:
     mz, y = _table(tables[0], file, number, title, factor("XFACTOR"), factor("YFACTOR"), npoints)
 
     def full(rec) -> str:
-        return "\n".join([rec[2]] + [s for _, s in rec[4]]).strip()
+        return "\n".join([rec[2]] + [t for _, t in rec.lines()]).strip()
 
     names = []
     if "NAMES" in got:

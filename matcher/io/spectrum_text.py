@@ -42,6 +42,31 @@ def parse_spectrum_text(text: str) -> tuple[np.ndarray, np.ndarray] | None:
     if not text:
         return None
     parts = [p for p in _SPLIT.split(text) if p]
+    fast = _fast(parts)
+    if fast is not None:
+        return fast
+    return _checked(parts)
+
+
+def _fast(parts: list[str]):
+    """One NumPy parse of well-formed pairs; None when anything is off (the checked reading names it)."""
+    if len(parts) > MAX_PAIRS or any(p.count(":") != 1 for p in parts):
+        return None
+    try:
+        arr = np.array(":".join(parts).split(":"), dtype=np.float64).reshape(-1, 2)
+    except ValueError:
+        return None
+    mz, y = arr[:, 0], arr[:, 1]
+    if not (np.all(np.isfinite(mz) & (mz >= 1) & (mz <= MAX_MZ)) and np.all(np.isfinite(y) & (y >= 0))):
+        return None
+    order = np.argsort(mz, kind="stable")
+    mz, y = mz[order], y[order]
+    if np.any(np.diff(mz) == 0):
+        return None
+    return mz, y
+
+
+def _checked(parts: list[str]):
     if len(parts) > MAX_PAIRS:
         raise ValueError(f"a spectrum may hold at most {MAX_PAIRS} m/z:intensity pairs, this one has {len(parts)}")
     mz = np.empty(len(parts))
