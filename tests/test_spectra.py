@@ -357,6 +357,18 @@ def test_contradicting_formula_is_refused(oils_library, tmp_path):
     assert code == 2 and "contradicts" in out and "nothing was imported" in out
 
 
+def test_a_published_table_imports_into_an_empty_library(library_url, tmp_path):
+    """Isomers with close names (alpha-/gamma-terpinene) in one file become different compounds."""
+    rows = essential_oils()
+    jdx = tmp_path / "all.jdx"
+    jdx.write_text(library_jcamp(rows), encoding="utf-8")
+    code, out = _cli("library", "import-spectra", jdx, "--db", library_url)
+    assert code == 0, out
+    assert f"{len(rows)} spectra added to {len(rows)} compounds" in out and f"{len(rows)} new compounds" in out
+    doc = json.loads(_cli("library", "show", "gamma-terpinene", "--json", "--db", library_url)[1])
+    assert doc["formula"] == "C10H16" and doc["cas"] == "99-85-4" and len(doc["spectra"]) == 1
+
+
 def test_close_name_refused_like_library_add(oils_library, tmp_path):
     url, rows, jdx = oils_library
     one = tmp_path / "one.jdx"

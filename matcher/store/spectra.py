@@ -13,7 +13,9 @@ transaction, finds each spectrum's compound:
    synonyms, ``##MOLFORM`` and CAS as its identity), unless a library name is
    close to it or its CAS number belongs to several compounds: then, as with
    ``matcher library add``, the file is refused with the names it may mean
-   (``new=True`` creates the compound anyway).
+   (``new=True`` creates the compound anyway). Only compounds held before the
+   import count here: blocks of one file with different names stay different
+   compounds (as in a library CSV import).
 
 A ``##MOLFORM`` or CAS number that contradicts the compound's own is refused;
 missing ones are filled in (audited). A spectrum already held for the
@@ -123,6 +125,7 @@ def import_spectra(db: str | None, path: str | os.PathLike, *, source: str | Non
 
         rep = SpectraImport(file=file)
         idx = writes.CompoundIndex.read(session)
+        before = set(idx.names)  # compounds held before this import (new ones of this file are never "close")
         held: dict[int, set] = {}
         for cid, peaks, src in session.execute(_held_query()):
             held.setdefault(cid, set()).add((peaks, src or ""))
@@ -138,8 +141,10 @@ def import_spectra(db: str | None, path: str | os.PathLike, *, source: str | Non
                 comp = session.get(Compound, idx.by_cas[cas][0])
             if comp is None:
                 if not new:
-                    maybe = [f"{idx.names[c]} (same CAS {cas})" for c in idx.by_cas.get(cas, ())] if cas else []
+                    maybe = [f"{idx.names[c]} (same CAS {cas})" for c in idx.by_cas.get(cas, ()) if c in before] if cas else []
                     for cid, nm in idx.names.items():
+                        if cid not in before:
+                            continue
                         sc = max(closeness(n, nm) for n in names)
                         if sc >= CLOSE_SCORE:
                             maybe.append(f"{nm} (close name, {sc:.0f})")
