@@ -454,6 +454,18 @@ def test_peak_table_spectrum_column_is_used(oils_library, tmp_path):
         matcher.screen(str(table), phase_class="slightly-polar", library=url, spectra=str(spectra))
 
 
+def test_spectra_without_reference_spectra_say_so(oils_library, tmp_path):
+    url, rows, jdx = oils_library  # the library has indices but no spectra yet
+    import matcher
+
+    run, spectra, unknowns = _run_files(tmp_path, rows[:8])
+    res = matcher.screen(str(run), phase_class="slightly-polar", library=url, spectra=str(spectra))
+    assert any("no reference spectra" in n for n in res.runs[0].notices)
+    assert res.table["spectrum_similarity"].isna().all() and (res.table["ev_spectrum"] == 0).all()
+    q = matcher.query(float(rows[0]["ri_compilation"]), "slightly-polar", library=url, spectrum=unknowns[0])
+    assert any("no reference spectra" in n for n in q.notes)
+
+
 def test_spectra_file_with_an_unknown_peak_id_is_refused(oils_library, tmp_path):
     url, rows, jdx = oils_library
     run, spectra, _ = _run_files(tmp_path, rows[:5])

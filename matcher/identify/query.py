@@ -183,8 +183,12 @@ def query(
         model={"index_scatter": sd, "presence": float(presence), "unlisted_per_100": round(lam0 * 100, 3)},
         library={"location": snapshot.source, "revision": snapshot.revision, "entries": len(home.entries),
                  "spectra": len(home.references) if home.references is not None else 0},
-        notes=list(sl.notes),
+        notes=list(sl.notes) + ([NO_REFERENCE_SPECTRA] if packed is not None and home.references is None else []),
     )
+
+
+NO_REFERENCE_SPECTRA = ("the library holds no reference spectra, so the spectrum was not compared "
+                        "(add some with: matcher library import-spectra)")
 
 
 def one_spectrum(spectrum: Any):

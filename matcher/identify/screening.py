@@ -450,6 +450,9 @@ def peak_spectra(path: Any, peak_ids: np.ndarray) -> list:
     return out
 
 
+NO_REFERENCE_SPECTRA = ("the library holds no reference spectra, so the peaks' spectra were not compared "
+                        "(add some with: matcher library import-spectra)")
+
 #: the report draws the spectra of at most this many peaks per run
 REPORT_SPECTRA = 2000
 
@@ -589,6 +592,8 @@ def screen(
                              estimate_scatter=measurement_sd is None, peak_ids=np.asarray(table.peak), progress=progress,
                              crowding=crowding, exclusive=not split_peaks)
         sl, x, model, info, correction, notices = outcome
+        if packed is not None and home.references is None:
+            notices.append(NO_REFERENCE_SPECTRA)
         df = _table(sl, label, phase_class, table.peak, table.rt, x, x_raw, peaks)
         runs.append(RunResult(
             source=run.peaks_path, label=label, phase_class=phase_class,
