@@ -210,7 +210,7 @@ def test_any_text_is_read_or_refused_by_name(bits, noise):
         assert str(exc).startswith("fuzz.jdx") and "\n" not in str(exc)
         return
     for sp in got:
-        assert len(sp.mz) == len(sp.intensity) > 0 and np.all(np.diff(sp.mz) > 0) and np.all(sp.intensity >= 0)
+        assert len(sp.mz) == len(sp.intensity) and np.all(np.diff(sp.mz) > 0) and np.all(sp.intensity >= 0)
 
 
 def test_calibration_learns_from_replicates():
@@ -464,6 +464,25 @@ def test_spectra_without_reference_spectra_say_so(oils_library, tmp_path):
     assert res.table["spectrum_similarity"].isna().all() and (res.table["ev_spectrum"] == 0).all()
     q = matcher.query(float(rows[0]["ri_compilation"]), "slightly-polar", library=url, spectrum=unknowns[0])
     assert any("no reference spectra" in n for n in q.notes)
+
+
+def test_run_spectra_titled_file_peak_id_and_empty_blocks(oils_library, tmp_path):
+    """Blocks titled '<run> peak <id>' (as matcher peaks writes them) are read; an empty block is no spectrum."""
+    url, rows, jdx = oils_library
+    _cli("library", "import-spectra", jdx, "--db", url)
+    import matcher
+
+    run, spectra, unknowns = _run_files(tmp_path, rows[:6])
+    items = [JcampSpectrum(title=f"run-7.cdf peak P{k + 1}", mz=u[0], intensity=u[1]) for k, u in enumerate(unknowns)]
+    items[2] = JcampSpectrum(title="run-7.cdf peak P3", mz=np.zeros(0), intensity=np.zeros(0))
+    other = tmp_path / "peaks.jdx"
+    other.write_text(jcamp_text(items), encoding="utf-8")
+    top = matcher.screen(str(run), phase_class="slightly-polar", library=url, spectra=str(other)).top()
+    sims = top["spectrum_similarity"].tolist()
+    assert np.isnan(sims[2]) and all(0.5 < v < 1 for k, v in enumerate(sims) if k != 2)
+    # the same empty block in a library file is refused with its place
+    code, out = _cli("library", "import-spectra", other, "--new", "--db", url)
+    assert code == 2 and "block 3" in out and "holds no m/z,intensity pairs" in out
 
 
 def test_spectra_file_with_an_unknown_peak_id_is_refused(oils_library, tmp_path):

@@ -203,6 +203,8 @@ def one_spectrum(spectrum: Any):
         blocks = read_jcamp(spectrum)
         if len(blocks) != 1:
             raise InputError(f"holds {len(blocks)} spectra; a query takes one", file=os.fspath(spectrum))
+        if not len(blocks[0].mz):
+            raise InputError("the spectrum's table holds no m/z,intensity pairs", file=os.fspath(spectrum))
         return blocks[0].spectrum
     try:
         mz, y = (np.asarray(v, dtype=float) for v in spectrum)

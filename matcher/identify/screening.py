@@ -431,7 +431,9 @@ def screen_run(home: PreparedClass, peaks: PeakInput, base_sd: float, *, window=
 def peak_spectra(path: Any, peak_ids: np.ndarray) -> list:
     """One spectrum (or None) per peak from a JCAMP-DX file whose blocks are titled by peak id.
 
-    A block whose title names no peak of the run, or a peak named twice, refuses the file (file, block, line).
+    A title may also end in `` peak ID`` (as ``matcher peaks --spectra-out`` writes them); an empty block means
+    no spectrum. A block whose title names no peak of the run, or a peak named twice, refuses the file (file,
+    block, line).
     """
     from matcher.io.jcamp import read_jcamp
 
@@ -439,14 +441,17 @@ def peak_spectra(path: Any, peak_ids: np.ndarray) -> list:
     pos = {str(p).strip(): i for i, p in enumerate(peak_ids)}
     out: list = [None] * len(peak_ids)
     for b in blocks:
-        i = pos.get(b.title.strip())
+        title = b.title.strip()
+        i = pos.get(title)
+        if i is None and " peak " in title:
+            i = pos.get(title.rsplit(" peak ", 1)[1].strip())
         if i is None:
             raise InputError(f"block {b.block} (line {b.line}): title {b.title[:60]!r} is not a peak id of the run "
                              "(each block of a run's spectra file is titled by its peak id)", file=os.fspath(path))
         if out[i] is not None:
             raise InputError(f"block {b.block} (line {b.line}): peak {b.title[:60]!r} has a spectrum already",
                              file=os.fspath(path))
-        out[i] = b.spectrum
+        out[i] = b.spectrum if len(b.mz) else None
     return out
 
 

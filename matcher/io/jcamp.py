@@ -15,7 +15,8 @@ What is read (each block holding data becomes one :class:`JcampSpectrum`):
 * the spectrum from ``##PEAK TABLE=(XY..XY)`` or ``##XYDATA=(XY..XY)``:
   m/z and intensity pairs, separated by spaces, commas or semicolons, values
   multiplied by ``##XFACTOR`` / ``##YFACTOR`` when given; ``##NPOINTS``,
-  when given, must match the number of pairs;
+  when given, must match the number of pairs; an empty table is read as an
+  empty spectrum (a run's peak without one; the library import refuses it);
 * ``##TITLE``, ``##NAMES`` (one name per line), ``##CAS REGISTRY NO``,
   ``##MOLFORM``, ``##ORIGIN``, ``##OWNER``, and every other record of the
   block in order (kept for a lossless export).
@@ -172,7 +173,7 @@ def _table(rec, file: str, block: int, title: str, xf: float, yf: float, npoints
             arr = np.array(body, dtype=np.float64)
         except ValueError:
             arr = None
-        if arr is not None and len(arr) % 2 == 0 and len(arr) and (npoints is None or npoints == len(arr) // 2):
+        if arr is not None and len(arr) % 2 == 0 and (npoints is None or npoints == len(arr) // 2):
             arr = arr.reshape(-1, 2)
             mz, y = arr[:, 0] * xf, arr[:, 1] * yf
             if np.all(np.isfinite(mz) & (mz >= 1) & (mz <= MAX_MZ)) and np.all(np.isfinite(y) & (y >= 0)):
@@ -211,8 +212,6 @@ def _table_checked(rec, file: str, block: int, title: str, xf: float, yf: float,
                     "negative or not finite", block, title)
     if npoints is not None and npoints != len(mz):
         raise _fail(file, no, f"##NPOINTS says {npoints} but the table holds {len(mz)} pairs", block, title)
-    if not len(mz):
-        raise _fail(file, no, f"##{label} holds no pairs", block, title)
     order = np.argsort(mz, kind="stable")
     mz, y, lines_of = mz[order], y[order], lines_of[order]
     dup = np.flatnonzero(np.diff(mz) == 0)

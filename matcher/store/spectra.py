@@ -76,6 +76,8 @@ def _checked(spectra, file: str):
     out = []
     for sp in spectra:
         where = f"block {sp.block} ({sp.title!r}), line {sp.line}"
+        if not len(sp.mz):
+            raise InputError(f"{where}: the block's table holds no m/z,intensity pairs; nothing was imported", file=file)
         names = [display_name(n) for n in [sp.title, *sp.names] if n and n.strip()]
         names = list(dict.fromkeys(n for n in names if matching_key(n)))
         if not names:
