@@ -193,6 +193,7 @@ def _lookup(ref: SpectrumSet):
 
         def get(rows, mz):
             return flat.take(rows * (width + 1) + np.minimum(mz, width))
+        get.dense = (flat, width)  # lets _block gather without a product per element
         return get
     keys = row_of * width + ref.mz  # ascending: rows in order, m/z ascending within a row
 
@@ -234,29 +235,44 @@ def pair_similarity(unknown: SpectrumSet, reference: SpectrumSet, u: np.ndarray,
     return out
 
 
+def _segment_sums(values: np.ndarray, offs: np.ndarray) -> np.ndarray:
+    """Sums of consecutive segments ``values[offs[k]:offs[k+1]]`` (empty segments give 0)."""
+    c = np.zeros(len(values) + 1)
+    np.cumsum(values, out=c[1:])
+    return c[offs[1:]] - c[offs[:-1]]
+
+
 def _block(unknown: SpectrumSet, get, u: np.ndarray, r: np.ndarray) -> np.ndarray:
     m = len(u)
     cnt = unknown.counts[u]
     total = int(cnt.sum())
-    pair = np.repeat(np.arange(m, dtype=np.int64), cnt)
     offs = np.zeros(m + 1, dtype=np.int64)
     np.cumsum(cnt, out=offs[1:])
     pos = np.repeat(unknown.start[u] - offs[:-1], cnt) + np.arange(total)
     wu = unknown.w[pos]
-    wl = get(r[pair], unknown.mz[pos].astype(np.int64))
-    dot = np.bincount(pair, weights=(wu * wl).astype(np.float64), minlength=m)
+    dense = getattr(get, "dense", None)
+    if dense is not None:
+        flat, width = dense
+        wl = flat.take(np.repeat(r * (width + 1), cnt) + np.minimum(unknown.mz[pos], width))
+    else:
+        wl = get(np.repeat(r, cnt), unknown.mz[pos].astype(np.int64))
+    dot = _segment_sums(wu * wl, offs)  # each pair's elements are one contiguous segment
     fd = np.minimum(dot * dot, 1.0)  # rows are unit length: F_D = (Σ W_U W_L)^2
     common = wl > 0
-    n_ul = np.bincount(pair, weights=common, minlength=m)
+    n_ul = np.diff(np.r_[0, np.cumsum(common)][offs])
     # ratio term over neighbouring common peaks (in m/z order inside each pair)
-    cp = pair[common]
-    cu = wu[common].astype(np.float64)
-    cl = wl[common].astype(np.float64)
-    same = cp[1:] == cp[:-1]
-    q = (cl[1:] / cl[:-1]) * (cu[:-1] / cu[1:])
+    keep = np.flatnonzero(common)
+    cu = wu[keep].astype(np.float64)
+    cl = wl[keep].astype(np.float64)
+    coffs = np.r_[0, np.cumsum(n_ul)]
+    q = np.ones(len(keep))
+    if len(keep) > 1:
+        q[1:] = (cl[1:] / cl[:-1]) * (cu[:-1] / cu[1:])
     term = np.where(q > 1.0, 1.0 / q, q)
-    fr_sum = np.bincount(cp[1:][same], weights=term[same], minlength=m)
+    term[coffs[:-1][n_ul > 0]] = 0.0  # the first common peak of a pair has no left neighbour
+    fr_sum = _segment_sums(term, coffs)
     n_u = cnt.astype(np.float64)
+    n_ul = n_ul.astype(np.float64)
     fr = np.divide(fr_sum, n_ul - 1.0, out=np.zeros(m), where=n_ul >= 2)
     composite = (n_u * fd + n_ul * fr) / (n_u + n_ul)
     # float32 weights: round to 6 decimals so that a spectrum compared with itself reports exactly 1
@@ -301,12 +317,25 @@ class ReferenceSpectra:
         ids = np.zeros(len(order), dtype=np.int64) if ids is None else np.asarray(ids, dtype=np.int64)[order]
         return cls(packed, compound_rows[order], ids)
 
+    def _table(self) -> tuple[np.ndarray, np.ndarray]:
+        """First spectrum row and count per compound row (built once)."""
+        got = self.__dict__.get("_by_compound")
+        if got is None:
+            size = int(self.compound.max()) + 1 if len(self.compound) else 0
+            count = np.bincount(self.compound, minlength=size).astype(np.int64)
+            first = np.cumsum(count) - count
+            got = (first, count)
+            object.__setattr__(self, "_by_compound", got)
+        return got
+
     def rows_of(self, compound_rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """For each compound row asked: (index of the asking item, spectrum row), every spectrum of it."""
         compound_rows = np.asarray(compound_rows, dtype=np.int64)
-        lo = np.searchsorted(self.compound, compound_rows, side="left")
-        hi = np.searchsorted(self.compound, compound_rows, side="right")
-        cnt = hi - lo
+        first, count = self._table()
+        inside = (compound_rows >= 0) & (compound_rows < len(count))
+        safe = np.where(inside, compound_rows, 0)
+        lo = first[safe] if len(count) else np.zeros(len(safe), dtype=np.int64)
+        cnt = np.where(inside, count[safe], 0) if len(count) else np.zeros(len(safe), dtype=np.int64)
         item = np.repeat(np.arange(len(compound_rows), dtype=np.int64), cnt)
         offs = np.zeros(len(compound_rows) + 1, dtype=np.int64)
         np.cumsum(cnt, out=offs[1:])
@@ -315,8 +344,9 @@ class ReferenceSpectra:
 
     def has_spectrum(self, compound_rows: np.ndarray) -> np.ndarray:
         compound_rows = np.asarray(compound_rows, dtype=np.int64)
-        return np.searchsorted(self.compound, compound_rows, side="right") > np.searchsorted(
-            self.compound, compound_rows, side="left")
+        first, count = self._table()
+        inside = (compound_rows >= 0) & (compound_rows < len(count))
+        return inside & (count[np.where(inside, compound_rows, 0)] > 0 if len(count) else False)
 
 
 class SimilarityCache:
@@ -379,6 +409,11 @@ def best_similarity(unknown: SpectrumSet, refs: ReferenceSpectra, peak: np.ndarr
     if not len(item):
         return best, which
     sim = pair_similarity(unknown, refs.spectra, peak[sel][item], rows, lookup=lookup)
+    if len(item) == len(sel) and (not len(item) or np.all(item == np.arange(len(sel)))):  # one spectrum each
+        got = sel
+        best[got] = sim
+        which[got] = np.where(np.isnan(sim), -1, rows)
+        return best, which
     sim = np.where(np.isnan(sim), -1.0, sim)
     # maximum per asking item (items are grouped and ascending)
     starts = np.flatnonzero(np.r_[True, item[1:] != item[:-1]])
