@@ -350,30 +350,38 @@ class ReferenceSpectra:
 
 
 class SimilarityCache:
-    """Best similarities already computed, keyed by (original unknown row, compound row); sorted arrays."""
+    """Best similarities already computed, keyed by (original unknown row, compound row).
+
+    Kept as a few sorted blocks (one per batch added), so adding a batch sorts only the batch."""
 
     def __init__(self) -> None:
-        self.keys = np.zeros(0, dtype=np.int64)
-        self.sim = np.zeros(0)
-        self.which = np.zeros(0, dtype=np.int64)
+        self.blocks: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []  # (sorted keys, sim, which)
 
     @staticmethod
     def key(row: np.ndarray, compound: np.ndarray) -> np.ndarray:
         return np.asarray(row, dtype=np.int64) * (1 << 31) + np.asarray(compound, dtype=np.int64)
 
-    def find(self, keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """(position, found) of each key."""
-        i = np.clip(np.searchsorted(self.keys, keys), 0, max(len(self.keys) - 1, 0))
-        found = (self.keys[i] == keys) if len(self.keys) else np.zeros(len(keys), dtype=bool)
-        return i, found
+    def get(self, keys: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(found, similarity, spectrum row) of each key (NaN and -1 where not found)."""
+        found = np.zeros(len(keys), dtype=bool)
+        sim = np.full(len(keys), np.nan)
+        which = np.full(len(keys), -1, dtype=np.int64)
+        for bk, bs, bw in self.blocks:
+            todo = np.flatnonzero(~found)
+            if not len(todo):
+                break
+            i = np.clip(np.searchsorted(bk, keys[todo]), 0, len(bk) - 1)
+            hit = bk[i] == keys[todo]
+            at = todo[hit]
+            found[at] = True
+            sim[at] = bs[i[hit]]
+            which[at] = bw[i[hit]]
+        return found, sim, which
 
     def add(self, keys: np.ndarray, sim: np.ndarray, which: np.ndarray) -> None:
-        keys, first = np.unique(keys, return_index=True)
-        k = np.concatenate([self.keys, keys])
-        order = np.argsort(k, kind="stable")
-        self.keys = k[order]
-        self.sim = np.concatenate([self.sim, sim[first]])[order]
-        self.which = np.concatenate([self.which, which[first]])[order]
+        if len(keys):
+            keys, first = np.unique(keys, return_index=True)
+            self.blocks.append((keys, sim[first], which[first]))
 
 
 def best_similarity(unknown: SpectrumSet, refs: ReferenceSpectra, peak: np.ndarray, compound: np.ndarray,
@@ -389,9 +397,7 @@ def best_similarity(unknown: SpectrumSet, refs: ReferenceSpectra, peak: np.ndarr
     if cache is not None and len(peak):
         rows = unknown.origin[peak] if unknown.origin is not None else peak
         keys = SimilarityCache.key(rows, compound)
-        pos, found = cache.find(keys)
-        sim = np.where(found, cache.sim[pos] if len(cache.keys) else np.nan, np.nan)
-        which = np.where(found, cache.which[pos] if len(cache.keys) else -1, -1)
+        found, sim, which = cache.get(keys)
         todo = np.flatnonzero(~found)
         if len(todo):
             plain = SpectrumSet(unknown.start, unknown.mz, unknown.w)
