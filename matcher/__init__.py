@@ -42,6 +42,8 @@ _LAZY = {
     "screen": "matcher.api",
     "query": "matcher.api",
     "evaluate": "matcher.api",
+    "spectrum_similarity": "matcher.api",
+    "spectrum_similarity_matrix": "matcher.api",
     "Evaluation": "matcher.api",
     "open_review": "matcher.api",
     "serve_review": "matcher.api",

@@ -135,6 +135,24 @@ class Library:
 
         return check(self.db, strict=strict)
 
+    def import_spectra(self, path: str | os.PathLike, *, source: str | None = None, new: bool = False,
+                       analyst: str | None = None):
+        """Import reference mass spectra from a JCAMP-DX file (``matcher library import-spectra``); all or nothing.
+
+        Compounds are found by ``##TITLE``/``##NAMES``, then CAS; ``source`` records where the spectra come from
+        (own standards, a licensed collection); ``new=True`` creates compounds whose names are close to existing
+        ones instead of refusing. Returns a :class:`~matcher.store.spectra.SpectraImport`.
+        """
+        from matcher.store.spectra import import_spectra
+
+        return import_spectra(self.db, os.fspath(path), source=source, new=new, who=analyst)
+
+    def export_spectra(self, path: str | os.PathLike | None = None, *, name: str | None = None) -> str:
+        """The reference spectra (all, or one compound's) as JCAMP-DX text, also written to ``path`` when given."""
+        from matcher.store.spectra import export_spectra
+
+        return export_spectra(self.db, None if path is None else os.fspath(path), name=name)
+
     def export(self, path: str | os.PathLike | None = None) -> str:
         """The library as library-CSV text, also written to ``path`` (``.csv`` or ``.xlsx``) when given."""
         from matcher.store.library_io import export_library
@@ -335,7 +353,7 @@ def screen(peaks: Any, *, phase_class: str | Sequence[str], calibration: Any = N
            window_percent: float | None = None, top: int | None = None, fallback: bool = False,
            homologues: bool = False, adaptive: bool = False, anchors: str | os.PathLike | None = None,
            index_scatter: float | None = None, crowding: str | float | None = None, split_peaks: bool = False,
-           labels: Sequence[str] | None = None, sample: str | None = None, analyst: str | None = None,
+           labels: Sequence[str] | None = None, spectra: Any = None, sample: str | None = None, analyst: str | None = None,
            instrument: str | None = None, column: str | None = None,
            progress: Callable[[int], None] | None = None, min_snr: float | None = None,
            output: str | os.PathLike | None = None, report: str | os.PathLike | None = None) -> "ScreenResult":
@@ -359,6 +377,10 @@ def screen(peaks: Any, *, phase_class: str | Sequence[str], calibration: Any = N
     E2077 netCDF or mzML) stands for a peak table: its peaks are detected
     (``min_snr``, see :func:`detect_peaks`) and their spectra and molecular-ion
     hints go into the screen; ``ladder`` may be the ladder's run file.
+    ``spectra``: one JCAMP-DX file per run whose blocks are titled by peak id (a
+    table's ``spectrum`` column is read without it); compared with the library's
+    reference spectra, they add ``spectrum_similarity`` and the
+    ``evidence_spectrum`` evidence.
 
     ``output`` writes the shortlist (``.csv`` with its provenance sidecar, ``.json``
     or ``.xlsx``) and ``report`` the HTML report, both checked before any work
@@ -377,7 +399,7 @@ def screen(peaks: Any, *, phase_class: str | Sequence[str], calibration: Any = N
                        adaptive=adaptive, anchors=None if anchors is None else os.fspath(anchors),
                        index_scatter=index_scatter, crowding=crowding, split_peaks=split_peaks, labels=labels,
                        record={"sample": sample, "analyst": analyst, "instrument": instrument, "column": column},
-                       progress=progress, min_snr=min_snr, sink=sink)
+                       spectra=spectra, progress=progress, min_snr=min_snr, sink=sink)
 
     if output is None and report is None:
         return run()
@@ -398,7 +420,8 @@ def screen(peaks: Any, *, phase_class: str | Sequence[str], calibration: Any = N
     src = _source(library)
     guard_outputs(outs + [("--report", report)], db=src["db"] if "db" in src else False,
                   inputs=extra("the peak table", listed) + extra("the calibration", calibration)
-                  + extra("the ladder", ladder) + extra("the anchors file", anchors))
+                  + extra("the ladder", ladder) + extra("the anchors file", anchors)
+                  + extra("the spectra file", spectra))
     if csv_out:
         from matcher.report.summary import add_summaries, summarise_table
 
@@ -429,11 +452,13 @@ def query(ri: float, phase_class: str, *, library: Any = None, window: float | N
           window_percent: float | None = None, mol_ion: float | None = None, ions: Any = None,
           hit: str | None = None, hit_match: float | None = None, top: int | None = None,
           fallback: bool = False, homologues: bool = False, index_scatter: float | None = None,
-          crowding: str | float | None = None) -> "QueryResult":
+          crowding: str | float | None = None, spectrum: Any = None) -> "QueryResult":
     """Ranked candidates for one retention index; returns a :class:`~matcher.identify.query.QueryResult`.
 
     ``ions`` are key ions (whole m/z: a list or text such as ``"93 136"``);
     ``hit`` and ``hit_match`` (0-100) are your spectral search's proposal.
+    ``spectrum`` is the peak's mass spectrum: a JCAMP-DX file with one block,
+    or ``(mz, intensity)`` arrays.
     ``result.candidates`` lists records in rank order, ``result.table`` the
     same as a DataFrame, ``result.to_dict()`` is the ``matcher query --json``
     document.
@@ -442,7 +467,7 @@ def query(ri: float, phase_class: str, *, library: Any = None, window: float | N
 
     return _query(ri, phase_class, **_source(library), window=window, window_percent=window_percent,
                   mol_ion=mol_ion, ions=ions, hit=hit, hit_match=hit_match, top=top, fallback=fallback,
-                  homologues=homologues, index_scatter=index_scatter, crowding=crowding)
+                  homologues=homologues, index_scatter=index_scatter, crowding=crowding, spectrum=spectrum)
 
 
 @dataclass
@@ -459,6 +484,8 @@ class Evaluation:
     queries: dict[str, int]
     classes: dict[str, dict] = field(default_factory=dict)
     library: dict[str, Any] = field(default_factory=dict)
+    #: the same rates with index and spectrum (None when the library holds no spectra), see matcher.identify.evaluation
+    with_spectra: dict[str, Any] | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """The document ``matcher evaluate --json`` prints."""
@@ -519,4 +546,22 @@ def _tiny_snapshot():
 
 
 __all__ = ["Library", "open_library", "calibrate", "read_peaks", "detect_peaks", "screen", "query", "evaluate",
-           "Evaluation", "open_review", "serve_review"]
+           "Evaluation", "open_review", "serve_review", "spectrum_similarity", "spectrum_similarity_matrix"]
+
+
+def spectrum_similarity(a: Any, b: Any) -> float:
+    """Stein & Scott composite similarity (0-1, 1 = identical) of two mass spectra in the shared form.
+
+    Each spectrum is ``(mz, intensity)`` arrays (as in ``PeakTable.spectra``; see :mod:`matcher.chem.spectra`);
+    NaN when either is missing. For many pairs at once use :func:`spectrum_similarity_matrix`.
+    """
+    from matcher.chem.spectra import similarity
+
+    return similarity(a, b)
+
+
+def spectrum_similarity_matrix(unknowns: Sequence, references: Sequence):
+    """Similarity of every unknown spectrum with every reference spectrum (a NumPy array, vectorised)."""
+    from matcher.chem.spectra import similarity_matrix
+
+    return similarity_matrix(unknowns, references)

@@ -15,10 +15,11 @@ shows all runs as one DataFrame (:attr:`ScreenResult.table`).
 
 >>> row = {"rank": 1, "name": "limonene", "cas": "", "formula": "C10H16", "nominal_mass": 136.0,
 ...        "library_ri": 1030.0, "library_spread": 1.5, "library_observations": 4, "delta_ri": 1.0, "score": 2.5,
-...        "probability": 0.8, "evidence_index": 1.2, "evidence_mol_ion": 1.3, "evidence_ions": 0.0, "evidence_hit": 0.0}
+...        "probability": 0.8, "evidence_index": 1.2, "evidence_mol_ion": 1.3, "evidence_ions": 0.0, "evidence_hit": 0.0,
+...        "evidence_spectrum": 2.1, "spectrum_similarity": 0.93}
 >>> rec = candidate_record(row.get, ["in-window"])
->>> rec["cas"], rec["nominal_mass"], rec["flags"], rec["evidence"]
-(None, 136, ['in-window'], {'index': 1.2, 'mol_ion': 1.3, 'ions': 0.0, 'hit': 0.0})
+>>> rec["cas"], rec["nominal_mass"], rec["spectrum_similarity"], rec["flags"], rec["evidence"]
+(None, 136, 0.93, ['in-window'], {'index': 1.2, 'mol_ion': 1.3, 'ions': 0.0, 'hit': 0.0, 'spectrum': 2.1})
 
 Evidence columns hold the natural-log likelihood ratio each hint contributes
 (0 where the hint was absent), so a reader can see why a candidate ranks
@@ -57,12 +58,15 @@ DETAIL_COLUMNS: tuple[str, ...] = (
     "evidence_mol_ion",       # log LR of the molecular-ion hint
     "evidence_ions",          # log LR of the key-ion hint
     "evidence_hit",           # log LR of the spectral-search name hint
+    "evidence_spectrum",      # log LR of the mass-spectral similarity (matcher.identify.spectral_evidence)
+    "spectrum_similarity",  # Stein & Scott composite similarity 0-1 of the peak's and the candidate's spectra
 )
 
 
 #: The evidence columns (natural-log likelihood ratios against not-in-library); a
 #: candidate record's ``evidence`` object holds them without the ``evidence_`` prefix.
-EVIDENCE_COLUMNS: tuple[str, ...] = ("evidence_index", "evidence_mol_ion", "evidence_ions", "evidence_hit")
+EVIDENCE_COLUMNS: tuple[str, ...] = ("evidence_index", "evidence_mol_ion", "evidence_ions", "evidence_hit",
+                                     "evidence_spectrum")
 
 #: Prefix of the evidence columns; a candidate record's ``evidence`` object holds them without it.
 EVIDENCE_PREFIX = "evidence_"
@@ -79,7 +83,7 @@ def evidence_key(column: str) -> str:
 
 #: Keys of one candidate record (query and screen JSON), in order; then ``flags`` and ``evidence``.
 CANDIDATE_KEYS: tuple[str, ...] = ("rank", "name", "cas", "formula", "nominal_mass", "library_ri", "library_spread",
-                                   "library_observations", "delta_ri", "score", "probability")
+                                   "library_observations", "delta_ri", "score", "probability", "spectrum_similarity")
 
 #: Keys of one peak in the screen JSON, in order; then ``flags`` and ``candidates``.
 PEAK_KEYS: tuple[str, ...] = ("peak", "rt", "ri", "ri_measured", "class", "area", "area_percent", "mol_ion", "hit",
@@ -162,6 +166,9 @@ class RunResult:
     calibration: dict[str, Any] | None = None   # the calibration document used (None when the table had ri)
     correction: dict[str, Any] | None = None    # adaptive fit, see matcher.identify.adaptive
     index_scatter: float | None = None          # index scatter assumed for this run
+    #: per peak id needing review, the spectra the report draws: {"unknown": (mz, y), "reference": (mz, y),
+    #: "name": candidate, "similarity": s}; empty when the run had no spectra
+    spectra: dict[str, Any] = field(default_factory=dict)
     run_model: dict[str, Any] = field(default_factory=dict)  # fitted in-library share and scatter, see matcher.identify.run_model
     notices: list[str] = field(default_factory=list)
     peak_count: int = 0

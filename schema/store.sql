@@ -1,6 +1,6 @@
 -- The house-library store of matcher: generated from matcher/store/models.py by
 -- matcher.store.database.ddl(); do not edit by hand (tests/test_store_schema.py checks it).
--- Schema version 1.
+-- Schema version 2.
 
 CREATE TABLE audit_log (
 	id INTEGER NOT NULL,
@@ -93,6 +93,26 @@ CREATE TABLE observations (
 
 CREATE INDEX ix_observations_active_class ON observations (active, phase_class);
 CREATE INDEX ix_observations_compound_id ON observations (compound_id);
+
+CREATE TABLE spectra (
+	id INTEGER NOT NULL,
+	compound_id INTEGER NOT NULL,
+	title VARCHAR(300) NOT NULL,
+	peaks TEXT NOT NULL,
+	n_peaks INTEGER NOT NULL,
+	source TEXT,
+	origin TEXT,
+	owner TEXT,
+	records TEXT,
+	file TEXT,
+	analyst VARCHAR(100),
+	created_at VARCHAR(32) NOT NULL,
+	PRIMARY KEY (id),
+	CONSTRAINT ck_spectra_n_peaks CHECK (n_peaks >= 1),
+	FOREIGN KEY(compound_id) REFERENCES compounds (id) ON DELETE CASCADE
+);
+
+CREATE INDEX ix_spectra_compound_id ON spectra (compound_id);
 
 CREATE TABLE synonyms (
 	id INTEGER NOT NULL,

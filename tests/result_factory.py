@@ -29,7 +29,7 @@ HOSTILE_NAMES = (
 
 def _row(run, peak, rt, ri, cls, rank, name, cas, lib_ri, score, prob, flags, nil,
          formula="", mass=None, sd=None, n=None, mol_ion=None, hit="", hit_match=None,
-         ev=(0.0, 0.0, 0.0, 0.0), ri_measured=None):
+         ev=(0.0, 0.0, 0.0, 0.0), ri_measured=None, ev_spectrum=0.0, spectrum_similarity=None):
     delta = (ri - lib_ri) if lib_ri is not None else None
     return {
         "peak": peak, "rt": rt, "ri": ri, "class": cls, "rank": rank, "name": name,
@@ -39,7 +39,8 @@ def _row(run, peak, rt, ri, cls, rank, name, cas, lib_ri, score, prob, flags, ni
         "not_in_library": nil, "formula": formula, "nominal_mass": mass,
         "library_spread": sd, "library_observations": n, "mol_ion": mol_ion, "hit": hit,
         "hit_match": hit_match, "evidence_index": ev[0], "evidence_mol_ion": ev[1],
-        "evidence_ions": ev[2], "evidence_hit": ev[3],
+        "evidence_ions": ev[2], "evidence_hit": ev[3], "evidence_spectrum": ev_spectrum,
+        "spectrum_similarity": spectrum_similarity,
     }
 
 
@@ -69,7 +70,8 @@ def _table(rows):
         frame[col] = frame[col].astype("Int64")
     for col in ("rt", "ri", "library_ri", "delta_ri", "score", "probability", "ri_measured",
                 "not_in_library", "library_spread", "mol_ion", "hit_match",
-                "evidence_index", "evidence_mol_ion", "evidence_ions", "evidence_hit"):
+                "evidence_index", "evidence_mol_ion", "evidence_ions", "evidence_hit", "evidence_spectrum",
+                "spectrum_similarity"):
         frame[col] = frame[col].astype(float)
     return frame
 

@@ -537,7 +537,9 @@ def test_no_corpus_file_reaches_the_generic_handler(lab, tmp_path):
                      ["library", "import", f, "--dry-run", "--db", db],
                      ["ri", "--calibration", f, "5.5"],
                      ["confirm", f, "--peak", "1", "--name", "limonene", "--db", db],
-                     ["review", f, "--export", tmp_path / "review.csv"]):
+                     ["review", f, "--export", tmp_path / "review.csv"],
+                     ["library", "import-spectra", f, "--db", db],
+                     ["query", "1000", "--class", "nonpolar", "--spectrum", f, "--db", db]):
             r = run_in(args)
             assert "unexpected problem" not in r.err and "Traceback" not in r.err, (args, r.err)
             assert r.code in (0, 2), (args, r.code, r.err)

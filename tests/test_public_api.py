@@ -135,7 +135,7 @@ def test_query_result_dict_table_and_schema(demo_lib):
     jsonschema.Draft202012Validator(schemas["query-output.schema.json"], registry=registry).validate(doc)
     assert len(res.candidates) == 3 and list(res.table["rank"]) == [1, 2, 3]
     assert res.best is res.candidates[0] and res.best["nominal_mass"] == 136   # C10H16 → 136, fact of the trade
-    assert set(res.best["evidence"]) == {"index", "mol_ion", "ions", "hit"}
+    assert set(res.best["evidence"]) == {"index", "mol_ion", "ions", "hit", "spectrum"}
     full = matcher.query(1031, "slightly-polar", mol_ion=136, library=demo_lib)
     total = sum(c["probability"] for c in full.candidates) + full.not_in_library
     assert total == pytest.approx(1.0, abs=1e-9)

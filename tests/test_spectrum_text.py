@@ -47,3 +47,29 @@ def test_peak_table_without_spectra_has_none(tmp_path):
     f = tmp_path / "p.csv"
     f.write_text("peak,rt\n1,5.0\n")
     assert read_peaks(str(f)).spectra == ()
+
+
+@given(st.lists(st.one_of(
+    st.just(""), st.just("93:45 68:100, 41:12"), st.just("93"), st.just("0:5"), st.just("93:1 93:2"), st.just("1:2:3 4:5"),
+    st.just("93 :45"), st.just("41:1e400"),
+    st.dictionaries(st.integers(1, 5000), st.floats(0, 1e9, allow_nan=False), min_size=1, max_size=20).map(
+        lambda d: " ".join(f"{k}:{v!r}" for k, v in d.items()))), max_size=12))
+def test_column_parse_agrees_with_the_cell_parse(cells):
+    """The vectorised column reading gives exactly what the one-cell reading gives, or the same refusal."""
+    from matcher.io.spectrum_text import parse_spectrum_cells
+
+    expected, error = [], None
+    for c in cells:
+        try:
+            expected.append(parse_spectrum_text(c))
+        except ValueError as exc:
+            error = error or str(exc)
+    if error:
+        with pytest.raises(ValueError):
+            parse_spectrum_cells(cells)
+        return
+    got = parse_spectrum_cells(cells)
+    for a, b in zip(got, expected):
+        assert (a is None) == (b is None)
+        if a is not None:
+            assert a[0].tolist() == b[0].tolist() and a[1].tolist() == b[1].tolist()

@@ -218,7 +218,7 @@ def test_two_processes_creating_the_schema_at_once(pg_database):
     outs = [p.communicate(timeout=120) for p in procs]
     assert all(p.returncode == 0 for p in procs), [e for _, e in outs]
     with dbm.transaction(url, write=False) as s:
-        assert s.scalar(select(func.count()).select_from(SchemaVersion)) == 1
+        assert s.scalar(select(func.count()).select_from(SchemaVersion)) == len(dbm.MIGRATIONS)  # each version once
         names = list(s.scalars(select(Phase.name)))
         assert len(names) == len(set(names)) > 10  # the phase catalog seeded once
 

@@ -151,7 +151,8 @@ def test_json_validates_and_nests_per_peak(tmp_path):
     assert [p["peak"] for p in run1["peaks"]] == ["P1", "P2", "P3", "P4", "P5"]
     p1 = run1["peaks"][0]
     assert [c["name"] for c in p1["candidates"]] == ["alpha-pinene", "alpha-thujene"]
-    assert p1["candidates"][0]["evidence"] == {"index": 1.35, "mol_ion": 0.9, "ions": 0.4, "hit": 1.1}
+    assert p1["candidates"][0]["evidence"] == {"index": 1.35, "mol_ion": 0.9, "ions": 0.4, "hit": 1.1, "spectrum": 0.0}
+    assert p1["candidates"][0]["spectrum_similarity"] is None  # no spectra in this run
     total = sum(c["probability"] for c in p1["candidates"]) + p1["not_in_library"]
     assert total == pytest.approx(1.0)
     p4 = run1["peaks"][3]

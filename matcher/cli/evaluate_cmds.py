@@ -81,6 +81,19 @@ def render(report: dict) -> str:
             out.append(format_table(["compound", "index", "compound", "index", "gap", "mass"],
                                     [[p["a"], p["ri_a"], p["b"], p["ri_b"], p["gap"], p["nominal_mass"]] for p in pairs[:10]],
                                     align="lrlrrr"))
+    spec = report.get("with_spectra")
+    if spec:
+        q = spec["queries_with_spectrum"]
+        out.append("\nwith spectra (index and spectrum, no molecular ion; a held-out replicate spectrum per query):")
+        out.append(format_table(["", "first", "in top 3", "calibration error", "absent detected"],
+                                [["index only", _pct(report.get("top1")), _pct(report.get("top3")),
+                                  "-" if report.get("ece") is None else f"{report['ece']:.3f}",
+                                  _pct(report.get("not_in_library_detection"))],
+                                 ["with spectra", _pct(spec.get("top1")), _pct(spec.get("top3")),
+                                  "-" if spec.get("ece") is None else f"{spec['ece']:.3f}",
+                                  _pct(spec.get("not_in_library_detection"))]], align="lrrrr"))
+        out.append(f"queries carrying a spectrum: {q['leave_one_out']} held out, {q['removed']} removed "
+                   "(a compound with a single spectrum is queried without one)")
     out.append(f"\nnoise added: {report['noise']:g} index units; queries: {report['queries']['leave_one_out']} held out, "
                f"{report['queries']['removed']} removed")
     return "\n".join(out)

@@ -28,6 +28,13 @@ EX_IMPORT = (
     "    matcher library import house.xlsx --replace --db lab.sqlite"
 )
 EX_EXPORT = "Example:\n\n    matcher library export -o house-library.csv --db lab.sqlite\n\n    matcher library export --db lab.sqlite > copy.csv"
+EX_SPECTRA = (
+    "Example: reference spectra of the lab's own standards (JCAMP-DX, blocks titled by compound name)\n\n"
+    "    matcher library import-spectra standards-2024.jdx --source \"own standards, Agilent 5977, 2024\" --db lab.sqlite\n\n"
+    "    matcher library import-spectra collection.jdx --new --db lab.sqlite"
+)
+EX_EXPORT_SPECTRA = ("Example:\n\n    matcher library export-spectra -o spectra.jdx --db lab.sqlite\n\n"
+                     "    matcher library export-spectra --name limonene --db lab.sqlite > limonene.jdx")
 EX_FIND = "Example: a typo and a spelling variant still find the compound\n\n    matcher library find linalol --db lab.sqlite\n\n    matcher library find \"1,8 cineol\" --limit 3 --json"
 EX_SHOW = "Example:\n\n    matcher library show \"alpha-pinene\" --db lab.sqlite\n\n    matcher library show 80-56-8 --json"
 EX_STATS = "Example:\n\n    matcher library stats --db lab.sqlite"
@@ -69,6 +76,39 @@ def register(app: typer.Typer) -> None:
         from matcher.api import open_library
 
         text = open_library(db).export(None if output == "-" else output)
+        if output is None or output == "-":
+            emit_data(text)
+        else:
+            note(f"wrote {output}")
+
+    @lib.command("import-spectra", help="Import reference mass spectra from a JCAMP-DX file (PEAK TABLE or XYDATA (XY..XY) blocks); "
+                 "compounds are found by title, names, then CAS. A damaged block refuses the whole file; nothing is written.",
+                 epilog=EX_SPECTRA)
+    def import_spectra_cmd(
+        file: Annotated[str, typer.Argument(metavar="FILE.jdx", help="JCAMP-DX file, one block per spectrum (concatenated or linked).")],
+        source: Annotated[Optional[str], typer.Option("--source", metavar="TEXT", help="Where the spectra come from (own standards, a collection the lab is licensed to use); kept with each spectrum.")] = None,
+        new: Annotated[bool, typer.Option("--new", help="Create a new compound for a name that is not in the library even when a library name is close to it.")] = False,
+        analyst: Annotated[Optional[str], typer.Option("--analyst", help="Who is importing (for the audit log; default: your login).")] = None,
+        db: DbOption = None,
+    ) -> None:
+        from matcher.api import open_library
+
+        say(open_library(db).import_spectra(file, source=source, new=new, analyst=analyst).summary())
+
+    @lib.command("export-spectra", help="Export the reference spectra as JCAMP-DX (one block each, with their provenance); "
+                 "re-importing the file is lossless.", epilog=EX_EXPORT_SPECTRA)
+    def export_spectra_cmd(
+        output: Annotated[Optional[str], typer.Option("-o", "--output", help="File to write (.jdx); default: standard output.")] = None,
+        name: Annotated[Optional[str], typer.Option("--name", metavar="NAME", help="Only this compound's spectra (name, synonym or CAS).")] = None,
+        db: DbOption = None,
+    ) -> None:
+        from matcher.api import open_library
+
+        if output not in (None, "-"):
+            from matcher.io.atomic import guard_output
+
+            guard_output(output, db=db)
+        text = open_library(db).export_spectra(None if output in (None, "-") else output, name=name)
         if output is None or output == "-":
             emit_data(text)
         else:
@@ -164,4 +204,11 @@ def render_show(doc: dict) -> str:
             for o in doc["observations"]]
     lines.append(format_table(["id", "class", "index", "sd", "n", "mode", "phase", "source", "analyst", "date", "status"], rows,
                               align="rlrrrllllll"))
+    if doc.get("spectra"):
+        lines.append("")
+        lines.append("reference spectra:")
+        lines.append(format_table(["id", "title", "peaks", "base peak", "source", "origin", "file", "added"],
+                                  [[s["id"], s["title"], s["peaks"], "" if s["base_peak"] is None else f"{s['base_peak']:g}",
+                                    s["source"], s["origin"], s["file"], s["added"]] for s in doc["spectra"]],
+                                  align="rlrrllll"))
     return "\n".join(lines)

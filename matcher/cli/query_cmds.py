@@ -16,6 +16,10 @@ Example: a peak at index 1031 on a 5 % phenyl column with molecular ion 136
     matcher query 1031 --class slightly-polar --mol-ion 136
 
     matcher query 1031 --class slightly-polar --ions "68 93 136" --hit limonene --hit-match 88 --json
+
+  With the peak's mass spectrum (a JCAMP-DX file of one block), compared with the library's spectra:
+
+    matcher query 1031 --class slightly-polar --spectrum peak-17.jdx
 """
 
 
@@ -42,6 +46,7 @@ def register(app: typer.Typer) -> None:
         old_sd: Annotated[Optional[float], typer.Option("--sd", hidden=True, metavar="UNITS")] = None,
         old_hit: Annotated[Optional[float], typer.Option("--hit-score", hidden=True, metavar="0-100")] = None,
         crowding: Annotated[Optional[str], typer.Option("--crowding", metavar="TYPE|N", help="How crowded the sample is with compounds not in the library: sparse, moderate (default), crowded, dense, or unlisted peaks per 100 index units.")] = None,
+        spectrum: Annotated[Optional[str], typer.Option("--spectrum", metavar="ONE.jdx", help="The peak's mass spectrum: a JCAMP-DX file with one block; compared with the library's reference spectra.")] = None,
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
@@ -52,7 +57,7 @@ def register(app: typer.Typer) -> None:
 
         result = query(ri, phase_class, library=db, window=window, window_percent=window_percent, mol_ion=mol_ion,
                        ions=ions or None, hit=hit, hit_match=hit_match, top=top, fallback=fallback,
-                       homologues=homologues, index_scatter=sd, crowding=crowding)
+                       homologues=homologues, index_scatter=sd, crowding=crowding, spectrum=spectrum)
         doc = result.to_dict()
         if as_json:
             say(json.dumps(doc, indent=2, ensure_ascii=False))
@@ -69,9 +74,12 @@ def render(doc: dict) -> str:
     if not doc["candidates"]:
         body = "no library entry inside the window (not in library: 1.00)"
     else:
-        rows = [[c["rank"], c["name"], f"{c['library_ri']:.1f}", f"{c['delta_ri']:+.1f}", f"{c['probability']:.3f}",
-                 ";".join(c["flags"])] for c in doc["candidates"]]
-        body = format_table(["rank", "name", "library RI", "ΔRI", "probability", "flags"], rows, align="rlrrrl")
+        spectral = any(c.get("spectrum_similarity") is not None for c in doc["candidates"])
+        rows = [[c["rank"], c["name"], f"{c['library_ri']:.1f}", f"{c['delta_ri']:+.1f}", f"{c['probability']:.3f}"]
+                + ([("-" if c.get("spectrum_similarity") is None else f"{c['spectrum_similarity']:.3f}")] if spectral else [])
+                + [";".join(c["flags"])] for c in doc["candidates"]]
+        heads = ["rank", "name", "library RI", "ΔRI", "probability"] + (["spectrum"] if spectral else []) + ["flags"]
+        body = format_table(heads, rows, align="rlrrr" + ("r" if spectral else "") + "l")
         body += f"\nnot in library: {doc['not_in_library']:.3f}"
     notes = "".join(f"\nnote: {n}" for n in doc["notes"])
     return f"{head}\n\n{body}{notes}\n\n{doc['caution']}"

@@ -35,6 +35,10 @@ Examples
 
     matcher calibrate alkanes_0514.cdf -o cal.json
     matcher screen run-042.cdf --calibration cal.json --class nonpolar -o shortlist.csv --report run-042.html
+
+  A run with its peaks' mass spectra (JCAMP-DX blocks titled by peak id), compared with the library's spectra:
+
+    matcher screen run-042.csv --ladder alkanes.csv --spectra run-042.jdx --class slightly-polar -o shortlist.csv
 """
 
 
@@ -71,6 +75,7 @@ def register(app: typer.Typer) -> None:
         crowding: Annotated[Optional[str], typer.Option("--crowding", metavar="TYPE|N", help="How crowded the sample is with compounds not in the library, as a prior: sparse, moderate (default), crowded, dense, or unlisted peaks per 100 index units. The run's own peaks refine it.")] = None,
         split_peaks: Annotated[bool, typer.Option("--split-peaks", help="Let one compound explain several peaks (split or overloaded peaks); by default a compound explains at most one peak of a run.")] = False,
         min_snr: Annotated[Optional[float], typer.Option("--min-snr", metavar="K", help="Run files: a peak needs a prominence of K x the run's noise (default 5).")] = None,
+        spectra: Annotated[Optional[List[str]], typer.Option("--spectra", metavar="RUN.jdx", help="The peaks' mass spectra: a JCAMP-DX file per run (in the order of the runs), each block titled by its peak id. A 'spectrum' column of the peak table is read without it.")] = None,
         quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bar and no summary.")] = False,
         sample: Annotated[Optional[str], typer.Option("--sample", metavar="SAMPLE", help="Sample or lot, for the QC record (default: from the peak table's preamble).")] = None,
         analyst: Annotated[Optional[str], typer.Option("--analyst", metavar="WHO", help="Who ran and reviewed the screen, for the QC record.")] = None,
@@ -108,7 +113,7 @@ def register(app: typer.Typer) -> None:
                             window=window, window_percent=window_percent, top=top, fallback=fallback,
                             homologues=homologues, adaptive=adaptive, anchors=anchors, index_scatter=sd,
                             crowding=crowding, split_peaks=split_peaks, sample=sample, analyst=analyst,
-                            instrument=instrument, column=column, progress=progress, min_snr=min_snr,
+                            instrument=instrument, column=column, spectra=spectra or None, progress=progress, min_snr=min_snr,
                             output=out, report=report)
         finally:
             if bar is not None:

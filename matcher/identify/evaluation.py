@@ -24,7 +24,15 @@
   of query: the mean gap, in ten equal bins, between the stated top
   probability and the observed hit rate;
 * **confusable pairs** – entries inside each other's window with the same
-  nominal mass: pairs that need a second column or an authentic standard.
+  nominal mass: pairs that need a second column or an authentic standard;
+* **with spectra** (when the library holds reference spectra): the same
+  queries scored with index and spectrum (no molecular ion). A leave-one-out
+  query of a compound with two or more reference spectra carries one of them,
+  held out of the library for that query (compared only with the compound's
+  other spectra and with other compounds'); a compound with a single spectrum
+  is queried without one (comparing it with itself would prove nothing). A
+  removed compound's query carries its first spectrum. The likelihood-ratio
+  model is learned from the whole library's spectra, held-out ones included.
 
 All queries of a class are scored in one vectorised pass.
 
@@ -64,7 +72,23 @@ def _ece(prob: np.ndarray, correct: np.ndarray, bins: int = 10) -> float:
     return float(total)
 
 
-def _score_queries(entries: ClassEntries, compounds, bg, model, x, own, replace_ri, replace_sd, w, mol_ion=None):
+def _held_out_similarity(refs, held: np.ndarray, peak: np.ndarray, compound: np.ndarray) -> np.ndarray:
+    """Per pair: best similarity of the query's held-out spectrum (``held[peak]``, -1 none) with the
+    compound's other reference spectra (NaN where nothing is compared)."""
+    from matcher.chem.spectra import pair_similarity
+
+    best = np.full(len(peak), np.nan)
+    item, rows = refs.rows_of(compound)
+    q = held[peak[item]]
+    ok = (q >= 0) & (rows != q)
+    if ok.any():
+        sim = pair_similarity(refs.spectra, refs.spectra, q[ok], rows[ok])
+        np.fmax.at(best, item[ok], sim)
+    return best
+
+
+def _score_queries(entries: ClassEntries, compounds, bg, model, x, own, replace_ri, replace_sd, w, mol_ion=None,
+                   spectra=None):
     """Score queries whose own compound's entry is replaced (LOO) or removed (NaN replacement)."""
     m = len(entries)
     base = window_pairs(entries.ri, x, w)
@@ -87,6 +111,11 @@ def _score_queries(entries: ClassEntries, compounds, bg, model, x, own, replace_
         np.concatenate([entries.predicted, np.zeros(len(x), dtype=bool)]),
     )
     hints = None if mol_ion is None else PeakHints(mol_ion)
+    if spectra is not None:  # (references, held-out spectrum row per query, likelihood-ratio model)
+        refs, held, smodel = spectra
+        hints = PeakHints(np.full(len(x), np.nan), spectra=refs.spectra.take(held), references=refs,
+                          spectrum_model=smodel,
+                          spectrum_similarity=_held_out_similarity(refs, held, pairs.peak, ext.compound[pairs.entry]))
     sc = score_pairs(pairs, x, ext, compounds, bg, model, hints)
     sc.probability, sc.not_in_library = softmax_with_null(sc.logw, pairs.peak, len(x))
     return pairs, sc, ext
@@ -148,13 +177,13 @@ def evaluate_class(snapshot: LibrarySnapshot, phase_class: str, *, noise: float 
     w_rm = half_widths(x_rm, phase_class, window)
     n_loo = len(loo)
 
-    def metrics(mass_loo, mass_rm) -> dict:
-        """Rates for one way of querying (index only, or index plus molecular ion)."""
-        pairs, sc, _ = _score_queries(entries, comps, bg, model, x, own, new_ri, new_sd, w, mass_loo)
+    def metrics(mass_loo, mass_rm, spec_loo=None, spec_rm=None) -> dict:
+        """Rates for one way of querying (index only, index plus molecular ion, index plus spectrum)."""
+        pairs, sc, _ = _score_queries(entries, comps, bg, model, x, own, new_ri, new_sd, w, mass_loo, spec_loo)
         rank, top_loo, hit_loo = _ranks(pairs, sc, pairs.entry >= len(entries), n_loo)
         # removal: each compound's centre queried with the compound gone
         p_rm, s_rm, _ = _score_queries(entries, comps, bg, model, x_rm, own_rm, np.full(k_rm, np.nan),
-                                       np.full(k_rm, np.nan), w_rm, mass_rm)
+                                       np.full(k_rm, np.nan), w_rm, mass_rm, spec_rm)
         top_rm = np.zeros(k_rm)
         if len(s_rm.probability):
             np.maximum.at(top_rm, p_rm.peak, s_rm.probability)
@@ -173,6 +202,28 @@ def evaluate_class(snapshot: LibrarySnapshot, phase_class: str, *, noise: float 
     out.update(metrics(None, None))
     with_ion = metrics(comps.nominal_mass[own], comps.nominal_mass[own_rm])
     out["with_mol_ion"] = {k: v for k, v in with_ion.items() if k != "coverage"}
+    refs = snapshot.spectra
+    if refs is not None and len(refs):
+        from matcher.identify.spectral_evidence import calibrate_spectra
+
+        smodel = calibrate_spectra(refs, comps.nominal_mass)
+        first = np.full(len(comps), -1, dtype=np.int64)
+        count = np.bincount(refs.compound, minlength=len(comps))
+        starts = np.flatnonzero(np.r_[True, refs.compound[1:] != refs.compound[:-1]])
+        first[refs.compound[starts]] = starts
+        # leave one out: the k-th query of a compound holds out its k-th spectrum (cycling), when it has two or more
+        k_of = np.zeros(len(loo), dtype=np.int64)
+        seen: dict[int, int] = {}
+        for j, c in enumerate(own):
+            k_of[j] = seen.get(int(c), 0)
+            seen[int(c)] = k_of[j] + 1
+        many = count[own] >= 2
+        held_loo = np.where(many, first[own] + k_of % np.maximum(count[own], 1), -1)
+        held_rm = first[own_rm]
+        with_spec = metrics(None, None, (refs, held_loo, smodel), (refs, held_rm, smodel))
+        out["with_spectra"] = {k: v for k, v in with_spec.items() if k != "coverage"}
+        out["with_spectra"]["queries_with_spectrum"] = {"leave_one_out": int(many.sum()), "removed": int((held_rm >= 0).sum())}
+        out["with_spectra"]["spectrum_model"] = smodel.describe()
     out["confusable_pairs"] = confusable_pairs(entries, comps, window)
     return out
 
@@ -215,6 +266,24 @@ def evaluate(snapshot: LibrarySnapshot, phase_class: str | None = None, *, noise
                 den += q
         return round(num / den, 4) if den else None
 
+    def pooled_in(block: str, key: str, kind: str = "leave_one_out"):
+        num = den = 0.0
+        for r in per.values():
+            v = (r.get(block) or {}).get(key)
+            q = r.get("queries", {}).get(kind, 0)
+            if v is not None and q and np.isfinite(v):
+                num += v * q
+                den += q
+        return round(num / den, 4) if den else None
+
+    spectra = None
+    if any("with_spectra" in r for r in per.values()):
+        spectra = {k: pooled_in("with_spectra", k, kind) for k, kind in
+                   (("top1", "leave_one_out"), ("top3", "leave_one_out"), ("ece", "leave_one_out"),
+                    ("not_in_library_detection", "removed"), ("mean_top_probability_absent", "removed"))}
+        spectra["queries_with_spectrum"] = {
+            k: int(sum((r.get("with_spectra") or {}).get("queries_with_spectrum", {}).get(k, 0) for r in per.values()))
+            for k in ("leave_one_out", "removed")}
     return {
         "top1": pooled("top1"),
         "top3": pooled("top3"),
@@ -226,6 +295,7 @@ def evaluate(snapshot: LibrarySnapshot, phase_class: str | None = None, *, noise
         "queries": {k: int(sum(r.get("queries", {}).get(k, 0) for r in per.values())) for k in ("leave_one_out", "removed")},
         "classes": per,
         "library": {"location": snapshot.source, "revision": snapshot.revision},
+        "with_spectra": spectra,
     }
 
 

@@ -23,7 +23,7 @@ gives the weight of evidence of *j* against *N* (natural-log Bayes factor)
 .. math::
 
    \\text{score}_j = \\ln\\phi(x-\\mu_j; s_j) - \\ln\\lambda_U(x)
-   + e^{mol}_j + e^{ions}_j + e^{hit}_j
+   + e^{mol}_j + e^{ions}_j + e^{hit}_j + e^{spec}_j
 
 and the log odds of *j* against *N*,
 :math:`\\ln\\frac{\\pi}{1-\\pi} + \\text{score}_j + \\ln r_j`
@@ -48,6 +48,17 @@ every hypothesis:
   names a compound the library does not hold at all is evidence for *N*:
   every candidate gets the inverse ratio, 1 / (1 + HIT_GAIN · score/100).
 
+* **mass spectrum**: when the peak has a spectrum and the candidate has
+  reference spectra, the best Stein & Scott similarity *s* over them
+  (:mod:`matcher.chem.spectra`) gives :math:`e^{spec} = \\ln f_{same}(s) -
+  \\ln f_{other}(s)`, the likelihood ratio calibrated on the library's own
+  spectra (:mod:`matcher.identify.spectral_evidence`); 0 where either side has
+  no spectrum. The molecular ion and key ions are peaks of that spectrum, so
+  they are not counted twice: where spectra were compared, the key-ion term
+  is 0, and the molecular-ion term is 0 when the peak's spectrum shows a peak
+  at the stated molecular ion (a molecular ion known from elsewhere, absent
+  from the spectrum, still counts).
+
 The constants are stated assumptions, not fitted truths; ``matcher evaluate``
 measures how well they serve a given library.
 """
@@ -59,6 +70,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from matcher.identify.window_search import Pairs
+from matcher.chem.spectra import ReferenceSpectra, SpectrumSet, best_similarity
 from matcher.classes import DEFAULT_WINDOWS
 from matcher.identify.hints import ion_count, ion_overlap
 from matcher.store.snapshot import ClassEntries, CompoundTable
@@ -117,6 +129,16 @@ class PeakHints:
     hit_similarity: np.ndarray | None = None  # per PAIR, filled by the caller
     hit_match: np.ndarray | None = None  # per peak, 0-100
     hit_unlisted: np.ndarray | None = None  # per peak: the hit names no compound of the library
+    spectra: SpectrumSet | None = None  # per peak (a row without peaks: no spectrum)
+    references: ReferenceSpectra | None = None  # the library's reference spectra
+    spectrum_model: object | None = None  # matcher.identify.spectral_evidence.SpectrumModel
+    lookup: object | None = None  # reusable lookup table of the references (chem.spectra._lookup)
+    spectrum_similarity: np.ndarray | None = None  # per PAIR, when the caller computed it already
+    spectrum_reference: np.ndarray | None = None  # per PAIR: reference spectrum row behind it (-1: none)
+
+    def compares_spectra(self) -> bool:
+        return self.spectra is not None and self.references is not None and len(self.references) > 0 \
+            and bool(self.spectra.present.any())
 
 
 @dataclass
@@ -129,6 +151,9 @@ class Scored:
     evidence_mol_ion: np.ndarray
     evidence_ions: np.ndarray
     evidence_hit: np.ndarray
+    evidence_spectrum: np.ndarray
+    spectrum_similarity: np.ndarray  # per pair, NaN where no spectra were compared
+    spectrum_reference: np.ndarray  # per pair: row of the reference spectrum that gave it, -1 when none
     score: np.ndarray
     logw: np.ndarray  # log odds against not-in-library (prior included)
     mass_state: np.ndarray  # per pair: 1 agree, -1 disagree, 0 no formula, -2 no mol ion given
@@ -204,13 +229,48 @@ def score_pairs(
         if hints.hit_unlisted is not None:
             elsewhere = np.asarray(hints.hit_unlisted, dtype=bool)[p]
             evidence_hit[elsewhere] = -_hit_ratio(sc[elsewhere])
+    ev_spec = np.zeros(len(p))
+    sim = np.full(len(p), np.nan)
+    ref = np.full(len(p), -1, dtype=np.int64)
+    if hints is not None and len(p) and hints.compares_spectra():
+        if hints.spectrum_similarity is not None:
+            sim = np.asarray(hints.spectrum_similarity, dtype=float)
+            ref = hints.spectrum_reference if hints.spectrum_reference is not None else ref
+        else:
+            sim, ref = best_similarity(hints.spectra, hints.references, p, comp, lookup=hints.lookup)
+        compared = np.isfinite(sim)
+        if compared.any():
+            from matcher.identify.spectral_evidence import SpectrumModel
 
-    score = evidence_index + ev_mol + evidence_ions + evidence_hit
+            sm = hints.spectrum_model if hints.spectrum_model is not None else SpectrumModel.default()
+            ev_spec = sm.log_ratio(sim)
+            evidence_ions[compared] = 0.0  # key ions are peaks of the compared spectrum
+            shown = spectrum_shows(hints.spectra, hints.mol_ion)[p]
+            ev_mol[compared & shown] = 0.0  # so is a molecular ion the spectrum shows
+
+    score = evidence_index + ev_mol + evidence_ions + evidence_hit + ev_spec
     pi = float(np.clip(model.presence, 1e-6, 1 - 1e-6))
     logw = np.log(pi / (1 - pi)) + score
     if prior_factor is not None:
         logw = logw + np.log(prior_factor)
-    return Scored(delta, s, evidence_index, ev_mol, evidence_ions, evidence_hit, score, logw, mass_state, ions_state, lam)
+    return Scored(delta, s, evidence_index, ev_mol, evidence_ions, evidence_hit, ev_spec, sim, ref, score, logw, mass_state, ions_state,
+                  lam)
+
+
+def spectrum_shows(spectra: SpectrumSet, mz: np.ndarray) -> np.ndarray:
+    """Per peak: its spectrum has a peak at the nominal m/z ``mz`` (False where mz is NaN or no spectrum)."""
+    mz = np.asarray(mz, dtype=float)
+    out = np.zeros(len(mz), dtype=bool)
+    ok = np.flatnonzero(np.isfinite(mz) & (spectra.counts[: len(mz)] > 0))
+    if not len(ok):
+        return out
+    width = int(max(spectra.mz.max() if len(spectra.mz) else 0, np.nanmax(mz[ok]))) + 2
+    rows = np.repeat(np.arange(len(spectra), dtype=np.int64), spectra.counts)
+    keys = rows * width + spectra.mz  # ascending
+    want = ok * width + np.rint(mz[ok]).astype(np.int64)
+    i = np.clip(np.searchsorted(keys, want), 0, max(len(keys) - 1, 0))
+    out[ok] = keys[i] == want if len(keys) else False
+    return out
 
 
 def softmax_with_null(logw: np.ndarray, peak: np.ndarray, n_peaks: int):

@@ -19,6 +19,10 @@ no-formula               cand.    a molecular ion was given but the candidate ha
 ions-agree               cand.    at least half of the candidate's key ions are among the peak's ions
 ions-disagree            cand.    fewer than half of them are
 hit-agrees               cand.    the spectral-search hit names this candidate (similarity ≥ 0.9)
+spectrum-alike           cand.    the peak's spectrum and the candidate's reference spectrum agree: their
+                                  similarity is at least 10 times likelier for one compound than for two
+spectrum-unlike          cand.    they disagree: the similarity is at least 10 times likelier for two
+                                  different compounds
 cross-class              cand.    found by the fallback in the neighbouring polarity class
 predicted                cand.    a homologue prediction, not a measured library value
 extrapolated             peak     the peak's index lies outside the ladder (computed from the nearest pair)
@@ -32,7 +36,7 @@ same-compound-twice      run      the same compound ranks first for another peak
 homologues-out-of-order  run      two ranked-first members of one homologous series elute out of order
 review                   lead     any of: ambiguous, contested, likely-not-in-library, extrapolated, no-candidate,
                                   top probability < 0.5, or a top candidate that is cross-class,
-                                  predicted or mass-mismatch, or a run flag
+                                  predicted, mass-mismatch or spectrum-unlike, or a run flag
 =======================  =======  ===================================================================
 
 >>> combine(np.array([[True, False], [True, True], [False, False]]), ["in-window", "ambiguous"]).tolist()
@@ -47,7 +51,7 @@ import numpy as np
 
 VOCABULARY: tuple[str, ...] = (
     "in-window", "window-edge", "single-observation", "mass-match", "mass-mismatch", "no-formula",
-    "ions-agree", "ions-disagree", "hit-agrees", "cross-class", "predicted",
+    "ions-agree", "ions-disagree", "hit-agrees", "spectrum-alike", "spectrum-unlike", "cross-class", "predicted",
     "extrapolated", "ambiguous", "contested", "likely-not-in-library", "no-candidate",
     "same-compound-twice", "homologues-out-of-order", "review",
 )
@@ -73,9 +77,17 @@ def combine(masks: np.ndarray, names: Sequence[str]) -> np.ndarray:
 
 
 def row_flags(cols: dict, *, window, mass_state, ions_state, hit_agrees, extrapolated, top1, top2,
-              not_in_library, has_candidate, contested=None) -> np.ndarray:
-    """Flags of every shortlist row (see the table in the module doc)."""
+              not_in_library, has_candidate, contested=None, spectrum_evidence=None) -> np.ndarray:
+    """Flags of every shortlist row (see the table in the module doc).
+
+    ``spectrum_evidence``: the spectral log likelihood ratio per row (NaN where no spectra were compared)."""
+    from matcher.identify.spectral_evidence import FLAG_LOG_RATIO
+
     n = len(cols["peak"])
+    spec = np.full(n, np.nan) if spectrum_evidence is None else np.asarray(spectrum_evidence, dtype=float)
+    with np.errstate(invalid="ignore"):
+        alike = (spec >= FLAG_LOG_RATIO)
+        unlike = spec <= -FLAG_LOG_RATIO
     cand = np.asarray(has_candidate, dtype=bool)
     dev = np.abs(np.asarray(cols["delta_ri"], dtype=float))
     cross = np.asarray(cols["cross_class"], dtype=bool) & cand
@@ -94,13 +106,14 @@ def row_flags(cols: dict, *, window, mass_state, ions_state, hit_agrees, extrapo
     unlisted = cand & (not_in_library >= UNLISTED_AT)
     no_cand = ~cand
     mass_mis = cand & (mass_state == -1)
+    unlike = cand & unlike
 
     # peak-level review: needs the top row's attributes, spread to all rows of the peak
     peak = np.asarray(cols["peak"], dtype=np.int64)
     top_row = cand & (np.asarray(cols["rank"]) == 1)
     size = int(peak.max()) + 1 if n else 0
     bad_top = np.zeros(size, dtype=bool)
-    bad_top[peak[top_row]] = (cross | pred | mass_mis)[top_row]
+    bad_top[peak[top_row]] = (cross | pred | mass_mis | unlike)[top_row]
     contested_peak = np.zeros(size, dtype=bool)
     contested_peak[peak[contest]] = True
     review = lead & (close_call | contested_peak[peak] | unlisted | extrap | no_cand | (cand & (top1 < REVIEW_BELOW))
@@ -110,6 +123,7 @@ def row_flags(cols: dict, *, window, mass_state, ions_state, hit_agrees, extrapo
         in_window, edge, cand & ~pred & (np.asarray(cols["library_observations"]) == 1),
         cand & (mass_state == 1), mass_mis, cand & (mass_state == 0),
         cand & (ions_ok >= 0.5), cand & (ions_ok >= 0) & (ions_ok < 0.5), cand & hit_agrees,
+        cand & alike, unlike,
         cross, pred, extrap, ambiguous, contest, unlisted, no_cand,
         np.zeros(n, bool), np.zeros(n, bool), review,
     ])

@@ -121,8 +121,12 @@ def query(
     index_scatter: float | None = None,
     presence: float = DEFAULT_PRESENCE,
     crowding: str | float | None = None,
+    spectrum: Any = None,
 ) -> QueryResult:
     """Ranked shortlist for one index against one class of the library; see :class:`QueryResult`.
+
+    ``spectrum``: the peak's mass spectrum, a JCAMP-DX file with one block (path) or the shared form
+    ``(mz, intensity)`` (:mod:`matcher.chem.spectra`); compared with the library's reference spectra.
 
     ``db`` names the library (path or URL; default ``$MATCHER_DB``, then the
     user data folder); ``snapshot`` gives one already read. Without a run the
@@ -144,6 +148,11 @@ def query(
     top = rules.check_top(top)
     ions = rules.check_ions(ions)
     hit_match = rules.check_hit_match(hit_match)
+    packed = None
+    if spectrum is not None:
+        from matcher.chem.spectra import SpectrumSet
+
+        packed = SpectrumSet.from_spectra([one_spectrum(spectrum)])
     if snapshot is None:
         from matcher.store.snapshot_loader import load_snapshot
 
@@ -157,6 +166,7 @@ def query(
         ions=None if not ions else [ions],
         hit=None if not hit else np.array([hit], dtype=object),
         hit_match=None if hit_match is None else np.array([hit_match]),
+        spectra=packed,
     )
     lam0 = crowding_density(crowding)
     model = Model(sd, presence=float(presence), unlisted=UnlistedField.flat(lam0))
@@ -171,6 +181,42 @@ def query(
         not_in_library=plain(sl.not_in_library[0]),
         candidates_in_window=int(sl.candidate_count[0]),
         model={"index_scatter": sd, "presence": float(presence), "unlisted_per_100": round(lam0 * 100, 3)},
-        library={"location": snapshot.source, "revision": snapshot.revision, "entries": len(home.entries)},
-        notes=list(sl.notes),
+        library={"location": snapshot.source, "revision": snapshot.revision, "entries": len(home.entries),
+                 "spectra": len(home.references) if home.references is not None else 0},
+        notes=list(sl.notes) + ([NO_REFERENCE_SPECTRA] if packed is not None and home.references is None else []),
     )
+
+
+NO_REFERENCE_SPECTRA = ("the library holds no reference spectra, so the spectrum was not compared "
+                        "(add some with: matcher library import-spectra)")
+
+
+def one_spectrum(spectrum: Any):
+    """A query's spectrum in the shared form, from a JCAMP-DX path (exactly one block) or an (mz, intensity) pair."""
+    import os
+
+    from matcher.errors import InputError, MatcherError
+
+    if isinstance(spectrum, (str, os.PathLike)):
+        from matcher.io.jcamp import read_jcamp
+
+        blocks = read_jcamp(spectrum)
+        if len(blocks) != 1:
+            raise InputError(f"holds {len(blocks)} spectra; a query takes one", file=os.fspath(spectrum))
+        if not len(blocks[0].mz):
+            raise InputError("the spectrum's table holds no m/z,intensity pairs", file=os.fspath(spectrum))
+        return blocks[0].spectrum
+    try:
+        mz, y = (np.asarray(v, dtype=float) for v in spectrum)
+    except (TypeError, ValueError):
+        raise MatcherError("the spectrum must be a JCAMP-DX file or a pair (m/z values, intensities)") from None
+    from matcher.limits import MAX_MZ
+
+    if mz.shape != y.shape or mz.ndim != 1 or not len(mz):
+        raise MatcherError("the spectrum needs as many intensities as m/z values, at least one")
+    if not (np.all(np.isfinite(mz)) and np.all((mz >= 1) & (mz <= MAX_MZ))):
+        raise MatcherError(f"the spectrum's m/z values must lie between 1 and {MAX_MZ}")
+    if not (np.all(np.isfinite(y)) and np.all(y >= 0)):
+        raise MatcherError("the spectrum's intensities must be numbers of at least 0")
+    order = np.argsort(mz, kind="stable")
+    return mz[order], y[order]

@@ -121,9 +121,13 @@ def _label(run: RunInput) -> str:
     return "run" if name.startswith("<") else os.path.splitext(os.path.basename(name))[0]
 
 
-def _hints_for_fit(peaks: PeakInput) -> PeakHints:
+def _hints_for_fit(peaks: PeakInput, home: PreparedClass | None = None) -> PeakHints:
+    from matcher.identify.shortlist import spectrum_hints
+
     masks = ion_masks(peaks.ions) if peaks.ions is not None and any(len(i) for i in peaks.ions) else None
-    return PeakHints(np.asarray(peaks.mol_ion, float) if peaks.mol_ion is not None else np.full(len(peaks), np.nan), masks)
+    extra = spectrum_hints(peaks, home) if home is not None else {}
+    return PeakHints(np.asarray(peaks.mol_ion, float) if peaks.mol_ion is not None else np.full(len(peaks), np.nan),
+                     masks, **extra)
 
 
 def _subset(peaks: PeakInput, idx: np.ndarray) -> PeakInput:
@@ -135,6 +139,7 @@ def _subset(peaks: PeakInput, idx: np.ndarray) -> PeakInput:
         None if peaks.hit_match is None else np.asarray(peaks.hit_match)[idx],
         None if peaks.extrapolated is None else np.asarray(peaks.extrapolated)[idx],
         None if peaks.unlisted is None else np.asarray(peaks.unlisted)[idx],
+        None if peaks.spectra is None else peaks.spectra.take(idx),
     )
 
 
@@ -151,7 +156,7 @@ def fit_run_model(home: PreparedClass, peaks: PeakInput, model: Model, w: np.nda
         idx = np.sort(np.random.default_rng(20261201).choice(idx, MAX_FIT_PEAKS, replace=False))
     sub = _subset(peaks, idx)
     model, info = fit(sub.ri, home.entries, home.compounds, home.mass_bg, model, w[idx],
-                      hints=_hints_for_fit(sub), compound_ion_masks=home.ion_masks, crowding=crowding)
+                      hints=_hints_for_fit(sub, home), compound_ion_masks=home.ion_masks, crowding=crowding)
     own = np.zeros(len(x))
     if "own_unlisted" in info:
         own[idx] = info.pop("own_unlisted")
@@ -432,6 +437,8 @@ def _table(sl: Shortlist, label: str, phase_class: str, peak_ids, rt, x, x_raw, 
         "evidence_mol_ion": c["evidence_mol_ion"],
         "evidence_ions": c["evidence_ions"],
         "evidence_hit": c["evidence_hit"],
+        "evidence_spectrum": c["evidence_spectrum"],
+        "spectrum_similarity": c["spectrum_similarity"],
     }
     df = pd.DataFrame(data)
     df.loc[df["rank"].isna(), "library_observations"] = pd.NA
@@ -439,7 +446,7 @@ def _table(sl: Shortlist, label: str, phase_class: str, peak_ids, rt, x, x_raw, 
 
 
 def _with(peaks: PeakInput, x: np.ndarray, lam: np.ndarray) -> PeakInput:
-    return PeakInput(x, peaks.mol_ion, peaks.ions, peaks.hit, peaks.hit_match, peaks.extrapolated, lam)
+    return PeakInput(x, peaks.mol_ion, peaks.ions, peaks.hit, peaks.hit_match, peaks.extrapolated, lam, peaks.spectra)
 
 
 def _shift_profile(home: PreparedClass, peaks: PeakInput, model: Model, w: np.ndarray, lam: np.ndarray) -> float:
@@ -461,7 +468,12 @@ def _shift_profile(home: PreparedClass, peaks: PeakInput, model: Model, w: np.nd
     reach = float(np.max(w[ok]))
     pairs = window_pairs(home.entries.ri, xs, w[ok] * 2.0)
     sub = _subset(peaks, np.flatnonzero(ok))
-    hints = _hints_for_fit(sub)
+    hints = _hints_for_fit(sub, home)
+    if hints.compares_spectra():  # the pairs do not move with the shift: compare the spectra once
+        from matcher.chem.spectra import best_similarity
+
+        hints.spectrum_similarity, hints.spectrum_reference = best_similarity(
+            hints.spectra, hints.references, pairs.peak, home.entries.compound[pairs.entry], lookup=hints.lookup)
     groups = PeakGroups(pairs.peak, len(xs))  # per peak: log(1 + Σ_j w_pj), the "1" being not-in-library
     best_b, best_ll = 0.0, -np.inf
     for b in np.arange(-reach, reach + SHIFT_STEP / 2, SHIFT_STEP):
@@ -606,6 +618,59 @@ def public_correction(correction: dict | None) -> dict | None:
     return out
 
 
+def peak_spectra(path: Any, peak_ids: np.ndarray) -> list:
+    """One spectrum (or None) per peak from a JCAMP-DX file whose blocks are titled by peak id.
+
+    A title may also end in `` peak ID`` (as ``matcher peaks --spectra-out`` writes them); an empty block means
+    no spectrum. A block whose title names no peak of the run, or a peak named twice, refuses the file (file,
+    block, line).
+    """
+    from matcher.io.jcamp import read_jcamp
+
+    blocks = read_jcamp(path)
+    pos = {str(p).strip(): i for i, p in enumerate(peak_ids)}
+    out: list = [None] * len(peak_ids)
+    for b in blocks:
+        title = b.title.strip()
+        i = pos.get(title)
+        if i is None and " peak " in title:
+            i = pos.get(title.rsplit(" peak ", 1)[1].strip())
+        if i is None:
+            raise InputError(f"block {b.block} (line {b.line}): title {b.title[:60]!r} is not a peak id of the run "
+                             "(each block of a run's spectra file is titled by its peak id)", file=os.fspath(path))
+        if out[i] is not None:
+            raise InputError(f"block {b.block} (line {b.line}): peak {b.title[:60]!r} has a spectrum already",
+                             file=os.fspath(path))
+        out[i] = b.spectrum if len(b.mz) else None
+    return out
+
+
+NO_REFERENCE_SPECTRA = ("the library holds no reference spectra, so the peaks' spectra were not compared "
+                        "(add some with: matcher library import-spectra)")
+
+#: the report draws the spectra of at most this many peaks per run
+REPORT_SPECTRA = 2000
+
+
+def review_spectra(sl: Shortlist, home: PreparedClass, peak_ids, spectra) -> dict:
+    """For each peak to review whose leading candidate was compared by spectrum: both spectra and the similarity."""
+    if spectra is None or home.references is None:
+        return {}
+    c = sl.columns
+    rows = np.flatnonzero((c["rank"] == 1) & np.isfinite(c["spectrum_similarity"]) & (c["spectrum_reference"] >= 0)
+                          & F.has_flag(c["flags"], "review"))[:REPORT_SPECTRA]
+    out = {}
+    for i in rows:
+        p = int(c["peak"][i])
+        out[str(peak_ids[p])] = {
+            "unknown": spectra[p],
+            "reference": home.references.spectra.relative(int(c["spectrum_reference"][i])),
+            "name": str(c["name"][i]),
+            "similarity": float(c["spectrum_similarity"][i]),
+        }
+    return out
+
+
 def _anchor_entry_sd(home: PreparedClass, ref: np.ndarray) -> np.ndarray:
     """The library spread of the entries the anchors point at (nearest entry by reference index)."""
     e = home.entries
@@ -702,6 +767,7 @@ def screen(
     crowding: str | float | None = None,
     split_peaks: bool = False,
     record: dict[str, Any] | None = None,
+    spectra: Any = None,
     progress: Callable[[int], None] | None = None,
     min_snr: float | None = None,
     sink: Callable[[Any], None] | None = None,
@@ -747,6 +813,9 @@ def screen(
     plan = plan_runs(peak_files, calibration, ladder, labels)
     if not plan:
         raise MatcherError("no peak file given")
+    spectra_files = [] if spectra is None else ([spectra] if isinstance(spectra, (str, os.PathLike)) else list(spectra))
+    if spectra_files and len(spectra_files) != len(plan):
+        raise MatcherError(f"{len(spectra_files)} spectra files for {len(plan)} runs: give one per run, in the same order")
     classes = _classes(phase_class, len(plan))
     # read and convert every run before any heavy work, so a bad file fails fast
     loaded = []
@@ -762,7 +831,15 @@ def screen(
             if cal is None:
                 raise MatcherError(f"{run.peaks_path}: the table has no 'ri' column; give --calibration CAL.json or --ladder LADDER.csv")
             x, extrap = cal.convert(np.asarray(table.rt, dtype=float))
-        loaded.append((run, table, cal, np.asarray(x, dtype=float), np.asarray(extrap, dtype=bool)))
+        spec = None
+        if spectra_files:
+            if getattr(table, "spectra", ()):
+                raise MatcherError(f"{run.peaks_path} has a 'spectrum' column and --spectra {spectra_files[len(loaded)]} "
+                                   "was given too: give the spectra once")
+            spec = peak_spectra(spectra_files[len(loaded)], np.asarray(table.peak))
+        elif getattr(table, "spectra", ()):
+            spec = list(table.spectra)
+        loaded.append((run, table, cal, np.asarray(x, dtype=float), np.asarray(extrap, dtype=bool), spec))
 
     if snapshot is None:
         from matcher.store.snapshot_loader import load_snapshot
@@ -775,7 +852,9 @@ def screen(
 
     runs: list[RunResult] = []
     labels_seen: dict[str, int] = {}
-    for (run, table, cal, x_raw, extrap), run_class in zip(loaded, classes):
+    from matcher.chem.spectra import SpectrumSet
+
+    for (run, table, cal, x_raw, extrap, spec), run_class in zip(loaded, classes):
         home, neighbour = prepared[run_class]
         base_sd = DEFAULT_MEASUREMENT_SD[run_class] if index_scatter is None else float(index_scatter)
         label = _label(run)
@@ -784,7 +863,8 @@ def screen(
             label = f"{label}-{labels_seen[label]}"
         else:
             labels_seen[label] = 1
-        peaks = PeakInput(x_raw, table.mol_ion, table.ions, table.hit, table.hit_match, extrap)
+        packed = SpectrumSet.from_spectra(spec).with_cache() if spec is not None else None
+        peaks = PeakInput(x_raw, table.mol_ion, table.ions, table.hit, table.hit_match, extrap, spectra=packed)
         user_anchors = None
         if anchors:
             user_anchors = _anchors_from_file(anchors, label, np.asarray(table.peak), snapshot, home)
@@ -799,12 +879,15 @@ def screen(
         keeper = _Keeper(REPORT_PEAKS) if sink is not None else None
         given = getattr(table, "rt_decimals", None)
         decimals = np.asarray(list(given), dtype=object) if given is not None and len(given) == len(ids) else None
-        frames, notes = [], set()
+        frames, notes, shown_spectra = [], set(), {}
         for core, part in iter_shortlist(home, prep.peaks, prep.model, window=window, window_percent=window_percent,
                                          top=top, neighbour=neighbour, progress=progress):
             notes.update(part.notes)
             whole = len(core) == len(x_raw)
             pick = (lambda a: a) if whole else (lambda a: None if a is None else np.asarray(a)[core])
+            if spec is not None and len(shown_spectra) < REPORT_SPECTRA:
+                part_spectra = review_spectra(part, home, pick(ids), spec if whole else [spec[i] for i in core])
+                shown_spectra.update(list(part_spectra.items())[: REPORT_SPECTRA - len(shown_spectra)])
             df = _table(part, label, run_class, pick(ids), pick(rt), pick(prep.x), pick(x_raw),
                         peaks if whole else _subset(peaks, core), area=pick(area), area_percent=pick(area_percent))
             if sink is not None:
@@ -815,6 +898,8 @@ def screen(
                 df = keeper.keep(df)
             frames.append(df)
         df = frames[0] if len(frames) == 1 else _concat(frames)
+        if packed is not None and home.references is None:
+            prep.notices.append(NO_REFERENCE_SPECTRA)
         runs.append(RunResult(
             source=run.peaks_path, label=label, phase_class=run_class,
             window=window_description(run_class, window, window_percent),
@@ -824,9 +909,11 @@ def screen(
             rt_decimals={str(p): int(d) for p, d in zip(table.peak, getattr(table, "rt_decimals", ()) or ())
                          if d is not None},
             streamed=sink is not None, chromatogram=getattr(table, "chromatogram", None) or None,
+            spectra=shown_spectra,
         ))
 
     homes = [prepared[c][0] for c in dict.fromkeys(classes)]
+    models = [h.spectrum_model.describe() if h.spectrum_model is not None else None for h, _ in prepared.values()]
     return ScreenResult(
         runs=runs,
         library={"location": snapshot.source, "revision": snapshot.revision,
@@ -838,5 +925,7 @@ def screen(
         settings={"class": classes[0] if len(set(classes)) == 1 else classes, "top": top, "fallback": fallback,
                   "homologues": homologues, "adaptive": adaptive, "anchors": anchors, "window": window,
                   "window_percent": window_percent, "index_scatter": index_scatter, "crowding": crowding,
-                  "split_peaks": split_peaks, **({"min_snr": min_snr} if min_snr is not None else {})},
+                  "split_peaks": split_peaks, **({"min_snr": min_snr} if min_snr is not None else {}),
+                  "spectra": [os.fspath(f) for f in spectra_files] or None,
+                  "spectrum_model": models[0] if len(set(map(str, models))) == 1 else models},
     )

@@ -51,6 +51,9 @@ class PreparedClass:
     predicted: int = 0
 
     library_keys: tuple[str, ...] = ()  # every name and synonym key of the measured library's compounds
+    references: object | None = None  # matcher.chem.spectra.ReferenceSpectra (None: the library holds no spectra)
+    spectrum_model: object | None = None  # matcher.identify.spectral_evidence.SpectrumModel, learned from them
+    lookup: object | None = None  # the references' lookup table, built once
 
 
 def prepare(snapshot: LibrarySnapshot, phase_class: str, *, homologues: bool = False) -> PreparedClass:
@@ -80,7 +83,15 @@ def prepare(snapshot: LibrarySnapshot, phase_class: str, *, homologues: bool = F
         for n, syn in zip(compounds.name, compounds.synonyms)
     )
     library = tuple(dict.fromkeys(k for row in keys[:n_measured] for k in row))
-    return PreparedClass(phase_class, entries, compounds, bg, masks, keys, n_pred, library)
+    refs = model = lookup = None
+    if snapshot.spectra is not None and len(snapshot.spectra):
+        from matcher.chem.spectra import _lookup
+        from matcher.identify.spectral_evidence import calibrate_spectra
+
+        refs = snapshot.spectra
+        model = calibrate_spectra(refs, snapshot.compounds.nominal_mass)
+        lookup = _lookup(refs.spectra)
+    return PreparedClass(phase_class, entries, compounds, bg, masks, keys, n_pred, library, refs, model, lookup)
 
 
 @dataclass
@@ -94,6 +105,7 @@ class PeakInput:
     hit_match: np.ndarray | None = None
     extrapolated: np.ndarray | None = None
     unlisted: np.ndarray | None = None  # λ_U per peak (unlisted peaks per index unit); None: the model's field
+    spectra: object | None = None  # matcher.chem.spectra.SpectrumSet, one row per peak (None: no spectra)
 
     def __len__(self) -> int:
         return len(self.ri)
@@ -131,7 +143,15 @@ def _hints(peaks: PeakInput, pairs_peak: np.ndarray, pairs_compound: np.ndarray,
     elsewhere = None
     if sim is not None:
         elsewhere = hit_not_in_library(np.asarray(peaks.hit, dtype=object), prep.library_keys, matching_key, HIT_MATCH)
-    return PeakHints(mol, masks, sim, score, elsewhere)
+    return PeakHints(mol, masks, sim, score, elsewhere, **spectrum_hints(peaks, prep))
+
+
+def spectrum_hints(peaks: PeakInput, prep: PreparedClass) -> dict:
+    """The spectral part of :class:`PeakHints` (empty when the peaks or the library have no spectra)."""
+    if peaks.spectra is None or prep.references is None:
+        return {}
+    return {"spectra": peaks.spectra, "references": prep.references, "spectrum_model": prep.spectrum_model,
+            "lookup": prep.lookup}
 
 
 def _score_class(prep: PreparedClass, peaks: PeakInput, sel: np.ndarray, w: np.ndarray, model: Model,
@@ -144,6 +164,7 @@ def _score_class(prep: PreparedClass, peaks: PeakInput, sel: np.ndarray, w: np.n
         None if peaks.ions is None else [peaks.ions[i] for i in sel],
         None if peaks.hit is None else np.asarray(peaks.hit, dtype=object)[sel],
         None if peaks.hit_match is None else np.asarray(peaks.hit_match, dtype=float)[sel],
+        spectra=None if peaks.spectra is None else peaks.spectra.take(sel),
     )
     comp = prep.entries.compound[pairs.entry]
     hints = _hints(sub, pairs.peak, comp, prep)
@@ -182,7 +203,8 @@ def shortlist(
     ent = pairs.entry
     cls_arr = np.zeros(len(ent), dtype=np.int8)  # 0 home, 1 neighbour
     logw, delta, sd = sc.logw, sc.delta, sc.sd
-    evs = [sc.evidence_index, sc.evidence_mol_ion, sc.evidence_ions, sc.evidence_hit, sc.score]
+    evs = [sc.evidence_index, sc.evidence_mol_ion, sc.evidence_ions, sc.evidence_hit, sc.score, sc.evidence_spectrum,
+           sc.spectrum_similarity, sc.spectrum_reference]
     mstate, istate = sc.mass_state, sc.ions_state
     comp_key = home.entries.compound[ent]
     prob, nil = assign(logw, gpeak, comp_key, n, exclusive=model.exclusive)
@@ -201,7 +223,9 @@ def shortlist(
                 logw = np.concatenate([logw, s2.logw])
                 delta = np.concatenate([delta, s2.delta])
                 sd = np.concatenate([sd, s2.sd])
-                evs = [np.concatenate([a, b]) for a, b in zip(evs, [s2.evidence_index, s2.evidence_mol_ion, s2.evidence_ions, s2.evidence_hit, s2.score])]
+                evs = [np.concatenate([a, b]) for a, b in zip(evs, [s2.evidence_index, s2.evidence_mol_ion, s2.evidence_ions,
+                                                                    s2.evidence_hit, s2.score, s2.evidence_spectrum,
+                                                                    s2.spectrum_similarity, s2.spectrum_reference])]
                 mstate = np.concatenate([mstate, s2.mass_state])
                 istate = np.concatenate([istate, s2.ions_state])
                 hitsim = np.concatenate([hitsim, h2])
@@ -276,6 +300,9 @@ def shortlist(
         "evidence_mol_ion": cat(evs[1], 0.0),
         "evidence_ions": cat(evs[2], 0.0),
         "evidence_hit": cat(evs[3], 0.0),
+        "evidence_spectrum": cat(evs[5], 0.0),
+        "spectrum_similarity": cat(evs[6], np.nan),
+        "spectrum_reference": cat(evs[7], -1),
         "score": cat(evs[4], np.nan),
         "probability": cat(prob, 0.0),
         "cross_class": cls_k == 1,
@@ -293,6 +320,7 @@ def shortlist(
         not_in_library=nil[peak_col],
         has_candidate=count[peak_col] > 0,
         contested=elsewhere[peak_col] >= CONTESTED_AT,
+        spectrum_evidence=np.where(np.isfinite(cols["spectrum_similarity"]), cols["evidence_spectrum"], np.nan),
     )
     cols["held_elsewhere"] = elsewhere[peak_col]
     return Shortlist(cols, nil, top1, count, w, notes)

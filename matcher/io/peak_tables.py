@@ -299,15 +299,18 @@ def read_peaks(path, *, rt_unit: str | None = None, overrides: dict[str, str] | 
         ions = [()] * n
     spectra: tuple = ()
     if "spectrum" in cols:
-        from matcher.io.spectrum_text import parse_spectrum_text
+        from matcher.io.spectrum_text import parse_spectrum_cells, parse_spectrum_text
 
-        found = []
-        for k, cell in enumerate(texts(raw, cols["spectrum"])):
-            try:
-                found.append(parse_spectrum_text(cell))
-            except ValueError as exc:
-                raise raw.fail(str(exc), row=k + 1, column=cols["spectrum"])
-        spectra = tuple(found)
+        cells = texts(raw, cols["spectrum"])
+        try:
+            spectra = tuple(parse_spectrum_cells(cells))
+        except ValueError:
+            for k, cell in enumerate(cells):  # name the first faulty row
+                try:
+                    parse_spectrum_text(cell)
+                except ValueError as exc:
+                    raise raw.fail(str(exc), row=k + 1, column=cols["spectrum"])
+            raise
 
     checksum = content_checksum(ids, rt, ri, mol_ion, ions, hit, hit_match, area)
     return PeakTable(

@@ -16,7 +16,7 @@ The file holds nothing but the header and the rows, so any CSV reader
 * booleans are ``true`` / ``false``;
 * ``rt`` 4 decimals, indices and deviations (``ri``, ``ri_measured``,
   ``library_ri``, ``delta_ri``, ``library_spread``) 2 decimals, ``score`` and the
-  ``evidence_*`` evidence 4 decimals, ``hit_match`` 2;
+  ``evidence_*`` evidence and ``spectrum_similarity`` 4 decimals, ``hit_match`` 2;
 * ``probability`` and ``not_in_library`` 6 decimals, **rounded down**, so a
   peak's listed probabilities never add up to more than 1 in the file;
 * ``flags`` semicolon-separated;
@@ -97,7 +97,8 @@ FORMAT_VERSION = 1
 INT_COLUMNS = ("rank", "library_observations", "nominal_mass", "mol_ion")
 DECIMALS: dict[str, int] = {
     "rt": 4, "area_percent": 4, "ri": 2, "ri_measured": 2, "library_ri": 2, "delta_ri": 2, "library_spread": 2,
-    "score": 4, "hit_match": 2, "evidence_index": 4, "evidence_mol_ion": 4, "evidence_ions": 4, "evidence_hit": 4,
+    "score": 4, "hit_match": 2, "evidence_index": 4, "evidence_mol_ion": 4, "evidence_ions": 4, "evidence_hit": 4, "evidence_spectrum": 4,
+    "spectrum_similarity": 4,
 }
 PROBABILITY_COLUMNS = ("probability", "not_in_library")
 PROBABILITY_DECIMALS = 6

@@ -576,6 +576,24 @@ def _shortlists(run: RunResult, max_peaks: int) -> str:
             f'<table class="shortlist">{_SHORT_HEAD}{"".join(bodies)}</table>')
 
 
+def _spectra(run: RunResult, max_peaks: int) -> str:
+    """For each peak to review with spectra: the unknown's spectrum above, the leading candidate's below."""
+    drawn = getattr(run, "spectra", None) or {}
+    if not drawn:
+        return ""
+    figs = []
+    for peak, d in list(drawn.items())[:max_peaks]:
+        sim = d.get("similarity")
+        caption = (f"peak {e(peak)}: its spectrum (above) and that of {e(d.get('name'))}, the leading candidate "
+                   f"(below); similarity {_num(sim, 3)} (Stein &amp; Scott composite, 0–1)")
+        svg = plots.spectra_plot(d["unknown"], d["reference"], upper=f"peak {peak}",
+                                 lower=f"{d.get('name')} (reference)")
+        figs.append(f'<figure class="spectra">{svg}<figcaption>{caption}</figcaption></figure>')
+    return ("<h3>Spectra of the peaks to review</h3>"
+            '<p class="note">Each peak marked for review whose leading candidate has a reference spectrum; '
+            "intensities relative to each spectrum's base peak.</p>" + '<div class="grid">' + "".join(figs) + "</div>")
+
+
 def _chromatograms(i: int, run: RunResult) -> str:
     """The run's TIC with its detected peaks numbered, and the ladder run's TIC with its alkanes labelled.
 
@@ -657,6 +675,7 @@ def _run_section(i: int, run: RunResult, summary: dict[str, Any], max_peaks: int
         + f'<div id="run-{i}-correction">{_correction(run)}</div>'
         + f'<div id="run-{i}-composition">{_composition(run)}</div>'
         + f'<div id="run-{i}-shortlists">{_shortlists(run, max_peaks)}</div>'
+        + f'<div id="run-{i}-spectra">{_spectra(run, max_peaks)}</div>'
         + "</section>"
     )
 

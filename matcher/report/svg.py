@@ -257,3 +257,63 @@ def trace_plot(x: Sequence, y: Sequence, marks_x: Sequence, marks_y: Sequence, m
             parts.append(f'<text x="{sx(a)}" y="{sy(b) - 5}" text-anchor="middle" fill="{colour}">{html_text(labels[i])}</text>')
     parts.append("</svg>")
     return "".join(parts)
+
+
+def spectra_plot(unknown: tuple[Sequence, Sequence], reference: tuple[Sequence, Sequence], *, upper: str, lower: str,
+                 title: str = "", width: int = 560, height: int = 300) -> str:
+    """Two mass spectra on one m/z axis: ``unknown`` drawn upwards, ``reference`` downwards, each scaled to its base peak (100).
+
+    >>> svg = spectra_plot(([41, 93], [20, 100]), ([41, 93, 136], [30, 100, 12]), upper="peak 7", lower="<i>limonene</i>")
+    >>> svg.count("<line") > 5 and "&lt;i&gt;limonene" in svg
+    True
+    """
+    left, right, top, bottom = 48, 16, 28 if title else 14, 40
+    pw, ph = width - left - right, height - top - bottom
+
+    def scaled(spec):
+        mz = [float(m) for m in spec[0]]
+        y = [float(v) for v in spec[1]]
+        top_y = max(y) if y and max(y) > 0 else 1.0
+        return [(m, 100.0 * v / top_y) for m, v in zip(mz, y) if math.isfinite(m) and math.isfinite(v) and v > 0]
+
+    up, down = scaled(unknown), scaled(reference)
+    allmz = [m for m, _ in up + down]
+    parts = [f'<svg class="plot spectra-plot" viewBox="0 0 {width} {height}" width="{width}" height="{height}" role="img" '
+             f'aria-label="{html_text(title or "mass spectra")}" font-family="system-ui, sans-serif" font-size="11">']
+    if title:
+        parts.append(f'<text x="{left}" y="16" fill="{INK}" font-size="12" font-weight="600">{html_text(title)}</text>')
+    lo, hi = (min(allmz), max(allmz)) if allmz else (0.0, 1.0)
+    xt = nice_ticks(max(0.0, lo - 5), hi + 5)
+    x0, x1 = min(xt[0], lo - 5), max(xt[-1], hi + 5)
+
+    def sx(v: float) -> float:
+        return round(left + (v - x0) / (x1 - x0) * pw, 2)
+
+    mid = top + ph / 2
+
+    def sy(v: float) -> float:  # +100 at the top, -100 at the bottom
+        return round(mid - v / 100.0 * (ph / 2), 2)
+
+    for v in xt:
+        parts.append(f'<line x1="{sx(v)}" y1="{top}" x2="{sx(v)}" y2="{top + ph}" stroke="{GRID}" stroke-width="1"/>')
+        parts.append(f'<text x="{sx(v)}" y="{top + ph + 15}" text-anchor="middle" fill="{INK}">{_fmt_tick(v)}</text>')
+    for v in (100, 50, -50, -100):
+        parts.append(f'<text x="{left - 6}" y="{sy(v) + 4}" text-anchor="end" fill="{INK}">{abs(v)}</text>')
+    parts.append(f'<rect x="{left}" y="{top}" width="{pw}" height="{ph}" fill="none" stroke="{INK}" stroke-width="1"/>')
+    parts.append(f'<line x1="{left}" y1="{mid}" x2="{left + pw}" y2="{mid}" stroke="{INK}" stroke-width="1"/>')
+    for (pts, sign, colour) in ((up, 1, COLOURS["primary"]), (down, -1, COLOURS["secondary"])):
+        for m, v in pts:
+            parts.append(f'<line x1="{sx(m)}" y1="{mid}" x2="{sx(m)}" y2="{sy(sign * v)}" stroke="{colour}" stroke-width="1.6">'
+                         f'<title>m/z {m:g}: {v:.1f}</title></line>')
+        # label the three largest peaks
+        for m, v in sorted(pts, key=lambda t: -t[1])[:3]:
+            inside = v > 88  # a label past the frame would collide with the axis: put it beside the bar instead
+            y = (sy(sign * v) + (9 if sign > 0 else -2)) if inside else (sy(sign * v) - 3 if sign > 0 else sy(sign * v) + 11)
+            anchor, dx = ("start", 4) if inside else ("middle", 0)
+            parts.append(f'<text x="{sx(m) + dx}" y="{y}" text-anchor="{anchor}" fill="{colour}" font-size="10">{m:g}</text>')
+    parts.append(f'<text x="{left + 6}" y="{top + 12}" fill="{COLOURS["primary"]}">{html_text(upper)}</text>')
+    parts.append(f'<text x="{left + 6}" y="{top + ph - 5}" fill="{COLOURS["secondary"]}">{html_text(lower)}</text>')
+    parts.append(f'<text x="{left + pw / 2}" y="{height - 6}" text-anchor="middle" fill="{INK}">m/z</text>')
+    parts.append(f'<text transform="translate(12 {mid}) rotate(-90)" text-anchor="middle" fill="{INK}">relative intensity</text>')
+    parts.append("</svg>")
+    return "".join(parts)

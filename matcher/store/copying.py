@@ -27,7 +27,7 @@ from dataclasses import dataclass, field
 from matcher.errors import LibraryError
 
 #: Tables in the order they are filled (a referenced table before the tables that refer to it).
-ORDER = ("schema_version", "phases", "compounds", "synonyms", "observations", "audit_log")
+ORDER = ("schema_version", "phases", "compounds", "synonyms", "observations", "spectra", "audit_log")
 CHUNK = 5000
 
 
@@ -42,7 +42,7 @@ class CopyReport:
     def summary(self) -> str:
         r = self.rows
         return (f"copied {self.source} to {self.destination}: {r.get('compounds', 0)} compounds, "
-                f"{r.get('synonyms', 0)} synonyms, {r.get('observations', 0)} observations, "
+                f"{r.get('synonyms', 0)} synonyms, {r.get('observations', 0)} observations, {r.get('spectra', 0)} spectra, "
                 f"{r.get('phases', 0)} phases, {r.get('audit_log', 0)} audit entries; library revision {self.revision}"
                 + (" (destination replaced)" if self.replaced else ""))
 
@@ -88,7 +88,7 @@ def _reset_sequences(session) -> None:
 
     if session.get_bind().dialect.name != "postgresql":
         return  # SQLite's INTEGER PRIMARY KEY continues after MAX(id) by itself
-    for name in ("phases", "compounds", "synonyms", "observations", "audit_log", "library_state"):
+    for name in ("phases", "compounds", "synonyms", "observations", "spectra", "audit_log", "library_state"):
         session.execute(text(
             f"SELECT setval(pg_get_serial_sequence('{name}', 'id'), COALESCE(MAX(id), 1), MAX(id) IS NOT NULL) FROM {name}"
         ))

@@ -63,9 +63,16 @@ def _initial(conn: Connection) -> None:  # version 1: the models as first releas
     Base.metadata.create_all(conn)
 
 
+def _spectra_table(conn: Connection) -> None:  # version 2: reference mass spectra
+    from matcher.store.models import Spectrum
+
+    Spectrum.__table__.create(conn, checkfirst=True)  # the table and its index, on SQLite and PostgreSQL alike
+
+
 #: Ordered migrations: (version, description, function(connection)).
 MIGRATIONS: list[tuple[int, str, Callable[[Connection], None]]] = [
     (1, "initial schema: compounds, synonyms, phases, observations, audit log, revision", _initial),
+    (2, "spectra: reference mass spectra per compound, with provenance", _spectra_table),
 ]
 
 

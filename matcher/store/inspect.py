@@ -166,7 +166,21 @@ def show(db: str | None, name: str) -> dict:
                 }
                 for o in obs
             ],
+            "spectra": [
+                {"id": sp.id, "title": sp.title, "peaks": sp.n_peaks, "base_peak": _base_peak(sp.peaks),
+                 "source": sp.source or "", "origin": sp.origin or "", "owner": sp.owner or "",
+                 "file": sp.file or "", "analyst": sp.analyst or "", "added": sp.created_at}
+                for sp in c.spectra
+            ],
         }
+
+
+def _base_peak(peaks: str) -> float | None:
+    """The m/z of the most intense peak of a stored spectrum text."""
+    from matcher.io.spectrum_text import parse_spectrum_text
+
+    got = parse_spectrum_text(peaks)
+    return None if got is None else float(got[0][int(got[1].argmax())])
 
 
 def stats(db: str | None) -> dict:

@@ -13,6 +13,11 @@ phases             stationary phases: generic composition, class, McReynolds
 observations       one retention index (or a literature summary with ``ri_sd``
                    and ``n``) of a compound on a phase class, with provenance;
                    retired rows stay, flagged inactive with the reason
+spectra            reference mass spectra of a compound (EI, centroided): the
+                   m/z:intensity pairs as canonical text, where the spectrum
+                   came from (``source``, JCAMP-DX ``##ORIGIN``/``##OWNER``),
+                   the other records of its JCAMP-DX block (kept for a
+                   lossless export), who imported it and when
 audit_log          every change: when, who, action, target, before/after JSON
 library_state      one row: the library ``revision``, bumped on every change
 schema_version     the migrations applied (see :mod:`matcher.store.database`)
@@ -78,6 +83,9 @@ class Compound(Base):
     observations: Mapped[list["Observation"]] = relationship(
         back_populates="compound", cascade="all, delete-orphan", order_by="Observation.id"
     )
+    spectra: Mapped[list["Spectrum"]] = relationship(
+        back_populates="compound", cascade="all, delete-orphan", order_by="Spectrum.id"
+    )
 
 
 class Synonym(Base):
@@ -136,6 +144,28 @@ class Observation(Base):
     phase: Mapped[Optional[Phase]] = relationship()
 
 
+class Spectrum(Base):
+    """One reference mass spectrum of a compound (added by schema version 2)."""
+
+    __tablename__ = "spectra"
+    __table_args__ = (CheckConstraint("n_peaks >= 1", name="ck_spectra_n_peaks"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    compound_id: Mapped[int] = mapped_column(ForeignKey("compounds.id", ondelete="CASCADE"), index=True)
+    title: Mapped[str] = mapped_column(Str(300))
+    peaks: Mapped[str] = mapped_column(Text)  # "m/z:intensity" pairs, ascending m/z (matcher.io.spectrum_text)
+    n_peaks: Mapped[int] = mapped_column(Integer)
+    source: Mapped[Optional[str]] = mapped_column(Text)  # provenance given on import (own standard, licensed collection)
+    origin: Mapped[Optional[str]] = mapped_column(Text)  # JCAMP-DX ##ORIGIN
+    owner: Mapped[Optional[str]] = mapped_column(Text)  # JCAMP-DX ##OWNER
+    records: Mapped[Optional[str]] = mapped_column(Text)  # JSON list of [label, value]: the block's other records
+    file: Mapped[Optional[str]] = mapped_column(Text)  # file name and block it was imported from
+    analyst: Mapped[Optional[str]] = mapped_column(Str(100))
+    created_at: Mapped[str] = mapped_column(Str(32))
+
+    compound: Mapped[Compound] = relationship(back_populates="spectra")
+
+
 class AuditEntry(Base):
     __tablename__ = "audit_log"
 
@@ -167,6 +197,6 @@ class SchemaVersion(Base):
 
 
 __all__ = [
-    "MODES", "Base", "Compound", "Synonym", "Phase", "Observation",
+    "MODES", "Base", "Compound", "Synonym", "Phase", "Observation", "Spectrum",
     "AuditEntry", "LibraryState", "SchemaVersion",
 ]

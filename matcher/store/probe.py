@@ -16,7 +16,7 @@ from matcher.errors import LibraryError
 
 #: The newest schema version this program knows; equals ``database.latest_version()``
 #: (``tests/test_store_schema.py`` checks it; bump both when adding a migration).
-KNOWN_VERSION = 1
+KNOWN_VERSION = 2
 
 
 def _known() -> int:
@@ -210,6 +210,9 @@ def _probe(path: str, *, source: str | None = None, check: str = "quick", con=No
         if raw > _known():
             raise LibraryError(f"house library {where} has schema version {raw}, newer than this program knows "
                                f"({_known()}); upgrade matcher; nothing was changed")
+        if raw >= 2 and "spectra" not in tables:  # added by schema version 2
+            raise LibraryError(f"house library {where} is damaged: table(s) spectra missing; "
+                               f"nothing was changed (restore a backup)")
         n_state = con.execute("SELECT COUNT(*) FROM library_state WHERE id = 1").fetchone()[0]
         if n_state != 1:
             raise LibraryError(f"house library {where} is damaged: its revision row (library_state) is missing; "

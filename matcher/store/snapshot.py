@@ -51,6 +51,7 @@ from typing import Iterable, Mapping, Sequence
 
 import numpy as np
 
+from matcher.chem.spectra import ReferenceSpectra
 from matcher.classes import DEFAULT_WINDOWS, PHASE_CLASSES
 
 #: Per-class floor of the library spread (index units): 0.15 × the default window.
@@ -145,6 +146,8 @@ class LibrarySnapshot:
     source: str = ""  # masked location of the library it was read from
     revision: str = ""  # store revision marker, for provenance
     observations: "Observations | None" = field(default=None, repr=False, compare=False)
+    #: the reference mass spectra (:class:`matcher.chem.spectra.ReferenceSpectra`), None when the library holds none
+    spectra: "ReferenceSpectra | None" = field(default=None, repr=False, compare=False)
     _name_index: dict = field(default_factory=dict, repr=False, compare=False)
 
     def entries(self, phase_class: str) -> ClassEntries:
@@ -214,6 +217,7 @@ def build_snapshot(
     *,
     source: str = "",
     revision: str = "",
+    spectra: "ReferenceSpectra | None" = None,
 ) -> LibrarySnapshot:
     """Summarise active observations into per-class sorted entries (see module doc)."""
     obs_compound_id = np.asarray(obs_compound_id, dtype=np.int64)
@@ -254,7 +258,8 @@ def build_snapshot(
             predicted=np.zeros(len(o), dtype=bool),
         )
     raw = Observations(rows, obs_class, obs_ri, obs_n, obs_sd)
-    return LibrarySnapshot(compounds=compounds, classes=classes, source=source, revision=revision, observations=raw)
+    return LibrarySnapshot(compounds=compounds, classes=classes, source=source, revision=revision, observations=raw,
+                           spectra=spectra)
 
 
 def with_entries(snapshot: LibrarySnapshot, phase_class: str, extra: ClassEntries) -> LibrarySnapshot:
@@ -272,7 +277,8 @@ def with_entries(snapshot: LibrarySnapshot, phase_class: str, extra: ClassEntrie
     )
     classes = dict(snapshot.classes)
     classes[phase_class] = merged
-    return LibrarySnapshot(snapshot.compounds, classes, snapshot.source, snapshot.revision, observations=snapshot.observations)
+    return LibrarySnapshot(snapshot.compounds, classes, snapshot.source, snapshot.revision,
+                           observations=snapshot.observations, spectra=snapshot.spectra)
 
 
 __all__: Sequence[str] = [

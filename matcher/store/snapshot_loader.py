@@ -1,8 +1,8 @@
 """Read the house library into a :class:`matcher.store.snapshot.LibrarySnapshot` in one pass.
 
-Four SELECTs inside one read transaction (so the snapshot is consistent even
+Five SELECTs inside one read transaction (so the snapshot is consistent even
 while someone writes): the revision, all compounds, all synonyms, and all
-*active* observations. Never one query per compound or per peak.
+*active* observations, and the reference spectra. Never one query per compound or per peak.
 
 Two paths give the same result (a test checks it):
 
@@ -23,6 +23,7 @@ SQL_REVISION = "SELECT revision FROM library_state WHERE id = 1"
 SQL_COMPOUNDS = "SELECT id, name, cas, formula, nominal_mass, series, key_ions FROM compounds ORDER BY id"
 SQL_SYNONYMS = "SELECT compound_id, name FROM synonyms ORDER BY compound_id, id"
 _SQL_OBS_SQLITE = "SELECT compound_id, phase_class, ri, n, ri_sd FROM observations WHERE active = 1 ORDER BY id"
+SQL_SPECTRA = "SELECT compound_id, id, peaks FROM spectra ORDER BY compound_id, id"
 
 
 def _sqlite_path(url: str) -> str | None:
@@ -36,7 +37,30 @@ def _sqlite_path(url: str) -> str | None:
     return None
 
 
-def _build(rev, compounds, synonyms, observations, source: str):
+def reference_spectra(rows, table):
+    """:class:`matcher.chem.spectra.ReferenceSpectra` from (compound_id, spectrum id, peaks text) rows."""
+    import numpy as np
+
+    from matcher.chem.spectra import ReferenceSpectra, SpectrumSet
+
+    if not rows:
+        return None
+    row_of = {int(i): k for k, i in enumerate(table.ids)}
+    comp = np.fromiter((row_of[int(r[0])] for r in rows), dtype=np.int64, count=len(rows))
+    ids = np.fromiter((int(r[1]) for r in rows), dtype=np.int64, count=len(rows))
+    # the stored text is "m/z:intensity" pairs; one split over all spectra, parsed in C
+    texts = [r[2] or "" for r in rows]
+    counts = np.fromiter((t.count(":") for t in texts), dtype=np.int64, count=len(texts))
+    flat = np.array(" ".join(texts).replace(":", " ").split(), dtype=np.float64).reshape(-1, 2)
+    order = np.argsort(comp, kind="stable")
+    which = np.repeat(np.arange(len(rows), dtype=np.int64), counts)
+    rank = np.empty(len(rows), dtype=np.int64)
+    rank[order] = np.arange(len(rows))
+    packed = SpectrumSet.from_arrays(rank[which], flat[:, 0], flat[:, 1], len(rows))
+    return ReferenceSpectra(packed, comp[order], ids[order])
+
+
+def _build(rev, compounds, synonyms, observations, source: str, spectra=()):
     import numpy as np
 
     from matcher.store.snapshot import CompoundTable, build_snapshot
@@ -61,7 +85,8 @@ def _build(rev, compounds, synonyms, observations, source: str):
     ri = np.fromiter((o[2] for o in observations), dtype=np.float64, count=m)
     n = np.fromiter((np.nan if o[3] is None else o[3] for o in observations), dtype=np.float64, count=m)
     sd = np.fromiter((np.nan if o[4] is None else o[4] for o in observations), dtype=np.float64, count=m)
-    return build_snapshot(table, cid, cls, ri, n, sd, source=source, revision=str(rev))
+    return build_snapshot(table, cid, cls, ri, n, sd, source=source, revision=str(rev),
+                          spectra=reference_spectra(list(spectra), table))
 
 
 def _no_library(source: str):
@@ -103,12 +128,14 @@ def load_snapshot_sqlite(path: str, source: str | None = None):
         compounds = con.execute(SQL_COMPOUNDS).fetchall()
         synonyms = con.execute(SQL_SYNONYMS).fetchall()
         observations = con.execute(_SQL_OBS_SQLITE).fetchall()
+        has_spectra = con.execute("SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = 'spectra'").fetchone()
+        spectra = con.execute(SQL_SPECTRA).fetchall() if has_spectra else []  # a version-1 library has none
         con.execute("COMMIT")
     except sqlite3.DatabaseError as exc:
         raise LibraryError(f"cannot read the house library {source}: {exc}") from None
     finally:
         con.close()
-    return _build(row[0] if row else 0, compounds, synonyms, observations, source)
+    return _build(row[0] if row else 0, compounds, synonyms, observations, source, spectra)
 
 
 def load_snapshot_sqlalchemy(url: str):
@@ -116,7 +143,7 @@ def load_snapshot_sqlalchemy(url: str):
     from sqlalchemy import select
 
     from matcher.store.database import open_library
-    from matcher.store.models import Compound, LibraryState, Observation, Synonym
+    from matcher.store.models import Compound, LibraryState, Observation, Spectrum, Synonym
 
     engine = open_library(url)
     with engine.connect() as conn, conn.begin():
@@ -130,7 +157,10 @@ def load_snapshot_sqlalchemy(url: str):
             select(Observation.compound_id, Observation.phase_class, Observation.ri, Observation.n, Observation.ri_sd)
             .where(Observation.active.is_(True)).order_by(Observation.id)
         ).all()
-    return _build(rev or 0, compounds, synonyms, observations, mask_url(url))
+        spectra = conn.execute(
+            select(Spectrum.compound_id, Spectrum.id, Spectrum.peaks).order_by(Spectrum.compound_id, Spectrum.id)
+        ).all()
+    return _build(rev or 0, compounds, synonyms, observations, mask_url(url), spectra)
 
 
 def load_snapshot(url: str | None = None, *, fast: bool = True):
