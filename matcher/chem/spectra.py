@@ -44,7 +44,7 @@ term is undefined and :math:`S = F_D`. We average the ratio terms over the
 :math:`N_{UL} - 1` neighbouring pairs, so that a spectrum compared with
 itself scores exactly 1 (the published form, as we recall it, divides the
 same sum by :math:`N_{UL}`). The weights are those Stein & Scott found
-best for the dot product on the NIST library: m/z to the power 3 and
+best for the dot product on the large reference collection of their study: m/z to the power 3 and
 intensity to the power 0.6 (as we recall the paper; the same constants are
 quoted by the open-source R package MsCoreUtils).
 
