@@ -30,7 +30,7 @@ EX_IMPORT = (
 EX_EXPORT = "Example:\n\n    matcher library export -o house-library.csv --db lab.sqlite\n\n    matcher library export --db lab.sqlite > copy.csv"
 EX_SPECTRA = (
     "Example: reference spectra of the lab's own standards (JCAMP-DX, blocks titled by compound name)\n\n"
-    "    matcher library import-spectra standards-2024.jdx --source \"own standards, GC-MS 2, 2024\" --db lab.sqlite\n\n"
+    "    matcher library import-spectra standards-2024.jdx --source \"own standards, instrument 2, 2024\" --db lab.sqlite\n\n"
     "    matcher library import-spectra collection.jdx --new --db lab.sqlite"
 )
 EX_EXPORT_SPECTRA = ("Example:\n\n    matcher library export-spectra -o spectra.jdx --db lab.sqlite\n\n"
