@@ -259,13 +259,21 @@ def iter_shortlist(home, peaks: PeakInput, model: Model, *, window, window_perce
     x = np.asarray(peaks.ri, dtype=float)
     w = half_widths(x, home.phase_class, window, window_percent)
     for core, context in index_chunks(x, w, CHUNK, candidate_counts(x, w, home.entries.ri), MAX_PAIRS):
-        sub = peaks if len(context) == len(x) else _subset(peaks, context)
-        sl = shortlist(home, sub, model, window=window, window_percent=window_percent, top=top, neighbour=neighbour)
+        whole = len(context) == len(x)
+        sub = peaks if whole else _subset(peaks, context)
+        halo = None
+        if len(context) > len(core):
+            halo = np.ones(len(context), dtype=bool)
+            halo[np.isin(context, core)] = False
+        sl = shortlist(home, sub, model, window=window, window_percent=window_percent, top=top, neighbour=neighbour,
+                       lead_only=halo)
         if run_level_flags:
             sl.columns["flags"] = run_flags(sl, x[context], home.compounds)
         if progress:
             progress(len(core))
-        yield core, _core_rows(sl, context, core)
+        part = _core_rows(sl, context, core)
+        del sl, sub  # the context's rows are not kept while the caller works on the part
+        yield core, part
 
 
 def join_parts(parts: list[tuple[np.ndarray, Shortlist]], n: int) -> Shortlist:

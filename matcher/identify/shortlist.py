@@ -185,8 +185,14 @@ def shortlist(
     window_percent: float | None = None,
     top: int | None = None,
     neighbour: PreparedClass | None = None,
+    lead_only: np.ndarray | None = None,
 ) -> Shortlist:
     """Shortlist every peak against the home class (and the neighbour class as fallback).
+
+    ``lead_only`` (a boolean per peak) keeps only the leading row of those peaks
+    (a chunk's halo, see :func:`matcher.identify.screening.index_chunks`): they
+    take full part in the joint posterior and the run flags, but their other
+    rows are never built.
 
     ``neighbour`` enables the cross-class fallback: peaks whose best home
     candidate stays below :data:`FALLBACK_BELOW` are also searched in the
@@ -250,6 +256,8 @@ def shortlist(
     if len(gpeak):
         elsewhere[gpeak[r1]] = held[comp_key[r1]] - prob[r1]
     kept = rank_sorted <= top if top else np.ones(len(order), dtype=bool)
+    if lead_only is not None and len(order):
+        kept &= (rank_sorted <= 1) | ~np.asarray(lead_only, dtype=bool)[gpeak[order]]
     keep = order[kept]  # rows kept, already grouped by peak and ranked
     rank = np.zeros(len(gpeak), dtype=np.int64)
     rank[order] = rank_sorted
