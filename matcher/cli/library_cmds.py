@@ -86,9 +86,9 @@ def register(app: typer.Typer) -> None:
                  epilog=EX_SPECTRA)
     def import_spectra_cmd(
         file: Annotated[str, typer.Argument(metavar="FILE.jdx", help="JCAMP-DX file, one block per spectrum (concatenated or linked).")],
-        source: Annotated[Optional[str], typer.Option("--source", metavar="TEXT", help="Where the spectra come from (own standards, a collection the lab is licensed to use); kept with each spectrum.")] = None,
+        source: Annotated[Optional[str], typer.Option("--source", metavar="SOURCE", help="Where the spectra come from (own standards, a collection the lab is licensed to use); kept with each spectrum.")] = None,
         new: Annotated[bool, typer.Option("--new", help="Create a new compound for a name that is not in the library even when a library name is close to it.")] = False,
-        analyst: Annotated[Optional[str], typer.Option("--analyst", help="Who is importing (for the audit log; default: your login).")] = None,
+        analyst: Annotated[Optional[str], typer.Option("--analyst", metavar="WHO", help="Who is importing (for the audit log; default: your login).")] = None,
         db: DbOption = None,
     ) -> None:
         from matcher.api import open_library
@@ -98,7 +98,7 @@ def register(app: typer.Typer) -> None:
     @lib.command("export-spectra", help="Export the reference spectra as JCAMP-DX (one block each, with their provenance); "
                  "re-importing the file is lossless.", epilog=EX_EXPORT_SPECTRA)
     def export_spectra_cmd(
-        output: Annotated[Optional[str], typer.Option("-o", "--output", help="File to write (.jdx); default: standard output.")] = None,
+        output: Annotated[Optional[str], typer.Option("-o", "--output", metavar="OUT.jdx", help="File to write (.jdx); default: standard output.")] = None,
         name: Annotated[Optional[str], typer.Option("--name", metavar="NAME", help="Only this compound's spectra (name, synonym or CAS).")] = None,
         db: DbOption = None,
     ) -> None:
