@@ -112,7 +112,7 @@ def output_columns(table: pd.DataFrame | None = None) -> list[str]:
     """Contract columns, then detail columns, then any further columns of ``table``.
 
     >>> output_columns()[:3], len(output_columns())
-    (['peak', 'rt', 'ri'], 28)
+    (['peak', 'rt', 'ri'], 30)
     """
     cols = list(SHORTLIST_COLUMNS) + list(DETAIL_COLUMNS)
     if table is not None:
