@@ -564,9 +564,15 @@ def test_report_draws_both_spectra_for_peaks_to_review(oils_library, tmp_path):
 
     import jsonschema
 
-    schema = json.loads(importlib.resources.files("matcher.schemas").joinpath("screen-output.schema.json").read_text())
+    from referencing import Registry, Resource
+
+    folder = importlib.resources.files("matcher.schemas")
+    schemas = {p.name: json.loads(p.read_text(encoding="utf-8")) for p in folder.iterdir()
+               if p.name.endswith(".schema.json")}
+    registry = Registry().with_resources([(s["$id"], Resource.from_contents(s)) for s in schemas.values()])
     doc = json.loads(res.to_json())
-    jsonschema.Draft202012Validator(schema).validate(doc)
+    # the screen schema refers to calibration.schema.json by its $id: resolved here, never fetched
+    jsonschema.Draft202012Validator(schemas["screen-output.schema.json"], registry=registry).validate(doc)
     first = doc["runs"][0]["peaks"][1]["candidates"][0]
     assert 0 < first["spectrum_similarity"] < 1 and first["evidence"]["spectrum"] != 0
     assert doc["settings"]["spectrum_model"]["other_pairs"] > 0

@@ -86,7 +86,7 @@ def register(app: typer.Typer) -> None:
                  epilog=EX_SPECTRA)
     def import_spectra_cmd(
         file: Annotated[str, typer.Argument(metavar="FILE.jdx", help="JCAMP-DX file, one block per spectrum (concatenated or linked).")],
-        source: Annotated[Optional[str], typer.Option("--source", metavar="WHERE", help="Where the spectra come from (own standards, a collection the lab is licensed to use); kept with each spectrum.")] = None,
+        source: Annotated[Optional[str], typer.Option("--source", metavar="SOURCE", help="Where the spectra come from (own standards, a collection the lab is licensed to use); kept with each spectrum.")] = None,
         new: Annotated[bool, typer.Option("--new", help="Create a new compound for a name that is not in the library even when a library name is close to it.")] = False,
         analyst: Annotated[Optional[str], typer.Option("--analyst", metavar="WHO", help="Who is importing (for the audit log; default: your login).")] = None,
         db: DbOption = None,
