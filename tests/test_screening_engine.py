@@ -217,3 +217,23 @@ def test_a_long_run_scored_in_chunks_gives_the_same_calls_as_scored_whole(monkey
     assert np.array_equal(a[0], b[0])
     np.testing.assert_allclose(a[1], b[1], atol=1e-4)
     assert set(chunked.columns["peak"].tolist()) == set(range(3000))
+
+
+def test_log_sum_of_the_others_matches_the_direct_sum_also_for_extreme_values():
+    """PeakGroups.logsumexp_others (the belief-propagation messages) against log Σ_{others} exp summed directly
+    (each group also holds the element 0, the not-in-library option); values from -700 to 700 and -inf."""
+    from matcher.identify.assignment import PeakGroups
+
+    rng = np.random.default_rng(8)
+    for trial in range(30):
+        m, n = int(rng.integers(1, 60)), int(rng.integers(1, 12))
+        key = rng.integers(0, n, m)
+        a = rng.normal(0, 30, m) * rng.choice([1.0, 20.0], m)
+        a[rng.random(m) < 0.1] = -np.inf
+        a[rng.random(m) < 0.1] = 0.0  # ties with the group's 0 element
+        got = PeakGroups(key, n).logsumexp_others(a)
+        for i in range(m):
+            others = np.r_[np.delete(a, i)[np.delete(key, i) == key[i]], 0.0]
+            top = others.max()
+            want = top + np.log(np.sum(np.exp(others - top)))
+            assert got[i] == pytest.approx(want, rel=1e-9, abs=1e-9), (trial, i)

@@ -210,21 +210,45 @@ class PeakGroups:
         return m1 + np.log(s)
 
     def logsumexp_others(self, a: np.ndarray) -> np.ndarray:
-        """log Σ exp over the other members of each element's group (the 0 element included): per edge."""
-        ext = np.concatenate([a, np.zeros(self.n)])[self.order]
-        pos = np.arange(len(ext))
+        """log Σ exp over the other members of each element's group (the 0 element included): per edge.
+
+        With m1 the group's largest value and S = Σ exp(x − m1), an element below the maximum gets
+        m1 + log(S − exp(x − m1)); the (first) maximum itself gets the log-sum of the rest, taken
+        around the group's second largest value so that nothing cancels.
+        """
+        if not hasattr(self, "_pos"):
+            self._pos = np.arange(self.m + self.n)
+            self._ext = np.zeros(self.m + self.n)
+        ext = self._ext
+        ext[: self.m] = a
+        ext = ext[self.order]
         m1 = np.maximum.reduceat(ext, self.starts)
-        is_max = ext == m1[self.gid]
-        first = np.minimum.reduceat(np.where(is_max, pos, len(ext)), self.starts)
+        m1g = m1[self.gid]
+        d = ext - m1g
+        e1 = np.exp(d)
+        s1 = np.add.reduceat(e1, self.starts)
+        pos = self._pos
+        first = np.minimum.reduceat(np.where(d == 0.0, pos, len(ext)), self.starts)
         top = pos == first[self.gid]
-        rest = np.where(top, -np.inf, ext)
-        m2 = np.maximum.reduceat(rest, self.starts)
-        s1 = np.add.reduceat(np.exp(ext - m1[self.gid]), self.starts)
         with np.errstate(divide="ignore", invalid="ignore"):
-            s2 = np.add.reduceat(np.where(top, 0.0, np.exp(ext - np.where(np.isfinite(m2), m2, 0.0)[self.gid])), self.starts)
-            others_not_top = m1[self.gid] + np.log(np.maximum(s1[self.gid] - np.exp(ext - m1[self.gid]), 1e-300))
-            others_top = np.where(np.isfinite(m2), m2, -np.inf)[self.gid] + np.log(np.maximum(s2[self.gid], 1e-300))
-        out_sorted = np.where(top, others_top, others_not_top)
+            out_sorted = m1g + np.log(np.maximum(s1[self.gid] - e1, 1e-300))
+            # the maximum of each group: log(S − 1) + m1 unless the rest is too small beside it to subtract,
+            # then the rest summed around the group's second largest value (only those groups)
+            tops = np.flatnonzero(top)
+            g = self.gid[tops]
+            rest_sum = s1[g] - 1.0
+            out_sorted[tops] = m1[g] + np.log(np.maximum(rest_sum, 1e-300))
+            tiny = rest_sum < 1e-6
+            if tiny.any():
+                groups = g[tiny]
+                members = np.isin(self.gid, groups) & ~top
+                sub_gid = self.gid[members]
+                m2 = np.full(len(self.starts), -np.inf)
+                np.maximum.at(m2, sub_gid, ext[members])
+                s2 = np.zeros(len(self.starts))
+                np.add.at(s2, sub_gid, np.exp(ext[members] - m2[sub_gid]))
+                out_sorted[tops[tiny]] = np.where(np.isfinite(m2[groups]), m2[groups] + np.log(np.maximum(s2[groups], 1e-300)),
+                                                  -np.inf)
         out = np.empty(len(ext))
         out[self.order] = out_sorted
         return out[: self.m]
