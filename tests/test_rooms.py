@@ -111,7 +111,7 @@ def test_no_file_cites_a_design_document_the_repository_lacks():
         if path.name == "test_rooms.py":
             continue
         text = path.read_text(encoding="utf-8")
-        for needle in ("DESIGN.md", "../shared"):
+        for needle in ("DESIGN" + ".md", ".." + "/shared"):  # spelled in two parts so this file does not cite them
             if needle in text:
                 cited.append(f"{path.relative_to(root)} cites {needle}")
     assert not cited, cited
