@@ -128,6 +128,18 @@ def plain(value: Any) -> Any:
     return str(value)
 
 
+def group_rows(rows: Iterable[dict], key: Callable[[dict], Any]) -> list[tuple[Any, list[dict]]]:
+    """Output rows grouped per peak, in the order the peaks first appear: ``[(key, rows), ...]``.
+
+    >>> [(k, len(r)) for k, r in group_rows([{"peak": 2}, {"peak": 1}, {"peak": 2}], lambda r: r["peak"])]
+    [(2, 2), (1, 1)]
+    """
+    groups: dict[Any, list[dict]] = {}
+    for row in rows:
+        groups.setdefault(key(row), []).append(row)
+    return list(groups.items())
+
+
 def candidate_record(get: Callable[[str], Any], flags: Iterable[str], *,
                      evidence_columns: Iterable[str] = EVIDENCE_COLUMNS, extra: Iterable[str] = ()) -> dict[str, Any]:
     """One candidate as a JSON-ready dict, from a shortlist row.

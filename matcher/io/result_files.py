@@ -282,24 +282,15 @@ def _group_rows(rows: list[dict], columns: list[str]) -> list[dict]:
     """Output rows grouped per peak (in file order): the peak's fields once, the ranked candidates nested."""
     import matcher.results as results
     from matcher.results import (DETAIL_COLUMNS, EVIDENCE_COLUMNS, PEAK_KEYS, SHORTLIST_COLUMNS,
-                                 candidate_record, plain)
+                                 candidate_record, group_rows, plain)
 
     prefix = results.EVIDENCE_PREFIX
     ev_cols = [c for c in EVIDENCE_COLUMNS if c in columns] + [
         c for c in columns if c.startswith(prefix) and c not in EVIDENCE_COLUMNS]
     known = set(SHORTLIST_COLUMNS) | set(DETAIL_COLUMNS) | set(ev_cols)
     extra = [c for c in columns if c not in known]
-    order: list[str] = []
-    groups: dict[str, list[dict]] = {}
-    for row in rows:
-        key = str(plain(row.get("peak")))
-        if key not in groups:
-            groups[key] = []
-            order.append(key)
-        groups[key].append(row)
     peaks = []
-    for key in order:
-        rows_p = groups[key]
+    for key, rows_p in group_rows(rows, lambda row: str(plain(row.get("peak")))):
         first = rows_p[0]
         peak = {k: plain(first.get(k)) for k in PEAK_KEYS}
         peak["peak"] = key

@@ -75,12 +75,13 @@ from matcher.results import (
     SHORTLIST_COLUMNS,
     RunResult,
     ScreenResult,
+    RECORD_FIELDS,
     candidate_record,
+    group_rows,
 )
 from matcher.rules import SHORTLIST_SUFFIXES
 from matcher.report.summary import split_flags, summarise_table, summary_of  # noqa: F401
 from matcher.report.wording import FINDING_LABELS, format_time, gap_text, readable, settings_rows
-from matcher.results import RECORD_FIELDS
 from matcher.safe_text import neutralise, spreadsheet_text
 from matcher.io.result_files import SIDECAR_SUFFIX, sidecar_path  # noqa: F401 - part of this module's API
 from matcher.location import mask_secrets, mask_url
@@ -288,18 +289,8 @@ def _peaks(table: pd.DataFrame) -> list[dict[str, Any]]:
     records = table.to_dict("records")
     ev_cols = list(EVIDENCE_COLUMNS) + [c for c in table.columns if c.startswith(EVIDENCE_PREFIX) and c not in EVIDENCE_COLUMNS]
     extra = [c for c in table.columns if c not in output_columns() and c not in ev_cols]
-    order: list[Any] = []
-    groups: dict[Any, list[dict]] = {}
-    for rec in records:
-        key = jsonable(rec.get("peak"))
-        key = (type(key).__name__, key)
-        if key not in groups:
-            groups[key] = []
-            order.append(key)
-        groups[key].append(rec)
     peaks = []
-    for key in order:
-        rows = groups[key]
+    for _, rows in group_rows(records, lambda rec: (type(jsonable(rec.get("peak"))).__name__, jsonable(rec.get("peak")))):
         first = rows[0]
         peak = {k: jsonable(first.get(k)) for k in PEAK_KEYS}
         flag_lists = [split_flags(r.get("flags")) for r in rows]
