@@ -5,6 +5,8 @@ from __future__ import annotations
 import shutil
 from pathlib import Path
 
+import pytest
+
 PORT = 48123  # the port the test client pretends to be served on (no socket is opened)
 
 
@@ -31,3 +33,15 @@ def copy_library(demo: Path, target: Path) -> Path:
 
     matcher.open_library(str(demo / "demo-library.sqlite")).backup(str(target))
     return target
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory):
+    """The demo screened once per test module."""
+    return demo_outputs(tmp_path_factory.mktemp("demo"))
+
+
+@pytest.fixture
+def result(demo, tmp_path):
+    """A fresh copy of the demo's shortlist (with its sidecar) for one test."""
+    return copy_result(demo, tmp_path)

@@ -22,20 +22,10 @@ with warnings.catch_warnings():  # newer Starlette suggests another HTTP client 
 from matcher.errors import MatcherError
 from matcher.review.server import TOKEN_HEADER, create_app
 from matcher.review.session import open_review, record_path
-from review_helpers import PORT, copy_library, copy_result, demo_outputs
+from review_helpers import PORT, copy_library, copy_result, demo, result  # noqa: F401 - fixtures
 
 TOKEN = "t0ken-for-tests-only"
 BASE = f"http://127.0.0.1:{PORT}"
-
-
-@pytest.fixture(scope="module")
-def demo(tmp_path_factory):
-    return demo_outputs(tmp_path_factory.mktemp("demo"))
-
-
-@pytest.fixture
-def result(demo, tmp_path):
-    return copy_result(demo, tmp_path)
 
 
 def client_for(result, reviewer="ana", db=None):

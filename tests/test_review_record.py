@@ -20,7 +20,7 @@ from matcher.io.result_files import read_result
 from matcher.review import record as rec
 from matcher.review.session import open_review, record_path, result_of_record
 from result_factory import HOSTILE_NAMES, make_result
-from review_helpers import copy_library, copy_result, demo_outputs
+from review_helpers import copy_library, copy_result, demo, result  # noqa: F401 - fixtures
 
 runner = CliRunner()
 
@@ -39,16 +39,6 @@ class _Run:
 
 def invoke(args):
     return _Run(args)
-
-
-@pytest.fixture(scope="module")
-def demo(tmp_path_factory):
-    return demo_outputs(tmp_path_factory.mktemp("demo"))
-
-
-@pytest.fixture
-def result(demo, tmp_path):
-    return copy_result(demo, tmp_path)
 
 
 # ------------------------------------------------------------------ the record, pure

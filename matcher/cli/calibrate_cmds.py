@@ -6,7 +6,7 @@ from typing import Annotated, List, Optional
 
 import typer
 
-from matcher.cli.common import JsonFlag, emit_data, note, parse_map, say
+from matcher.cli.common import JsonFlag, MinSnrOption, emit_data, note, parse_map, say
 
 CALIBRATE_EXAMPLE = """\b
 Example (the distillery lab's n-alkane ladder, programmed oven):
@@ -115,7 +115,7 @@ def register(app: typer.Typer) -> None:
         rt_unit: Annotated[Optional[str], typer.Option("--rt-unit", metavar="UNIT", help="Unit of the ladder's times: min or s (default: from the header, else min).")] = None,
         mapping: Annotated[Optional[List[str]], typer.Option("--map", metavar="COLUMN=HEADER", help="Use this header for a column, e.g. --map rt='Time of apex'. Repeatable.")] = None,
         carbons: Annotated[Optional[str], typer.Option("--carbons", metavar="FIRST-LAST", help="Run files: chain lengths of the first and last alkane, e.g. 8-20 (needed when no molecular ion is visible).")] = None,
-        min_snr: Annotated[Optional[float], typer.Option("--min-snr", metavar="K", help="Run files: a peak needs a prominence of K x the run's noise (default 5).")] = None,
+        min_snr: MinSnrOption = None,
         as_json: JsonFlag = False,
     ) -> None:
         import json

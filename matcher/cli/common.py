@@ -12,6 +12,13 @@ from matcher.rules import PHASE_CLASSES
 #: Help text of every ``--class`` option (the names come from :data:`matcher.rules.PHASE_CLASSES`).
 CLASS_HELP = "Polarity class of the column: " + ", ".join(PHASE_CLASSES) + "."
 
+#: ``--min-snr`` of the commands that read GC-MS run files (peaks, calibrate, screen): one declaration.
+MinSnrOption = Annotated[
+    Optional[float],
+    typer.Option("--min-snr", metavar="K", help="Run files: a peak needs a prominence of K x the run's noise (default 5).",
+                 show_default=False),
+]
+
 DbOption = Annotated[
     Optional[str],
     typer.Option(

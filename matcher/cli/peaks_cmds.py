@@ -6,7 +6,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from matcher.cli.common import note, say
+from matcher.cli.common import MinSnrOption, note, say
 
 EXAMPLE = """\b
 Example (the distillery lab's run exported as ASTM E2077 netCDF):
@@ -33,7 +33,7 @@ def register(app: typer.Typer) -> None:
         run: Annotated[str, typer.Argument(metavar="RUN", help="Run file: ASTM E2077 netCDF (netCDF-3 or -4) or mzML.")],
         output: Annotated[str, typer.Option("-o", "--output", metavar="PEAKS.csv", help="Where to write the peak table (CSV; - for standard output).")],
         spectra_out: Annotated[Optional[str], typer.Option("--spectra-out", metavar="SPECTRA.jdx", help="Also write every peak's spectrum as one JCAMP-DX file.")] = None,
-        min_snr: Annotated[Optional[float], typer.Option("--min-snr", metavar="K", help="A peak needs a prominence of K x the run's noise (default 5).")] = None,
+        min_snr: MinSnrOption = None,
         no_deconvolve: Annotated[bool, typer.Option("--no-deconvolve", help="Keep co-eluting compounds as one TIC peak.")] = False,
     ) -> None:
         from matcher.api import detect_peaks

@@ -7,7 +7,7 @@ from typing import Annotated, List, Optional
 import typer
 
 from matcher import CAUTION
-from matcher.cli.common import CLASS_HELP, DbOption, note, parse_map, say
+from matcher.cli.common import CLASS_HELP, DbOption, MinSnrOption, note, parse_map, say
 
 EXAMPLE = """
 Examples
@@ -74,7 +74,7 @@ def register(app: typer.Typer) -> None:
         old_out: Annotated[Optional[str], typer.Option("--out", hidden=True, metavar="OUT")] = None,
         crowding: Annotated[Optional[str], typer.Option("--crowding", metavar="TYPE|N", help="How crowded the sample is with compounds not in the library, as a prior: sparse, moderate (default), crowded, dense, or unlisted peaks per 100 index units. The run's own peaks refine it.")] = None,
         split_peaks: Annotated[bool, typer.Option("--split-peaks", help="Let one compound explain several peaks (split or overloaded peaks); by default a compound explains at most one peak of a run.")] = False,
-        min_snr: Annotated[Optional[float], typer.Option("--min-snr", metavar="K", help="Run files: a peak needs a prominence of K x the run's noise (default 5).")] = None,
+        min_snr: MinSnrOption = None,
         spectra: Annotated[Optional[List[str]], typer.Option("--spectra", metavar="RUN.jdx", help="The peaks' mass spectra: a JCAMP-DX file per run (in the order of the runs), each block titled by its peak id. A 'spectrum' column of the peak table is read without it.")] = None,
         quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bar and no summary.")] = False,
         sample: Annotated[Optional[str], typer.Option("--sample", metavar="SAMPLE", help="Sample or lot, for the QC record (default: from the peak table's preamble).")] = None,

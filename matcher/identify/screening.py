@@ -690,6 +690,12 @@ def _anchor_entry_sd(home: PreparedClass, ref: np.ndarray) -> np.ndarray:
     return np.where(np.abs(e.ri[k] - ref) < 1e-6, e.sd[k], 0.0)
 
 
+def _given_decimals(table, kept: set[str] | None = None) -> dict[str, int]:
+    """Peak id -> decimals its time was given with; a streamed run keeps them only for the peaks it keeps."""
+    return {str(p): int(d) for p, d in zip(table.peak, getattr(table, "rt_decimals", ()) or ())
+            if d is not None and (kept is None or str(p) in kept)}
+
+
 def _concat(frames):
     import pandas as pd
 
@@ -914,8 +920,7 @@ def screen(
             table=df, calibration=None if cal is None else cal.to_dict(), correction=public_correction(prep.correction),
             index_scatter=prep.model.index_scatter, notices=prep.notices + sorted(notes), peak_count=len(table.peak),
             run_model=prep.info, checksum=getattr(table, "checksum", ""), record=_record(table, record),
-            rt_decimals={str(p): int(d) for p, d in zip(table.peak, getattr(table, "rt_decimals", ()) or ())
-                         if d is not None},
+            rt_decimals=_given_decimals(table, kept=set(df["peak"].astype(str)) if sink is not None else None),
             streamed=sink is not None, chromatogram=getattr(table, "chromatogram", None) or None,
             spectra=shown_spectra,
         ))

@@ -19,7 +19,6 @@ import json
 import os
 import sys
 import tempfile
-import time
 import warnings
 from pathlib import Path
 
@@ -52,12 +51,11 @@ def build(folder: Path, peaks: int) -> Path:
 
 
 def best(fn, repeat: int = 3) -> float:
-    times = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return min(times)
+    """The best of ``repeat`` timings (the same helper as bench_ri.py's)."""
+    sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+    from bench_ri import best as _best
+
+    return _best(fn, repeat)
 
 
 def main() -> None:
