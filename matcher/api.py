@@ -356,7 +356,9 @@ def screen(peaks: Any, *, phase_class: str | Sequence[str], calibration: Any = N
            labels: Sequence[str] | None = None, spectra: Any = None, sample: str | None = None, analyst: str | None = None,
            instrument: str | None = None, column: str | None = None,
            progress: Callable[[int], None] | None = None, min_snr: float | None = None,
-           output: str | os.PathLike | None = None, report: str | os.PathLike | None = None) -> "ScreenResult":
+           output: str | os.PathLike | None = None, report: str | os.PathLike | None = None,
+           second: Any = None, second_class: str | None = None, second_calibration: Any = None,
+           second_ladder: Any = None, second_spectra: Any = None) -> "ScreenResult":
     """Shortlist every peak of one run, or of a batch, against the library.
 
     ``peaks``: a peak table (path, DataFrame or :class:`~matcher.io.peak_tables.PeakTable`)
@@ -382,6 +384,18 @@ def screen(peaks: Any, *, phase_class: str | Sequence[str], calibration: Any = N
     reference spectra, they add ``spectrum_similarity`` and the
     ``evidence_spectrum`` evidence.
 
+    Two columns: ``second`` is the same sample run on a column of another polarity
+    class ``second_class`` (a peak table or run file, with ``second_calibration`` or
+    ``second_ladder`` and ``second_spectra`` as for the first run). Its peaks are
+    paired with the first run's and every peak is scored with the evidence of both
+    columns (:mod:`matcher.identify.two_columns`); the table gains the columns
+    ``second_peak``, ``second_ri``, ``second_library_ri``, ``second_delta_ri`` and
+    ``evidence_second``.
+
+    >>> import matcher  # doctest: +SKIP
+    >>> res = matcher.screen("run_5ms.csv", phase_class="slightly-polar", ladder="alkanes_5ms.csv",
+    ...                      second="run_wax.csv", second_class="polar", second_ladder="alkanes_wax.csv")  # doctest: +SKIP
+
     ``output`` writes the shortlist (``.csv`` with its provenance sidecar, ``.json``
     or ``.xlsx``) and ``report`` the HTML report, both checked before any work
     and guarded against overwriting an input or the library. A CSV is written
@@ -399,7 +413,9 @@ def screen(peaks: Any, *, phase_class: str | Sequence[str], calibration: Any = N
                        adaptive=adaptive, anchors=None if anchors is None else os.fspath(anchors),
                        index_scatter=index_scatter, crowding=crowding, split_peaks=split_peaks, labels=labels,
                        record={"sample": sample, "analyst": analyst, "instrument": instrument, "column": column},
-                       spectra=spectra, progress=progress, min_snr=min_snr, sink=sink)
+                       spectra=spectra, progress=progress, min_snr=min_snr, sink=sink, second=second,
+                       second_class=second_class, second_calibration=second_calibration, second_ladder=second_ladder,
+                       second_spectra=second_spectra)
 
     if output is None and report is None:
         return run()
@@ -421,7 +437,10 @@ def screen(peaks: Any, *, phase_class: str | Sequence[str], calibration: Any = N
     guard_outputs(outs + [("--report", report)], db=src["db"] if "db" in src else False,
                   inputs=extra("the peak table", listed) + extra("the calibration", calibration)
                   + extra("the ladder", ladder) + extra("the anchors file", anchors)
-                  + extra("the spectra file", spectra))
+                  + extra("the spectra file", spectra) + extra("the second run", second)
+                  + extra("the second run's calibration", second_calibration)
+                  + extra("the second run's ladder", second_ladder)
+                  + extra("the second run's spectra file", second_spectra))
     if csv_out:
         from matcher.report.summary import add_summaries, summarise_table
 

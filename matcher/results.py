@@ -62,6 +62,13 @@ DETAIL_COLUMNS: tuple[str, ...] = (
     "spectrum_similarity",  # Stein & Scott composite similarity 0-1 of the peak's and the candidate's spectra
 )
 
+#: Columns of a two-column screen only (matcher.identify.two_columns), after the detail columns: the peak of the
+#: second run paired with this one and its index, the candidate's library index on the second class, the
+#: deviation there (second index − library) and the second column's evidence (log likelihood ratio).
+SECOND_COLUMNS: tuple[str, ...] = ("second_peak", "second_ri", "second_library_ri", "second_delta_ri",
+                                   "evidence_second")
+#: Of these, the ones that belong to the peak (its partner), not to a candidate.
+SECOND_PEAK_KEYS: tuple[str, ...] = ("second_peak", "second_ri")
 
 #: The evidence columns (natural-log likelihood ratios against not-in-library); a
 #: candidate record's ``evidence`` object holds them without the ``evidence_`` prefix.
@@ -191,6 +198,9 @@ class RunResult:
     chromatogram: dict[str, Any] | None = None
     record: dict[str, Any] = field(default_factory=dict)  # RECORD_FIELDS given or read from the preamble, and 'preamble'
     rt_decimals: dict[str, int] = field(default_factory=dict)  # peak id -> decimals its time was given with
+    #: a two-column screen: the second run's source, label, class, calibration, correction, scatter, run model,
+    #: the pairing's settings and counts, and the pairs with their indices (matcher.identify.two_columns)
+    second: dict[str, Any] | None = None
 
     def time_text(self, peak: Any, minutes: Any) -> str:
         """The peak's retention time as text, as precise as it was given (see matcher.report.wording.format_time)."""

@@ -34,9 +34,18 @@ likely-not-in-library    peak     not_in_library ≥ 0.5
 no-candidate             peak     no library entry inside the window
 same-compound-twice      run      the same compound ranks first for another peak more than w away
 homologues-out-of-order  run      two ranked-first members of one homologous series elute out of order
+columns-agree            cand.    two-column screen: the paired peak of the second run lies inside this candidate's
+                                  window on the second class too
+second-column-disagrees  cand.    two-column screen: the paired peak lies outside the candidate's window on the
+                                  second class (on the first candidate: review)
+not-on-second-class      cand.    two-column screen: the candidate has no entry on the second class; that column's
+                                  evidence comes from the not-in-library model
+unpaired                 peak     two-column screen: no peak of the second run was paired with this one (on the
+                                  leading row: review)
 review                   lead     any of: ambiguous, contested, likely-not-in-library, extrapolated, no-candidate,
                                   top probability < 0.5, or a top candidate that is cross-class,
-                                  predicted, mass-mismatch or spectrum-unlike, or a run flag
+                                  predicted, mass-mismatch or spectrum-unlike, or a run flag, or
+                                  second-column-disagrees / unpaired on the first candidate
 =======================  =======  ===================================================================
 
 >>> combine(np.array([[True, False], [True, True], [False, False]]), ["in-window", "ambiguous"]).tolist()
@@ -53,7 +62,8 @@ VOCABULARY: tuple[str, ...] = (
     "in-window", "window-edge", "single-observation", "mass-match", "mass-mismatch", "no-formula",
     "ions-agree", "ions-disagree", "hit-agrees", "spectrum-alike", "spectrum-unlike", "cross-class", "predicted",
     "extrapolated", "ambiguous", "contested", "likely-not-in-library", "no-candidate",
-    "same-compound-twice", "homologues-out-of-order", "review",
+    "same-compound-twice", "homologues-out-of-order",
+    "columns-agree", "second-column-disagrees", "not-on-second-class", "unpaired", "review",
 )
 
 EDGE_FRACTION = 0.7
@@ -125,7 +135,8 @@ def row_flags(cols: dict, *, window, mass_state, ions_state, hit_agrees, extrapo
         cand & (ions_ok >= 0.5), cand & (ions_ok >= 0) & (ions_ok < 0.5), cand & hit_agrees,
         cand & alike, unlike,
         cross, pred, extrap, ambiguous, contest, unlisted, no_cand,
-        np.zeros(n, bool), np.zeros(n, bool), review,
+        *[np.zeros(n, bool)] * (len(VOCABULARY) - 1 - VOCABULARY.index("same-compound-twice")),  # set later
+        review,
     ])
     return combine(masks, VOCABULARY)
 

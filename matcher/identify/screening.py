@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import os
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any, Callable, Iterable, Sequence
 
 import numpy as np
@@ -27,7 +27,7 @@ from matcher.classes import check_class
 from matcher.errors import InputError, MatcherError
 from matcher.identify.evidence import DEFAULT_MEASUREMENT_SD, Model, PeakHints
 from matcher.identify.hints import ion_masks
-from matcher.results import DETAIL_COLUMNS, REPORT_PEAKS, SHORTLIST_COLUMNS, RunResult, ScreenResult
+from matcher.results import DETAIL_COLUMNS, REPORT_PEAKS, SECOND_COLUMNS, SHORTLIST_COLUMNS, RunResult, ScreenResult
 from matcher.identify.shortlist import PeakInput, PreparedClass, Shortlist, neighbour_of, prepare, shortlist
 from matcher.store.snapshot import LibrarySnapshot
 
@@ -140,6 +140,7 @@ def _subset(peaks: PeakInput, idx: np.ndarray) -> PeakInput:
         None if peaks.extrapolated is None else np.asarray(peaks.extrapolated)[idx],
         None if peaks.unlisted is None else np.asarray(peaks.unlisted)[idx],
         None if peaks.spectra is None else peaks.spectra.take(idx),
+        None if peaks.second is None else peaks.second.take(idx),
     )
 
 
@@ -448,13 +449,16 @@ def _table(sl: Shortlist, label: str, phase_class: str, peak_ids, rt, x, x_raw, 
         "evidence_spectrum": c["evidence_spectrum"],
         "spectrum_similarity": c["spectrum_similarity"],
     }
+    second = [k for k in SECOND_COLUMNS if k in c]  # a two-column screen (matcher.identify.two_columns)
+    data.update({k: c[k] for k in second})
     df = pd.DataFrame(data)
     df.loc[df["rank"].isna(), "library_observations"] = pd.NA
-    return df[list(SHORTLIST_COLUMNS) + list(DETAIL_COLUMNS)]
+    return df[list(SHORTLIST_COLUMNS) + list(DETAIL_COLUMNS) + second]
 
 
 def _with(peaks: PeakInput, x: np.ndarray, lam: np.ndarray) -> PeakInput:
-    return PeakInput(x, peaks.mol_ion, peaks.ions, peaks.hit, peaks.hit_match, peaks.extrapolated, lam, peaks.spectra)
+    return PeakInput(x, peaks.mol_ion, peaks.ions, peaks.hit, peaks.hit_match, peaks.extrapolated, lam, peaks.spectra,
+                     peaks.second)
 
 
 def _shift_profile(home: PreparedClass, peaks: PeakInput, model: Model, w: np.ndarray, lam: np.ndarray) -> float:
@@ -757,6 +761,172 @@ def _classes(phase_class: Any, n_runs: int) -> list[str]:
     return classes * n_runs if len(classes) == 1 else classes
 
 
+def _load_run(run: RunInput, spectra_file, *, rt_unit, header_map, min_snr, mode, dead_time):
+    """One run read and converted to indices: (run, table, calibration, indices, extrapolated, spectra)."""
+    from matcher.io.peak_tables import PeakTable
+    from matcher.signal.run_peaks import read_peaks_or_run
+
+    table = run.peaks if isinstance(run.peaks, PeakTable) else read_peaks_or_run(
+        run.peaks, rt_unit=rt_unit, overrides=header_map, min_snr=min_snr)
+    cal = None
+    extrap = np.zeros(len(table.peak), dtype=bool)
+    if table.has_ri:
+        x = np.asarray(table.ri, dtype=float)
+    else:
+        cal = _calibrate(run, mode, dead_time, rt_unit, min_snr)
+        if cal is None:
+            raise MatcherError(f"{run.peaks_path}: the table has no 'ri' column; give --calibration CAL.json or --ladder LADDER.csv")
+        x, extrap = cal.convert(np.asarray(table.rt, dtype=float))
+    spec = None
+    if spectra_file is not None:
+        if getattr(table, "spectra", ()):
+            raise MatcherError(f"{run.peaks_path} has a 'spectrum' column and --spectra {spectra_file} "
+                               "was given too: give the spectra once")
+        spec = peak_spectra(spectra_file, np.asarray(table.peak))
+    elif getattr(table, "spectra", ()):
+        spec = list(table.spectra)
+    return run, table, cal, np.asarray(x, dtype=float), np.asarray(extrap, dtype=bool), spec
+
+
+def _plan_second(plan: list[RunInput], second, second_class, calibration, ladder, spectra) -> dict:
+    """The second column's run of a two-column screen, checked against the first."""
+    if len(plan) != 1:
+        raise MatcherError(f"a two-column screen pairs one run with one run: {len(plan)} runs were given with --second")
+    if second_class is None:
+        raise MatcherError("give the second column's polarity class: --second-class CLASS")
+    if _as_list(second) and len(_as_list(second)) != 1:
+        raise MatcherError("give one run with --second")
+    runs = plan_runs(second, calibration, ladder)
+    if len(_as_list(spectra)) > 1:
+        raise MatcherError("give one spectra file with --second-spectra")
+    return {"run": runs[0], "class": check_class(second_class),
+            "spectra": _as_list(spectra)[0] if spectra is not None else None}
+
+
+def exclusive_odds(logw: np.ndarray, peak: np.ndarray, compound: np.ndarray, n: int, exclusive: bool) -> np.ndarray:
+    """Log odds of each (peak, compound) row against not-in-library after the run's joint model
+    (:func:`matcher.identify.assignment.assign`): ln P(peak is j) − ln P(peak is none)."""
+    from matcher.identify.assignment import assign
+
+    if not len(logw):
+        return np.asarray(logw, dtype=float)
+    prob, nil = assign(np.asarray(logw, float), peak, compound, n, exclusive=exclusive)
+    with np.errstate(divide="ignore"):
+        return np.log(np.maximum(prob, 1e-300)) - np.log(np.maximum(nil[peak], 1e-300))
+
+
+def _pair_with_second(home: PreparedClass, prep: PreparedRun, home_b: PreparedClass, prep_b: PreparedRun, *,
+                      window, window_percent, ids_b, area_a, area_b, spectra_b) -> tuple[Any, Any]:
+    """Pair the first run's peaks with the second run's (matcher.identify.two_columns): (SecondColumn, Pairing)."""
+    from matcher.identify.shortlist import score_class
+    from matcher.identify.two_columns import SecondColumn, pair_peaks, per_compound
+
+    for which, p in (("first", prep), ("second", prep_b)):
+        if len(p.x) > CHUNK:
+            raise MatcherError(f"the {which} run has {len(p.x)} peaks: a two-column screen pairs runs of at most "
+                               f"{CHUNK} peaks each")
+    x_a, x_b = prep.x, prep_b.x
+    w_a = half_widths(x_a, home.phase_class, window, window_percent)
+    w_b = half_widths(x_b, home_b.phase_class, None, None)
+    lam_a = np.asarray(prep.peaks.unlisted, float)
+    lam_b = np.asarray(prep_b.peaks.unlisted, float)
+    pa, sa, ga, _ = score_class(home, replace(prep.peaks, second=None), np.arange(len(x_a)), w_a, prep.model,
+                                home.mass_bg, 0.0, 1.0, lam_a)
+    pb, sb, gb, _ = score_class(home_b, PeakInput(x_b, unlisted=lam_b), np.arange(len(x_b)), w_b, prep_b.model,
+                                home_b.mass_bg, 0.0, 1.0, lam_b)
+    spectra_a = prep.peaks.spectra
+    comp_a, comp_b = home.entries.compound[pa.entry], home_b.entries.compound[pb.entry]
+    # each run's odds after its own one-compound-one-peak model: a compound another peak holds pairs nothing
+    odds_a = exclusive_odds(sa.logw, ga, comp_a, len(x_a), prep.model.exclusive)
+    odds_b = exclusive_odds(sb.logw, gb, comp_b, len(x_b), prep_b.model.exclusive)
+    pairing = pair_peaks(a_peak=ga, a_comp=comp_a, a_logw=odds_a, n_a=len(x_a),
+                         b_peak=gb, b_comp=comp_b, b_ev=sb.evidence_index + (odds_b - sb.logw),
+                         b_logw=odds_b, n_b=len(x_b), area_a=area_a, area_b=area_b, spectra_a=spectra_a,
+                         spectra_b=spectra_b, spectrum_model=home.spectrum_model)
+    n_comp = len(home.compounds)
+    lib_ri, lib_sd = per_compound(home_b.entries, min(n_comp, len(home_b.compounds)))
+    partner = pairing.partner
+    safe = np.where(partner >= 0, partner, 0)
+    has = partner >= 0
+    second = SecondColumn(
+        phase_class=home_b.phase_class, partner=partner,
+        peak_id=np.where(has, np.asarray(ids_b, dtype=object)[safe] if len(x_b) else "", "").astype(object),
+        ri=np.where(has, x_b[safe] if len(x_b) else np.nan, np.nan),
+        unlisted=np.where(has, lam_b[safe] if len(x_b) else 1.0, 1.0),
+        window=np.where(has, w_b[safe] if len(x_b) else np.nan, np.nan),
+        library_ri=lib_ri, library_spread=lib_sd, index_scatter=float(prep_b.model.index_scatter))
+    return second, pairing
+
+
+def peaks_area(table) -> np.ndarray | None:
+    """The peaks' areas (else their area per cent), for comparing two runs of one injection; None without."""
+    for key in ("area", "area_percent"):
+        v = getattr(table, key, None)
+        if v is not None and np.isfinite(np.asarray(v, dtype=float)).any():
+            return np.asarray(v, dtype=float)
+    return None
+
+
+def _prepare_second(two: dict, prepared: dict, home: PreparedClass, prep: PreparedRun, ids_a, area_a, snapshot,
+                    index_scatter, *, window, window_percent, adaptive, anchors, crowding, split_peaks) -> dict:
+    """Prepare the second run on its own class, pair it with the first, and put its evidence on ``prep.peaks``.
+
+    Returns the second run's provenance for :attr:`RunResult.second`."""
+    from matcher.chem.spectra import SpectrumSet
+
+    run_b, table_b, cal_b, x_b_raw, extrap_b, spec_b = two["loaded"]
+    home_b = prepared[two["class"]][0]
+    label_b = _label(run_b)
+    ids_b = np.asarray(table_b.peak)
+    packed_b = SpectrumSet.from_spectra(spec_b).with_cache() if spec_b is not None else None
+    peaks_b = PeakInput(x_b_raw, table_b.mol_ion, table_b.ions, table_b.hit, table_b.hit_match, extrap_b,
+                        spectra=packed_b)
+    sd_b = DEFAULT_MEASUREMENT_SD[home_b.phase_class] if index_scatter is None else float(index_scatter)
+    anchors_b = _anchors_from_file(anchors, label_b, ids_b, snapshot, home_b) if anchors else None
+    prep_b = prepare_run(home_b, peaks_b, sd_b, adaptive=adaptive or bool(anchors), user_anchors=anchors_b,
+                         estimate_scatter=index_scatter is None, peak_ids=ids_b, crowding=crowding,
+                         exclusive=not split_peaks)
+    second, pairing = _pair_with_second(home, prep, home_b, prep_b, window=window, window_percent=window_percent,
+                                        ids_b=ids_b, area_a=area_a, area_b=peaks_area(table_b), spectra_b=packed_b)
+    prep.peaks = replace(prep.peaks, second=second)
+    pairs = np.flatnonzero(pairing.partner >= 0)
+    unpaired_b = np.setdiff1d(np.arange(len(ids_b)), pairing.partner[pairs])
+    info = dict(pairing.info)
+    if info.get("unpaired_second"):
+        shown = ", ".join(str(ids_b[i]) for i in unpaired_b[:20])
+        prep.notices.append(f"{len(unpaired_b)} peak(s) of the second run paired with no peak of the first: {shown}"
+                            + (" ..." if len(unpaired_b) > 20 else ""))
+    prep.notices.extend(info.pop("notes", []))
+    prep.notices.extend(f"second run: {n}" for n in prep_b.notices)
+    both = np.isfinite(second.library_ri[: len(home.compounds)])
+    lib_a, _ = _per_compound_first(home)
+    shown_lib = np.flatnonzero(both & np.isfinite(lib_a))
+    return {
+        "source": run_b.peaks_path, "label": label_b, "class": home_b.phase_class,
+        "window": window_description(home_b.phase_class, None, None),
+        "peak_count": int(len(ids_b)),
+        "calibration": None if cal_b is None else cal_b.to_dict(),
+        "correction": public_correction(prep_b.correction),
+        "index_scatter": float(prep_b.model.index_scatter),
+        "run_model": prep_b.info,
+        "checksum": getattr(table_b, "checksum", ""),
+        "pairing": info,
+        "pairs": {"peak": [str(ids_a[i]) for i in pairs], "second_peak": [str(ids_b[i]) for i in pairing.partner[pairs]],
+                  "ri": prep.x[pairs].tolist(), "second_ri": prep_b.x[pairing.partner[pairs]].tolist(),
+                  "gain": pairing.gain[pairs].tolist()},
+        "unpaired_second": [str(ids_b[i]) for i in unpaired_b],
+        "library_points": {"name": [str(home.compounds.name[i]) for i in shown_lib[:5000]],
+                           "ri": lib_a[shown_lib[:5000]].tolist(),
+                           "second_ri": second.library_ri[shown_lib[:5000]].tolist()},
+    }
+
+
+def _per_compound_first(home: PreparedClass):
+    from matcher.identify.two_columns import per_compound
+
+    return per_compound(home.entries, len(home.compounds))
+
+
 def screen(
     peak_files: Any,
     phase_class: str | Sequence[str],
@@ -785,6 +955,11 @@ def screen(
     progress: Callable[[int], None] | None = None,
     min_snr: float | None = None,
     sink: Callable[[Any], None] | None = None,
+    second: Any = None,
+    second_class: str | None = None,
+    second_calibration: Any = None,
+    second_ladder: Any = None,
+    second_spectra: Any = None,
 ) -> ScreenResult:
     """Screen runs against the house library; see the module doc.
 
@@ -806,6 +981,14 @@ def screen(
     threshold ``min_snr``): apex times, areas, molecular-ion hints and spectra
     (``PeakTable.spectra``) go into the screen; a ladder may be a run file too.
     Settings are checked by :mod:`matcher.rules`.
+
+    Two columns: ``second`` (one run, in any form ``peak_files`` takes) is the same
+    sample on a column of class ``second_class``, converted with ``second_calibration``
+    or ``second_ladder`` and its spectra in ``second_spectra`` as for the first run.
+    The second run is prepared on its own (its own correction and scatter), its peaks
+    are paired with the first run's, and every peak of the first run is scored with the
+    evidence of both columns (:mod:`matcher.identify.two_columns`); the table gains
+    :data:`~matcher.results.SECOND_COLUMNS` and the run its ``second`` provenance.
     """
     from matcher.limits import check_sd
     from matcher.io.peak_tables import PeakTable
@@ -832,35 +1015,19 @@ def screen(
         raise MatcherError(f"{len(spectra_files)} spectra files for {len(plan)} runs: give one per run, in the same order")
     classes = _classes(phase_class, len(plan))
     # read and convert every run before any heavy work, so a bad file fails fast
-    loaded = []
-    for run in plan:
-        table = run.peaks if isinstance(run.peaks, PeakTable) else read_peaks_or_run(
-            run.peaks, rt_unit=rt_unit, overrides=header_map, min_snr=min_snr)
-        cal = None
-        extrap = np.zeros(len(table.peak), dtype=bool)
-        if table.has_ri:
-            x = np.asarray(table.ri, dtype=float)
-        else:
-            cal = _calibrate(run, mode, dead_time, rt_unit, min_snr)
-            if cal is None:
-                raise MatcherError(f"{run.peaks_path}: the table has no 'ri' column; give --calibration CAL.json or --ladder LADDER.csv")
-            x, extrap = cal.convert(np.asarray(table.rt, dtype=float))
-        spec = None
-        if spectra_files:
-            if getattr(table, "spectra", ()):
-                raise MatcherError(f"{run.peaks_path} has a 'spectrum' column and --spectra {spectra_files[len(loaded)]} "
-                                   "was given too: give the spectra once")
-            spec = peak_spectra(spectra_files[len(loaded)], np.asarray(table.peak))
-        elif getattr(table, "spectra", ()):
-            spec = list(table.spectra)
-        loaded.append((run, table, cal, np.asarray(x, dtype=float), np.asarray(extrap, dtype=bool), spec))
+    reading = dict(rt_unit=rt_unit, header_map=header_map, min_snr=min_snr, mode=mode, dead_time=dead_time)
+    loaded = [_load_run(run, spectra_files[k] if spectra_files else None, **reading) for k, run in enumerate(plan)]
+    two = None
+    if second is not None:
+        two = _plan_second(plan, second, second_class, second_calibration, second_ladder, second_spectra)
+        two["loaded"] = _load_run(two["run"], two["spectra"], **reading)
 
     if snapshot is None:
         from matcher.store.snapshot_loader import load_snapshot
 
         snapshot = load_snapshot(db)
     prepared: dict[str, tuple[PreparedClass, PreparedClass | None]] = {}
-    for cls in dict.fromkeys(classes):  # each class prepared once, from the one snapshot
+    for cls in dict.fromkeys(classes + ([two["class"]] if two else [])):  # each class prepared once, from the one snapshot
         prepared[cls] = (prepare(snapshot, cls, homologues=homologues),
                          neighbour_of(snapshot, cls) if fallback else None)
 
@@ -890,6 +1057,11 @@ def screen(
         rt = np.asarray(table.rt, dtype=float)
         area = getattr(table, "area", None)
         area_percent = getattr(table, "area_percent", None)
+        second_doc = None
+        if two is not None:  # a two-column screen: the second run prepared on its own, then paired
+            second_doc = _prepare_second(two, prepared, home, prep, ids, peaks_area(table), snapshot, index_scatter,
+                                         window=window, window_percent=window_percent, adaptive=adaptive,
+                                         anchors=anchors, crowding=crowding, split_peaks=split_peaks)
         keeper = _Keeper(REPORT_PEAKS) if sink is not None else None
         given = getattr(table, "rt_decimals", None)
         decimals = np.asarray(list(given), dtype=object) if given is not None and len(given) == len(ids) else None
@@ -922,7 +1094,7 @@ def screen(
             run_model=prep.info, checksum=getattr(table, "checksum", ""), record=_record(table, record),
             rt_decimals=_given_decimals(table, kept=set(df["peak"].astype(str)) if sink is not None else None),
             streamed=sink is not None, chromatogram=getattr(table, "chromatogram", None) or None,
-            spectra=shown_spectra,
+            spectra=shown_spectra, second=second_doc,
         ))
 
     homes = [prepared[c][0] for c in dict.fromkeys(classes)]
@@ -940,5 +1112,6 @@ def screen(
                   "window_percent": window_percent, "index_scatter": index_scatter, "crowding": crowding,
                   "split_peaks": split_peaks, **({"min_snr": min_snr} if min_snr is not None else {}),
                   "spectra": [os.fspath(f) for f in spectra_files] or None,
+                  **({"second_class": two["class"]} if two else {}),
                   "spectrum_model": models[0] if len(set(map(str, models))) == 1 else models},
     )

@@ -106,6 +106,7 @@ class PeakInput:
     extrapolated: np.ndarray | None = None
     unlisted: np.ndarray | None = None  # λ_U per peak (unlisted peaks per index unit); None: the model's field
     spectra: object | None = None  # matcher.chem.spectra.SpectrumSet, one row per peak (None: no spectra)
+    second: object | None = None  # matcher.identify.two_columns.SecondColumn (a two-column screen), else None
 
     def __len__(self) -> int:
         return len(self.ri)
@@ -154,8 +155,9 @@ def spectrum_hints(peaks: PeakInput, prep: PreparedClass) -> dict:
             "lookup": prep.lookup}
 
 
-def _score_class(prep: PreparedClass, peaks: PeakInput, sel: np.ndarray, w: np.ndarray, model: Model,
-                 bg: MassBackground, extra_sd: float | np.ndarray, prior: float, lam: np.ndarray):
+def score_class(prep: PreparedClass, peaks: PeakInput, sel: np.ndarray, w: np.ndarray, model: Model,
+                bg: MassBackground, extra_sd: float | np.ndarray, prior: float, lam: np.ndarray):
+    """Window search and evidence of the peaks ``sel`` in one class: (pairs, scored, peak of each pair, hit agrees)."""
     x = np.asarray(peaks.ri, dtype=float)[sel]
     pairs = window_pairs(prep.entries.ri, x, w[sel])
     sub = PeakInput(
@@ -205,7 +207,7 @@ def shortlist(
     w = half_widths(x, home.phase_class, window, window_percent)
     all_peaks = np.arange(n)
     lam = model.field().density(x) if peaks.unlisted is None else np.asarray(peaks.unlisted, dtype=float)
-    pairs, sc, gpeak, hitsim = _score_class(home, peaks, all_peaks, w, model, home.mass_bg, 0.0, 1.0, lam)
+    pairs, sc, gpeak, hitsim = score_class(home, peaks, all_peaks, w, model, home.mass_bg, 0.0, 1.0, lam)
     ent = pairs.entry
     cls_arr = np.zeros(len(ent), dtype=np.int8)  # 0 home, 1 neighbour
     logw, delta, sd = sc.logw, sc.delta, sc.sd
@@ -213,6 +215,11 @@ def shortlist(
            sc.spectrum_similarity, sc.spectrum_reference]
     mstate, istate = sc.mass_state, sc.ions_state
     comp_key = home.entries.compound[ent]
+    second = peaks.second
+    if second is not None:  # the second column's index evidence joins the odds (matcher.identify.two_columns)
+        e2 = second.evidence(gpeak, comp_key)["evidence"]
+        logw = logw + e2
+        evs[4] = evs[4] + e2
     prob, nil = assign(logw, gpeak, comp_key, n, exclusive=model.exclusive)
     notes: list[str] = []
     if neighbour is not None and n:
@@ -220,17 +227,18 @@ def shortlist(
         np.maximum.at(best, gpeak, prob) if len(prob) else None
         need = np.flatnonzero(best < FALLBACK_BELOW)
         if len(need) and len(neighbour.entries):
-            p2, s2, g2, h2 = _score_class(neighbour, peaks, need, w * FALLBACK_WIDEN, model, home.mass_bg, w,
+            p2, s2, g2, h2 = score_class(neighbour, peaks, need, w * FALLBACK_WIDEN, model, home.mass_bg, w,
                                           CROSS_CLASS_PRIOR, lam)
             if len(p2):
                 gpeak = np.concatenate([gpeak, g2])
                 ent = np.concatenate([ent, p2.entry])
                 cls_arr = np.concatenate([cls_arr, np.ones(len(p2), dtype=np.int8)])
-                logw = np.concatenate([logw, s2.logw])
+                e2 = 0.0 if second is None else second.evidence(g2, neighbour.entries.compound[p2.entry])["evidence"]
+                logw = np.concatenate([logw, s2.logw + e2])
                 delta = np.concatenate([delta, s2.delta])
                 sd = np.concatenate([sd, s2.sd])
                 evs = [np.concatenate([a, b]) for a, b in zip(evs, [s2.evidence_index, s2.evidence_mol_ion, s2.evidence_ions,
-                                                                    s2.evidence_hit, s2.score, s2.evidence_spectrum,
+                                                                    s2.evidence_hit, s2.score + e2, s2.evidence_spectrum,
                                                                     s2.spectrum_similarity, s2.spectrum_reference])]
                 mstate = np.concatenate([mstate, s2.mass_state])
                 istate = np.concatenate([istate, s2.ions_state])
@@ -331,7 +339,32 @@ def shortlist(
         spectrum_evidence=np.where(np.isfinite(cols["spectrum_similarity"]), cols["evidence_spectrum"], np.nan),
     )
     cols["held_elsewhere"] = elsewhere[peak_col]
+    if second is not None:
+        second_columns(cols, second)
     return Shortlist(cols, nil, top1, count, w, notes)
+
+
+def second_columns(cols: dict, second) -> None:
+    """The second column's outputs and flags on a shortlist's rows (see :mod:`matcher.identify.two_columns`)."""
+    peak, rank = cols["peak"], cols["rank"]
+    ev = second.evidence(peak, cols["compound"])
+    cand = rank > 0
+    partner = second.partner[peak]
+    cols["second_peak"] = np.where(partner >= 0, second.peak_id[peak], "").astype(object)
+    cols["second_ri"] = np.where(partner >= 0, second.ri[peak], np.nan)
+    cols["second_library_ri"] = np.where(cand, ev["library_ri"], np.nan)
+    cols["second_delta_ri"] = np.where(cand, ev["delta_ri"], np.nan)
+    cols["evidence_second"] = np.where(cand, ev["evidence"], 0.0)
+    lead = rank <= 1
+    flags = cols["flags"]
+    flags = F.add_flag(flags, cand & ev["inside"], "columns-agree", review=False)
+    disagree = cand & ev["paired"] & ev["listed"] & ~ev["inside"]
+    flags = F.add_flag(flags, disagree & ~lead, "second-column-disagrees", review=False)
+    flags = F.add_flag(flags, disagree & lead, "second-column-disagrees")
+    flags = F.add_flag(flags, cand & ev["paired"] & ~ev["listed"], "not-on-second-class", review=False)
+    flags = F.add_flag(flags, (partner < 0) & ~lead, "unpaired", review=False)
+    flags = F.add_flag(flags, (partner < 0) & lead, "unpaired")
+    cols["flags"] = flags
 
 
 def _take(prep: PreparedClass | None, attr: str, idx: np.ndarray) -> np.ndarray:
