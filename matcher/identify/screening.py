@@ -855,6 +855,13 @@ def _pair_with_second(home: PreparedClass, prep: PreparedRun, home_b: PreparedCl
         unlisted=np.where(has, lam_b[safe] if len(x_b) else 1.0, 1.0),
         window=np.where(has, w_b[safe] if len(x_b) else np.nan, np.nan),
         library_ri=lib_ri, library_spread=lib_sd, index_scatter=float(prep_b.model.index_scatter))
+    if pairing.options is not None and len(x_b):
+        o = pairing.options
+        real = o >= 0
+        at = np.where(real, o, 0)
+        second.option_ri = np.where(real, x_b[at], np.nan)
+        second.option_unlisted = np.where(real, lam_b[at], 1.0)
+        second.option_probability = pairing.option_probability
     return second, pairing
 
 
