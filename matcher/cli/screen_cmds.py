@@ -2,9 +2,8 @@
 
 from __future__ import annotations
 
-from typing import Annotated, List, Optional
-
 import math
+from typing import Annotated, List, Optional
 
 import typer
 

@@ -370,10 +370,9 @@ def pair_peaks(*, a_peak, a_comp, a_logw, n_a: int, b_peak, b_comp, b_ev, b_logw
         spec_pairs = int(np.isfinite(sim).sum())
     partner = best_matching(rows_, cols_, total, n_a, n_b)
     gain = np.full(n_a, np.nan)
-    lookup = {(int(a), int(b)): float(t) for a, b, t in zip(rows_, cols_, total)}
-    for a in np.flatnonzero(partner >= 0):
-        gain[a] = lookup[(int(a), int(partner[a]))] - prior
-    options, option_p = open_pairings(rows_, cols_, lookup, partner, n_b)
+    on = np.flatnonzero(partner[rows_] == cols_)  # the chosen pairs' rows
+    gain[rows_[on]] = total[on] - prior
+    options, option_p = open_pairings(rows_, cols_, total, partner, n_b)
     info = {
         "method": "assignment of pairs by maximum summed log likelihood ratio (Kuhn 1955; Jonker & Volgenant 1987)",
         "unpaired_prior": unpaired,
@@ -388,9 +387,10 @@ def pair_peaks(*, a_peak, a_comp, a_logw, n_a: int, b_peak, b_comp, b_ev, b_logw
     return Pairing(partner, gain, info, options, option_p)
 
 
-def open_pairings(rows, cols, score: dict, partner: np.ndarray, n_b: int) -> tuple[np.ndarray, np.ndarray]:
+def open_pairings(rows, cols, score, partner: np.ndarray, n_b: int) -> tuple[np.ndarray, np.ndarray]:
     """The partners each peak could take and their probabilities, next to the chosen matching.
 
+    ``score``: the pair scores, an array aligned with ``rows``/``cols`` (or a dict (row, col) -> score).
     For peak a matched to b (or single), each other partner b' (or none) is scored by the best local change
     of the matching that gives a b': Δ = s(a,b') − s(a,b) − s(a',b') + max(0, s(a',b)) when b' belongs to a'
     (a' takes b or stays single), Δ = s(a,b') − s(a,b) when b' is free, and Δ = −s(a,b) for no partner, with
@@ -403,39 +403,60 @@ def open_pairings(rows, cols, score: dict, partner: np.ndarray, n_b: int) -> tup
     >>> opts.tolist(), p.round(3).tolist()
     ([[0, 1, -2], [1, 0, -2]], [[0.881, 0.119, 0.0], [0.881, 0.119, 0.0]])
     """
+    rows = np.asarray(rows, dtype=np.int64)
+    cols = np.asarray(cols, dtype=np.int64)
+    if isinstance(score, dict):
+        score = np.array([score[(int(r), int(c))] for r, c in zip(rows, cols)], dtype=float)
+    score = np.asarray(score, dtype=float)
+    partner = np.asarray(partner, dtype=np.int64)
     n_a = len(partner)
+    n_b = max(int(n_b), 1)
+    keys = rows * n_b + cols
+    order = np.argsort(keys, kind="stable")
+    sorted_keys = keys[order]
+
+    def pair_score(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+        """s(a, b), −inf where the pair is not an edge (or b < 0)."""
+        want = a * n_b + np.maximum(b, 0)
+        i = np.clip(np.searchsorted(sorted_keys, want), 0, max(len(sorted_keys) - 1, 0))
+        found = (b >= 0) & (len(sorted_keys) > 0) & (sorted_keys[i] == want) if len(sorted_keys) else np.zeros(len(a), bool)
+        return np.where(found, score[order[i]] if len(sorted_keys) else 0.0, -np.inf)
+
+    here = np.where(partner >= 0, pair_score(np.arange(n_a), partner), 0.0)  # s(a, b) of the chosen pair
     owner = np.full(n_b, -1, dtype=np.int64)
     owner[partner[partner >= 0]] = np.flatnonzero(partner >= 0)
+    rival = cols != partner[rows]
+    r, c, sc = rows[rival], cols[rival], score[rival]
+    a2 = owner[c]
+    taken = a2 >= 0
+    a2s = np.where(taken, a2, 0)
+    swap_back = np.maximum(0.0, pair_score(a2s, partner[r]))  # a' takes the b that a leaves, or stays single
+    d = sc - here[r] - np.where(taken, here[a2s] - np.where(partner[r] >= 0, swap_back, 0.0), 0.0)
+    # options per peak: the chosen (Δ 0), no partner (Δ −s(a,b), for a paired peak), the rivals
+    paired = np.flatnonzero(partner >= 0)
+    opt_a = np.concatenate([np.arange(n_a), paired, r])
+    opt_b = np.concatenate([partner, np.full(len(paired), -1), c])
+    opt_d = np.concatenate([np.zeros(n_a), -here[paired], d])
+    first = np.concatenate([np.ones(n_a, bool), np.zeros(len(paired) + len(r), bool)])
+    o = np.lexsort((-opt_d, ~first, opt_a))  # per peak: the chosen one first, then rivals by Δ
+    opt_a, opt_b, opt_d = opt_a[o], opt_b[o], opt_d[o]
+    starts = np.flatnonzero(np.r_[True, opt_a[1:] != opt_a[:-1]])
+    pos = np.arange(len(opt_a)) - np.repeat(starts, np.diff(np.r_[starts, len(opt_a)]))
+    keep = pos < OPTIONS
+    opt_a, opt_b, opt_d, pos = opt_a[keep], opt_b[keep], opt_d[keep], pos[keep]
     options = np.full((n_a, OPTIONS), -2, dtype=np.int64)
-    probs = np.zeros((n_a, OPTIONS))
-    rivals: dict[int, list[tuple[float, int]]] = {}
-    for a, b2 in zip(np.asarray(rows, np.int64).tolist(), np.asarray(cols, np.int64).tolist()):
-        b = int(partner[a])
-        if b2 == b:
-            continue
-        here = score[(a, b)] if b >= 0 else 0.0
-        a2 = int(owner[b2])
-        if a2 < 0:
-            d = score[(a, b2)] - here
-        else:
-            d = score[(a, b2)] - here - score[(a2, b2)] + max(0.0, score.get((a2, b), -np.inf) if b >= 0 else 0.0)
-        rivals.setdefault(a, []).append((d, b2))
-    for a in range(n_a):
-        b = int(partner[a])
-        opts = [(0.0, b)]
-        if b >= 0:
-            opts.append((-score[(a, b)], -1))
-        opts += rivals.get(a, [])
-        opts = [opts[0]] + sorted(opts[1:], key=lambda t: -t[0])[: OPTIONS - 1]
-        d = np.array([t[0] for t in opts])
-        p = np.exp(d - d.max())
-        p /= p.sum()
-        keep = (p >= OPTION_FLOOR) | (np.arange(len(p)) == 0)
-        p = p[keep] / p[keep].sum()
-        chosen = [t[1] for t, k in zip(opts, keep) if k]
-        options[a, : len(chosen)] = chosen
-        probs[a, : len(chosen)] = p
-    return options, probs
+    delta = np.full((n_a, OPTIONS), -np.inf)
+    options[opt_a, pos] = opt_b
+    delta[opt_a, pos] = opt_d
+    probs = np.exp(delta - delta.max(axis=1, keepdims=True))
+    probs /= probs.sum(axis=1, keepdims=True)
+    drop = (probs < OPTION_FLOOR) & (np.arange(OPTIONS) > 0)
+    probs[drop] = 0.0
+    options[drop] = -2
+    probs /= probs.sum(axis=1, keepdims=True)
+    # unused slots last
+    o2 = np.argsort(options == -2, axis=1, kind="stable")
+    return np.take_along_axis(options, o2, axis=1), np.take_along_axis(probs, o2, axis=1)
 
 
 def _logsumexp_per(peak: np.ndarray, logw: np.ndarray, n: int) -> np.ndarray:
