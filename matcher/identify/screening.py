@@ -844,7 +844,7 @@ def _pair_with_second(home: PreparedClass, prep: PreparedRun, home_b: PreparedCl
                          b_logw=odds_b, n_b=len(x_b), area_a=area_a, area_b=area_b, spectra_a=spectra_a,
                          spectra_b=spectra_b, spectrum_model=home.spectrum_model)
     n_comp = len(home.compounds)
-    lib_ri, lib_sd = per_compound(home_b.entries, min(n_comp, len(home_b.compounds)))
+    lib_ri, lib_sd = per_compound(home_b.entries, n_comp)  # measured entries name snapshot compounds only
     partner = pairing.partner
     safe = np.where(partner >= 0, partner, 0)
     has = partner >= 0
