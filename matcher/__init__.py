@@ -45,6 +45,7 @@ _LAZY = {
     "spectrum_similarity": "matcher.api",
     "spectrum_similarity_matrix": "matcher.api",
     "Evaluation": "matcher.api",
+    "TwoColumnEvaluation": "matcher.identify.evaluation_two_columns",
     "open_review": "matcher.api",
     "serve_review": "matcher.api",
     "MatcherError": "matcher.errors",

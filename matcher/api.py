@@ -516,8 +516,15 @@ class Evaluation:
 
 
 def evaluate(library: Any = None, *, phase_class: str | None = None, noise: float = 0.0,
-             window: float | None = None) -> Evaluation:
-    """Self-check of the library by resampling it: leave-one-out and removal queries, confusable pairs."""
+             window: float | None = None, second_class: str | None = None, runs: int | None = None,
+             seed: int | None = None) -> Any:
+    """Self-check of the library by resampling it: leave-one-out and removal queries, confusable pairs.
+
+    With ``second_class`` (and ``phase_class``): the two-column self-check of
+    :mod:`matcher.identify.evaluation_two_columns` on the compounds listed on both classes, ``runs``
+    simulated runs from ``seed``, ``noise`` the run scatter on both columns (0: each class's default);
+    returns a :class:`~matcher.identify.evaluation_two_columns.TwoColumnEvaluation`.
+    """
     from matcher.identify.evaluation import evaluate as _evaluate
     from matcher.rules import check_class, check_noise, check_window
 
@@ -525,6 +532,16 @@ def evaluate(library: Any = None, *, phase_class: str | None = None, noise: floa
         phase_class = check_class(phase_class)
     window, _ = check_window(window, None)
     noise = check_noise(noise)
+    if second_class is None and (runs is not None or seed is not None):
+        raise MatcherError("--runs and --seed belong to the two-column check: give --second-class too")
+    if second_class is not None:  # the two-column self-check
+        from matcher.identify.evaluation_two_columns import TwoColumnEvaluation, evaluate_two_columns
+        from matcher.rules import check_class_pair, check_runs, check_seed
+
+        phase_class, second_class = check_class_pair(phase_class, second_class)
+        runs, seed = check_runs(runs), check_seed(seed)
+        return TwoColumnEvaluation.from_dict(evaluate_two_columns(
+            _snapshot(library), phase_class, second_class, runs=runs, seed=seed, noise=noise or None, window=window))
     report = _evaluate(_snapshot(library), phase_class, noise=noise, window=window)
     return Evaluation(**report)
 

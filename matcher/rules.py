@@ -20,6 +20,8 @@ candidates kept     top >= 1, :func:`check_top`
 window              > 0 and finite index units, or 0 < percent <= :data:`WINDOW_PERCENT_MAX`,
                     not both: :func:`check_window`
 added noise         0 .. :data:`NOISE_MAX` index units, :func:`check_noise`
+two-column check    two different classes, :func:`check_class_pair`; 1 .. :data:`EVALUATION_RUNS_MAX`
+                    simulated runs, :func:`check_runs`; a seed 0 .. 2**32 - 1, :func:`check_seed`
 output files        :data:`SHORTLIST_SUFFIXES`, :data:`REPORT_SUFFIXES`,
                     :func:`check_shortlist_path`, :func:`check_report_path`
 ==================  ======================================================
@@ -98,6 +100,8 @@ HIT_SCORE_RANGE: tuple[float, float] = (0.0, 100.0)
 WINDOW_PERCENT_MAX: float = 20.0
 #: Largest noise ``evaluate`` adds to its queries, index units.
 NOISE_MAX: float = 100.0
+#: Most runs the two-column self-check (``evaluate --second-class``) simulates.
+EVALUATION_RUNS_MAX: int = 1000
 
 #: Shortlist files by suffix, and the report's suffixes.
 SHORTLIST_SUFFIXES: tuple[str, ...] = (".csv", ".json", ".xlsx")
@@ -244,6 +248,40 @@ def check_noise(noise: Any) -> float:
     return v
 
 
+def check_class_pair(first: Any, second: Any) -> tuple[str, str]:
+    """The two columns' classes of a two-column self-check: both given, both known, not the same.
+
+    >>> check_class_pair("slightly polar", "polar")
+    ('slightly-polar', 'polar')
+    """
+    if first is None:
+        raise MatcherError("give the first column's polarity class too: --class CLASS --second-class CLASS")
+    a, b = check_class(first), check_class(second)
+    if a == b:
+        raise MatcherError(f"--second-class must differ from --class: both are {a}")
+    return a, b
+
+
+def check_runs(runs: Any) -> int | None:
+    """Simulated runs of the two-column self-check: a whole number 1-:data:`EVALUATION_RUNS_MAX` (``None``: default)."""
+    if runs is None:
+        return None
+    v = _number(runs, "--runs", f"a whole number from 1 to {EVALUATION_RUNS_MAX}")
+    if v != int(v) or not 1 <= v <= EVALUATION_RUNS_MAX:
+        raise MatcherError(f"--runs must be a whole number from 1 to {EVALUATION_RUNS_MAX}, got {_fmt(runs)}")
+    return int(v)
+
+
+def check_seed(seed: Any) -> int | None:
+    """Seed of a simulated self-check: a whole number 0 to 2**32 - 1 (``None``: default)."""
+    if seed is None:
+        return None
+    v = _number(seed, "--seed", "a whole number from 0 to 4294967295")
+    if v != int(v) or not 0 <= v < 2 ** 32:
+        raise MatcherError(f"--seed must be a whole number from 0 to 4294967295, got {_fmt(seed)}")
+    return int(v)
+
+
 #: Peak detection threshold (``--min-snr``): prominence in units of the run's TIC noise SD.
 MIN_SNR_RANGE: tuple[float, float] = (1.0, 1000.0)
 
@@ -344,6 +382,7 @@ def check_review_export_path(path: Any, option: str = "--export") -> str:
 __all__ = [
     "PHASE_CLASSES", "CLASS_ALIASES", "MODES", "MODE_ALIASES", "RT_UNITS", "RT_UNIT_ALIASES",
     "RI_MAX", "MAX_RT_MIN", "MAX_MZ", "HIT_SCORE_RANGE", "WINDOW_PERCENT_MAX", "NOISE_MAX",
+    "EVALUATION_RUNS_MAX", "check_class_pair", "check_runs", "check_seed",
     "SHORTLIST_SUFFIXES", "REPORT_SUFFIXES",
     "RECORD_OPTIONS", "check_record", "choice", "check_class", "check_mode", "check_rt_unit", "check_ri", "check_top", "check_window",
     "check_ions", "check_hit_match", "check_noise", "check_shortlist_path", "check_report_path",
