@@ -819,7 +819,7 @@ def _pair_with_second(home: PreparedClass, prep: PreparedRun, home_b: PreparedCl
                       window, window_percent, ids_b, area_a, area_b, spectra_b) -> tuple[Any, Any]:
     """Pair the first run's peaks with the second run's (matcher.identify.two_columns): (SecondColumn, Pairing)."""
     from matcher.identify.shortlist import score_class
-    from matcher.identify.two_columns import SecondColumn, pair_peaks, per_compound
+    from matcher.identify.two_columns import PAIRING_DOUBT, SecondColumn, pair_peaks, per_compound
 
     for which, p in (("first", prep), ("second", prep_b)):
         if len(p.x) > CHUNK:
@@ -862,6 +862,7 @@ def _pair_with_second(home: PreparedClass, prep: PreparedRun, home_b: PreparedCl
         second.option_ri = np.where(real, x_b[at], np.nan)
         second.option_unlisted = np.where(real, lam_b[at], 1.0)
         second.option_probability = pairing.option_probability
+        second.doubt = PAIRING_DOUBT
     return second, pairing
 
 

@@ -45,7 +45,10 @@ shortest-augmenting-path method of R. Jonker and A. Volgenant, Computing 38,
 only where their areas or spectra agree (the indices say nothing of them).
 
 **Joint posterior.** For a paired peak, compound *j*'s log odds gain
-:math:`e_B(b,j)` (the column ``evidence_second``); the one-compound-one-peak
+:math:`e_B(b,j)` (the column ``evidence_second``), averaged over the partners the
+pairing leaves open (:func:`open_pairings`) and mixed with a small probability
+:data:`PAIRING_DOUBT` that the pair is wrong (then the second column says nothing):
+:math:`\ln[(1-\delta)\sum_k p_k e^{e_B(b_k,j)} + \delta]`; the one-compound-one-peak
 model of :mod:`matcher.identify.assignment` then runs on the joint odds. A
 compound with no entry on the second class gets the second column's evidence
 from the unlisted model (0, flag ``not-on-second-class``); an unpaired peak is
@@ -75,6 +78,9 @@ MIN_AREA_SCATTER = 0.15
 MIN_AREA_PAIRS = 5
 #: pairs whose peaks share no candidate are scored only when both runs together hold at most this many pairs.
 DENSE_PAIRS = 4_000_000
+#: probability that a pair is wrong however good it looks (an assumption): the second column can lower a
+#: candidate's odds at most 1/PAIRING_DOUBT-fold, so one wrong pair cannot bury a right first-column call.
+PAIRING_DOUBT = 0.1
 #: partners kept open per peak (the chosen one and its strongest rivals, "no partner" included).
 OPTIONS = 3
 #: rivals less probable than this are dropped from a peak's open partners.
@@ -109,6 +115,7 @@ class SecondColumn:
     option_ri: np.ndarray | None = None
     option_unlisted: np.ndarray | None = None
     option_probability: np.ndarray | None = None
+    doubt: float = 0.0  # probability that the pairing is wrong whatever it says (PAIRING_DOUBT in a screen)
 
     def take(self, idx: np.ndarray) -> "SecondColumn":
         idx = np.asarray(idx, dtype=np.int64)
@@ -156,6 +163,9 @@ class SecondColumn:
             top = np.max(terms, axis=1, keepdims=True)
             top = np.where(np.isfinite(top), top, 0.0)
             ev = top[:, 0] + np.log(np.sum(np.exp(terms - top), axis=1))
+            if self.doubt > 0:  # a wrong pairing says nothing of the compound: ratio 1 with probability `doubt`
+                ok = np.isfinite(ev)
+                ev = np.where(ok, np.logaddexp(np.log1p(-self.doubt) + np.where(ok, ev, 0.0), np.log(self.doubt)), ev)
             ev = np.where(listed & np.isfinite(ev), ev, 0.0)
         return {"evidence": ev, "library_ri": lib, "delta_ri": delta, "listed": listed,
                 "paired": paired, "inside": paired & listed & (np.abs(delta) <= self.window[peak])}
