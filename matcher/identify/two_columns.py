@@ -48,7 +48,7 @@ only where their areas or spectra agree (the indices say nothing of them).
 :math:`e_B(b,j)` (the column ``evidence_second``), averaged over the partners the
 pairing leaves open (:func:`open_pairings`) and mixed with a small probability
 :data:`PAIRING_DOUBT` that the pair is wrong (then the second column says nothing):
-:math:`\ln[(1-\delta)\sum_k p_k e^{e_B(b_k,j)} + \delta]`; the one-compound-one-peak
+:math:`\\ln[(1-\\delta)\\sum_k p_k e^{e_B(b_k,j)} + \\delta]`; the one-compound-one-peak
 model of :mod:`matcher.identify.assignment` then runs on the joint odds. A
 compound with no entry on the second class gets the second column's evidence
 from the unlisted model (0, flag ``not-on-second-class``); an unpaired peak is
