@@ -81,6 +81,8 @@ DENSE_PAIRS = 4_000_000
 #: probability that a pair is wrong however good it looks (an assumption): the second column can lower a
 #: candidate's odds at most 1/PAIRING_DOUBT-fold, so one wrong pair cannot bury a right first-column call.
 PAIRING_DOUBT = 0.1
+#: pairs sharing no candidate are compared by spectrum only when both runs together hold at most this many pairs.
+DENSE_SPECTRA = 250_000
 #: partners kept open per peak (the chosen one and its strongest rivals, "no partner" included).
 OPTIONS = 3
 #: rivals less probable than this are dropped from a peak's open partners.
@@ -358,13 +360,19 @@ def pair_peaks(*, a_peak, a_comp, a_logw, n_a: int, b_peak, b_comp, b_ev, b_logw
         if stats.get("available"):
             r = lb[grid_b] - la[grid_a]
             agree |= np.abs(r - stats["log_factor"]) <= AREA_REACH * stats["scatter"]
+        if both_spectra and n_a * n_b <= DENSE_SPECTRA:
+            from matcher.chem.spectra import pair_similarity
+            from matcher.identify.spectral_evidence import SpectrumModel
+
+            model = spectrum_model if spectrum_model is not None else SpectrumModel.default()
+            agree |= model.log_ratio(pair_similarity(spectra_a, spectra_b, grid_a, grid_b)) > 0
         extra = np.flatnonzero(agree)
         extra = extra[~np.isin(extra, keys)]
         rows_ = np.concatenate([ka, grid_a[extra]])
         cols_ = np.concatenate([kb, grid_b[extra]])
         base = np.concatenate([index_gain, -u_a[grid_a[extra]] - u_b[grid_b[extra]]])
         del grid_a, grid_b
-    elif n_a * n_b > DENSE_PAIRS:
+    if n_a * n_b > DENSE_PAIRS:
         notes.append(f"{n_a} × {n_b} peaks: only pairs sharing a library candidate were considered")
     total = base + prior
     if stats.get("available"):
