@@ -673,11 +673,176 @@ def _run_section(i: int, run: RunResult, summary: dict[str, Any], max_peaks: int
         + _chromatograms(i, run)
         + f'<div id="run-{i}-calibration">{_calibration(run.calibration)}</div>'
         + f'<div id="run-{i}-correction">{_correction(run)}</div>'
+        + (f'<div id="run-{i}-second">{_second_column(i, run)}</div>' if getattr(run, "second", None) else "")
         + f'<div id="run-{i}-composition">{_composition(run)}</div>'
         + f'<div id="run-{i}-shortlists">{_shortlists(run, max_peaks)}</div>'
         + f'<div id="run-{i}-spectra">{_spectra(run, max_peaks)}</div>'
         + "</section>"
     )
+
+
+#: The flag on a leading candidate whose second-column index disagrees (matcher.identify.flags).
+DISAGREES_FLAG = "second-column-disagrees"
+#: At most this many second-run peaks without a partner are named in the report (all are in the JSON output).
+SHOWN_UNPAIRED = 60
+
+
+def _leading_flags(table: pd.DataFrame | None) -> dict[str, list[str]]:
+    """Per peak id, the flags of its leading row (rank 1, else its only row)."""
+    if table is None or len(table) == 0 or "peak" not in table:
+        return {}
+    out: dict[str, list[str]] = {}
+    ranks = pd.to_numeric(table["rank"], errors="coerce") if "rank" in table else pd.Series([np.nan] * len(table))
+    flags = table["flags"] if "flags" in table else [""] * len(table)
+    for peak, rank, f in zip(table["peak"].astype(str), ranks, flags):
+        if rank == 1 or peak not in out:  # the rank-1 row, else the peak's only (candidate-less) row
+            out[peak] = split_flags(f)
+    return out
+
+
+def _split_factor_text(area: dict[str, Any] | None) -> str:
+    """k = exp(ln k) with the scatter of ln(area ratio) about it, and where the estimate came from."""
+    if not isinstance(area, dict) or not _finite(area.get("log_factor")):
+        return "not estimated: one of the runs gave no areas, so the pairing rests on the indices (and spectra) alone"
+    k = math.exp(float(area["log_factor"]))
+    text = f"k = {k:.3g} (area on the second column ÷ area on the first)"
+    if _finite(area.get("scatter")):
+        sc = float(area["scatter"])
+        text += f"; scatter of ln(area ratio) about ln k: {sc:.3g} (a factor of about {math.exp(sc):.3g} either way)"
+    if area.get("source"):
+        text += f"; estimated from {readable(area.get('source'))}"
+    return text
+
+
+def _second_column(i: int, run: RunResult) -> str:
+    """A two-column screen: the second run's provenance, the pairing, and the plot of paired indices."""
+    second = run.second if isinstance(run.second, dict) else None
+    if not second:
+        return ""
+    pairing = second.get("pairing") if isinstance(second.get("pairing"), dict) else {}
+    cal = second.get("calibration") if isinstance(second.get("calibration"), dict) else None
+    cor = second.get("correction") if isinstance(second.get("correction"), dict) else None
+    cal_text = ""
+    if cal:
+        source = cal.get("source") if isinstance(cal.get("source"), dict) else {}
+        rng = (cal.get("qc") or {}).get("index_range") if isinstance(cal.get("qc"), dict) else None
+        findings = [f for f in ((cal.get("qc") or {}).get("findings") or []) if isinstance(f, dict)] \
+            if isinstance(cal.get("qc"), dict) else []
+        warnings = [w for w in cal.get("warnings") or []]
+        bits = [f"ladder {e(mask_secrets(str(source.get('ladder'))))}" if source.get("ladder") else "",
+                _series_text(cal.get("series"), cal.get("index_scale")) if cal.get("series") else "",
+                _text(cal.get("mode")) if cal.get("mode") else "",
+                ("index range " + " to ".join(_num(v, 0) for v in rng))
+                if isinstance(rng, (list, tuple)) and len(rng) == 2 else "",
+                e(plural(len(findings), "ladder finding")) + (", " + e(plural(len(warnings), "warning")) if warnings else "")]
+        cal_text = "; ".join(b for b in bits if b)
+    else:
+        cal_text = "no ladder: the second peak table gave indices"
+    if cor:
+        if cor.get("applied") and _finite(cor.get("slope")) and _finite(cor.get("offset")):
+            cor_text = (f"applied: ΔRI (measured − library) = {_num(cor.get('slope'), 5)} · RI "
+                        f"{'+' if float(cor['offset']) >= 0 else '−'} {_num(abs(float(cor['offset'])), 2)}")
+        else:
+            cor_text = "not applied: the plain screen was used" + (
+                f" ({mask_secrets(str(cor.get('notice')))})" if cor.get("notice") else "")
+    else:
+        cor_text = "not requested"
+    scatter = second.get("index_scatter")
+    checksum = second.get("checksum")
+    checksum = checksum.get("sha256") if isinstance(checksum, dict) else checksum
+    facts = [
+        ("second run", e(second.get("label"))),
+        ("peak file", e(mask_secrets(str(second.get("source") or "")))),
+        ("polarity class", e(second.get("class"))),
+        ("tolerance window", _window(second.get("window"))),
+        ("peaks", _int(second.get("peak_count"))),
+        ("index scatter", f"{_num(scatter, 2)} index units" if _finite(scatter) else ""),
+        ("ladder calibration", cal_text),
+        ("RI column", e(index_statement(cal, cor))),
+        ("adaptive correction", e(cor_text)),
+        ("peak table SHA-256", f"<code>{e(checksum)}</code>" if checksum else ""),
+    ]
+    pairs = second.get("pairs") if isinstance(second.get("pairs"), dict) else {}
+    ids = [str(v) for v in pairs.get("peak") or []]
+    partners = [str(v) for v in pairs.get("second_peak") or []]
+    xs, ys = list(pairs.get("ri") or []), list(pairs.get("second_ri") or [])
+    n = min(len(ids), len(partners), len(xs), len(ys))
+    unpaired_b = [str(v) for v in second.get("unpaired_second") or []]
+    lead = _leading_flags(run.table)
+    disagree = [k for k in range(n) if DISAGREES_FLAG in lead.get(ids[k], [])]
+    unpaired_a = [p for p, f in lead.items() if "unpaired" in f]
+    pair_rows = [
+        ("pairs made", e(_int(pairing.get("paired")) if pairing.get("paired") is not None else str(n))),
+        ("peaks of this run without partner", _int(pairing.get("unpaired_first"))
+         + (f" ({e(', '.join(unpaired_a[:SHOWN_UNPAIRED]))}{' …' if len(unpaired_a) > SHOWN_UNPAIRED else ''})"
+            if unpaired_a else "")),
+        ("peaks of the second run without partner", _int(pairing.get("unpaired_second"))
+         + (f" ({e(', '.join(unpaired_b[:SHOWN_UNPAIRED]))}{' …' if len(unpaired_b) > SHOWN_UNPAIRED else ''})"
+            if unpaired_b else "")),
+        ("split factor of the areas", e(_split_factor_text(pairing.get("area")))),
+        ("pairs with both spectra compared", _int(pairing.get("spectra_compared"))),
+        ("prior probability of no partner", _num(pairing.get("unpaired_prior"), 2)),
+        ("method", e(readable(pairing.get("method")))),
+        ("leading candidates the second column contradicts", str(len(disagree))),
+    ]
+    notes = [str(v) for v in pairing.get("notes") or []]
+    plot = _pairs_plot(second, ids[:n], partners[:n], xs[:n], ys[:n], set(disagree))
+    return (
+        '<h3>Second column</h3>'
+        '<p class="note">The same sample run on a column of another polarity. Each peak of this run was paired with '
+        "at most one peak of the second run (on the indices, the areas of the split injection and, where both have "
+        "them, the spectra); the paired peak's index on the second class enters each candidate's probability. "
+        "Agreement on two columns strengthens a tentative identification; it does not confirm it.</p>"
+        + _kv_table(facts)
+        + "<h3>Pairing of the peaks</h3>" + _kv_table(pair_rows)
+        + ("".join(f'<p class="note">{e(mask_secrets(t))}</p>' for t in notes))
+        + f'<div class="plotbox wide">{plot}</div>'
+        + '<p class="note">Each marker is a pair of peaks: its index on this run\'s column across, on the second '
+        "column up. Small grey dots are library compounds with an entry on both classes; a pair far from them "
+        "suggests a wrong pair or a compound the library does not list on both. Diamonds mark pairs whose leading "
+        "candidate's second-column index lies outside its window on the second class (flag "
+        "second-column-disagrees): review them.</p>"
+    )
+
+
+def _pairs_plot(second: dict[str, Any], ids: list[str], partners: list[str], xs: list, ys: list,
+                disagree: set[int]) -> str:
+    """First-column index against second-column index of every pair, the library's two-class compounds behind."""
+    cls = readable(second.get("class"))
+    ok = [k for k in range(len(ids)) if _finite(xs[k]) and _finite(ys[k])]
+    layers = []
+    if ok:
+        fx, fy = [float(xs[k]) for k in ok], [float(ys[k]) for k in ok]
+        span_x, span_y = max(fx) - min(fx), max(fy) - min(fy)
+        lo_x, hi_x = min(fx) - max(0.05 * span_x, 20.0), max(fx) + max(0.05 * span_x, 20.0)
+        lo_y, hi_y = min(fy) - max(0.05 * span_y, 20.0), max(fy) + max(0.05 * span_y, 20.0)
+        lib = second.get("library_points") if isinstance(second.get("library_points"), dict) else {}
+        lx, ly, ln = list(lib.get("ri") or []), list(lib.get("second_ri") or []), list(lib.get("name") or [])
+        keep = [j for j in range(min(len(lx), len(ly))) if _finite(lx[j]) and _finite(ly[j])
+                and lo_x <= float(lx[j]) <= hi_x and lo_y <= float(ly[j]) <= hi_y]
+        if keep:
+            layers.append(plots.points([lx[j] for j in keep], [ly[j] for j in keep],
+                                       labels=[f"{ln[j] if j < len(ln) else ''}: library {_num(lx[j], 0)} / "
+                                               f"{_num(ly[j], 0)}" for j in keep],
+                                       colour="muted", marker="dot", css="library-point",
+                                       name="library compound listed on both classes"))
+
+        def tip(k: int) -> str:
+            return f"peak {ids[k]} ({_num(xs[k], 1)}) with second-run peak {partners[k]} ({_num(ys[k], 1)})"
+
+        agree = [k for k in ok if k not in disagree]
+        against = [k for k in ok if k in disagree]
+        layers.append(plots.points([xs[k] for k in agree], [ys[k] for k in agree], labels=[tip(k) for k in agree],
+                                   colour="primary", css="pair", name="pair of peaks"))
+        if against:
+            layers.append(plots.points([xs[k] for k in against], [ys[k] for k in against],
+                                       labels=[tip(k) + ": leading candidate disagrees on the second column"
+                                               for k in against],
+                                       colour="secondary", marker="diamond", css="pair disagrees",
+                                       name="pair whose leading candidate disagrees on the second column"))
+    return plots.xy_plot(layers, x_label="retention index, this run's column",
+                         y_label=f"retention index, second column ({cls})",
+                         title=f"Paired peaks: {len(ok)} pairs", width=720, height=420)
 
 
 def _signature(result: ScreenResult) -> str:
