@@ -692,7 +692,8 @@ def _leading_flags(table: pd.DataFrame | None) -> dict[str, list[str]]:
     if table is None or len(table) == 0 or "peak" not in table:
         return {}
     out: dict[str, list[str]] = {}
-    ranks = pd.to_numeric(table["rank"], errors="coerce") if "rank" in table else pd.Series([np.nan] * len(table))
+    ranks = (pd.to_numeric(table["rank"], errors="coerce").to_numpy(dtype=float, na_value=np.nan) if "rank" in table
+             else np.full(len(table), np.nan))
     flags = table["flags"] if "flags" in table else [""] * len(table)
     for peak, rank, f in zip(table["peak"].astype(str), ranks, flags):
         if rank == 1 or peak not in out:  # the rank-1 row, else the peak's only (candidate-less) row
