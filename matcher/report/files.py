@@ -6,7 +6,8 @@ atomically (see :mod:`matcher.io.atomic`): on any error nothing is left behind.
 **CSV** (``.csv``): one row per peak and candidate, columns
 :data:`~matcher.results.SHORTLIST_COLUMNS` then
 :data:`~matcher.results.DETAIL_COLUMNS` (then any further columns the
-screening added), all runs of the job in one table told apart by ``run``.
+screening added, such as a two-column screen's
+:data:`~matcher.results.SECOND_COLUMNS`), all runs of the job in one table told apart by ``run``.
 The file holds nothing but the header and the rows, so any CSV reader
 (``pandas.read_csv(path)``, with or without ``comment='#'``, or the
 :mod:`csv` module) reads it. Formatting:
@@ -34,7 +35,11 @@ schema. Both files are written atomically; the sidecar first.
 **JSON** (``.json``): one document, ``"content": "shortlist"``, nested per
 run and per peak; every candidate carries an ``evidence`` object with the
 log likelihood ratios (``index``, ``mol_ion``, ``ions``, ``hit``, from the
-``evidence_*`` columns). Validated by ``schema/screen-output.schema.json``
+``evidence_*`` columns). A two-column screen puts ``second_peak`` and
+``second_ri`` once on each peak (:data:`~matcher.results.SECOND_PEAK_KEYS`),
+the other second-column values on each candidate, and the second column's run
+with the pairing in the run's ``second`` object (:func:`second_document`; the
+CSV sidecar and the ``runs`` sheet carry it too). Validated by ``schema/screen-output.schema.json``
 (JSON Schema draft 2020-12, installed as ``matcher.schemas``).
 
 **XLSX** (``.xlsx``): sheet ``shortlist`` (header in row 1, same columns as

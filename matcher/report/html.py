@@ -19,6 +19,11 @@
   with its anchors (without anchors, the confident matches of the run are shown: rank 1,
   probability ≥ 0.9, not marked for review); the composition (area % per peak and its most
   probable candidate);
+* for a two-column screen, the second column: the second run's file, class, calibration and
+  correction, the pairing of the peaks (counts, the areas' split factor k with its scatter, the
+  second run's peaks without partner) and a plot of every pair's two indices over the library
+  compounds listed on both classes, pairs the leading candidate's second-column index contradicts
+  drawn as diamonds (legend in words);
 * each peak's shortlist with its flags; rows needing review are marked in
   words (and colour);
 * a review and sign-off block (screened by, reviewed by, date, signature).
