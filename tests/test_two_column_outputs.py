@@ -268,7 +268,7 @@ def test_xlsx_shortlist_columns_and_runs_sheet(two, written):
     at = {c: head.index(c) for c in head}
     a1 = next(r for r in rows[1:] if r[at["peak"]] == "A1")
     assert a1[at["second_peak"]] == "B10" and a1[at["second_ri"]] == pytest.approx(xb[0])
-    sheet = {r[0]: r[1] for r in wb["runs"].iter_rows(values_only=True) if r and r[0]}
+    sheet = {r[0]: (r[1] if len(r) > 1 else None) for r in wb["runs"].iter_rows(values_only=True) if r and r[0]}
     assert sheet["second column: polarity class"] == "polar"
     assert sheet["second column: peaks"] == 11
     assert sheet["peaks paired"] == 10
@@ -338,3 +338,49 @@ def test_report_stays_self_contained_and_readable(two):
     text = " ".join(p.text)
     assert not re.search(r"\b(None|nan|NaN|True|False|inf)\b|\{'|\['", text)
     assert page.count("Caution") >= 2
+
+
+def test_second_run_with_its_own_ladder(tmp_path):
+    """The second run given as retention times with its own invented n-alkane ladder (one alkane every 2.0 min:
+    a programmed oven's even spacing); its index is the linear index of van den Dool & Kratz (J. Chromatogr. 11,
+    463, 1963), so a peak at (x/100 − 7)·2.0 min has index x exactly."""
+    snap, _, _ = library()
+    a, b, xa, xb, partner = runs()
+    ladder = tmp_path / "alkanes-wax.csv"
+    ladder.write_text("rt,carbons\n" + "".join(f"{(c - 7) * 2.0:.4f},{c}\n" for c in range(8, 27)), encoding="utf-8")
+    b_rt = b.drop(columns=["ri"]).assign(rt=(b["ri"] / 100.0 - 7.0) * 2.0)
+    b_file = tmp_path / "oil-wax.csv"
+    b_rt.to_csv(b_file, index=False, float_format="%.5f")
+    res = matcher.screen(a, phase_class="slightly-polar", library=snap, second=b_file, second_class="polar",
+                         second_ladder=ladder)
+    second = res.runs[0].second
+    assert second["calibration"]["source"]["ladder"].endswith("alkanes-wax.csv")
+    pairs = dict(zip(second["pairs"]["peak"], second["pairs"]["second_ri"]))
+    for k in range(len(NAMES)):
+        assert pairs[f"A{k + 1}"] == pytest.approx(xb[k], abs=0.01)  # the linear index recovers the invented value
+    page = render_report(res)
+    p = _Tags()
+    p.feed(_second_section(page))
+    text = " ".join(" ".join(p.text).split())
+    assert "ladder alkanes-wax.csv" in text and "oil-wax.csv" in text
+    assert "linear (van den Dool & Kratz) index from the ladder calibration" in text
+    res.to_xlsx(tmp_path / "two.xlsx")
+    from openpyxl import load_workbook
+
+    wb = load_workbook(tmp_path / "two.xlsx", read_only=True)
+    sheet = {r[0]: (r[1] if len(r) > 1 else None) for r in wb["runs"].iter_rows(values_only=True) if r and r[0]}
+    wb.close()
+    assert str(sheet["second column: ladder file"]).endswith("alkanes-wax.csv")
+    assert sheet["second column: peak file"].endswith("oil-wax.csv")
+    assert not list(output_validator().iter_errors(results_document(res)))
+
+
+def test_report_shortlist_shows_the_partner(two):
+    page = render_report(two[0])
+    start = page.index('<div id="run-1-shortlists">')
+    p = _Tags()
+    p.feed(page[start:])
+    text = " ".join(" ".join(p.text).split())
+    assert "peak second col." in text and "ΔRI second" in text
+    assert f"A1 B10 · {two[2][0]:.1f}" in text  # A1's partner with its index
+    assert "unpaired" in text               # A11

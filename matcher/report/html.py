@@ -107,6 +107,10 @@ table.shortlist tr.needs-review td:first-child { box-shadow: inset 4px 0 0 var(-
 table.shortlist tr.needs-review { background: #fffaf0; }
 td.mark { font-weight: 700; color: var(--warn); font-size: 12px; white-space: nowrap; }
 td.peak { font-weight: 600; }
+table.shortlist.two { font-size: 13px; }
+table.shortlist.two .flag { white-space: normal; }
+table.shortlist.two td:last-child { min-width: 11.5em; }
+.partner { font-weight: 400; font-size: 12px; color: var(--soft); white-space: nowrap; }
 .empty { color: var(--soft); font-style: italic; }
 nav ul { margin: 4px 0; padding-left: 18px; }
 svg.plot { border: 1px solid var(--line); background: #fff; max-width: 100%; height: auto; }
@@ -209,7 +213,7 @@ def _summary(result: ScreenResult, summaries: list[dict[str, Any]]) -> str:
     rows = []
     for i, (run, s) in enumerate(zip(result.runs, summaries), start=1):
         rows.append(
-            f'<tr><td><a href="#run-{i}">{e(run.label)}</a></td><td>{e(run.phase_class)}</td>'
+            f'<tr><td><a href="#run-{i}">{e(run.label)}</a></td><td>{e(run.phase_class)}{_second_class(run)}</td>'
             f"<td>{_window(run.window)}</td><td class=\"n\">{s['peaks']}</td>"
             f"<td class=\"n\">{s['with_candidates']}</td><td class=\"n\">{s['review']}</td>"
             f"<td class=\"n\">{s['no_candidate']}</td><td class=\"n\">{s['not_in_library']}</td></tr>"
@@ -229,6 +233,11 @@ def _summary(result: ScreenResult, summaries: list[dict[str, Any]]) -> str:
         return '<h2 class="first" id="summary">Summary</h2><p class="empty">No runs were screened.</p>'
     return (f'<h2 class="first" id="summary">Summary</h2><table class="summary">{head}{"".join(rows)}</table>'
             f"{flag_table}")
+
+
+def _second_class(run: RunResult) -> str:
+    second = run.second if isinstance(getattr(run, "second", None), dict) else None
+    return f" (second column: {e(second.get('class'))})" if second else ""
 
 
 def _window(window: Any) -> str:
@@ -532,6 +541,11 @@ _SHORT_HEAD = ("<thead><tr><th></th><th>peak</th><th class=\"n\">rt (min)</th><t
                "<th class=\"n\">probability</th><th class=\"n\">not in library</th><th>flags</th></tr></thead>")
 
 
+#: The shortlist head of a two-column screen: the paired peak with its index, and ΔRI on the second class.
+_SHORT_HEAD_TWO = (_SHORT_HEAD.replace("<th>peak</th>", "<th>peak<br><span class=\"partner\">second col.</span></th>")
+                   .replace("<th class=\"n\">ΔRI</th>", "<th class=\"n\">ΔRI<br><span class=\"partner\">second</span></th>"))
+
+
 def _shortlists(run: RunResult, max_peaks: int) -> str:
     table = run.table
     if table is None or len(table) == 0:
@@ -553,6 +567,7 @@ def _shortlists(run: RunResult, max_peaks: int) -> str:
                 "The CSV or JSON output lists every peak.</p>")
     else:
         shown = keys
+    two = "second_delta_ri" in table.columns  # a two-column screen: the partner's index and each candidate's Δ there
     bodies = []
     for key in shown:
         rows = []
@@ -564,21 +579,42 @@ def _shortlists(run: RunResult, max_peaks: int) -> str:
             rows.append(
                 f'<tr class="{"needs-review" if needs else "ok"}">'
                 f'<td class="mark">{"review" if needs else ""}</td>'
-                f'<td class="peak">{e(rec.get("peak")) if first else ""}</td>'
+                f'<td class="peak">{e(rec.get("peak")) if first else ""}'
+                f'{"<br>" + _second_peak_cell(rec) if first and two else ""}</td>'
                 f'<td class="n">{e(run.time_text(rec.get("peak"), rec.get("rt"))) if first else ""}</td>'
                 f'<td class="n">{_num(rec.get("ri"), 1) if first else ""}</td>'
                 f'<td class="n">{_num(rec.get("area_percent"), 2) if first and _finite(rec.get("area_percent")) else ""}</td>'
                 f'<td class="n">{_int(rec.get("rank"))}</td>'
                 f'<td class="name">{e(rec.get("name")) if ranked else "<span class=empty>no candidate</span>"}</td>'
                 f'<td class="cas">{e(rec.get("cas"))}</td><td class="formula">{e(rec.get("formula"))}</td>'
-                f'<td class="n">{_num(rec.get("library_ri"), 1)}</td><td class="n">{_num(rec.get("delta_ri"), 1)}</td>'
+                f'<td class="n">{_num(rec.get("library_ri"), 1)}</td><td class="n">{_num(rec.get("delta_ri"), 1)}'
+                f'{"<br>" + _second_delta_cell(rec) if two and ranked else ""}</td>'
                 f'<td class="n">{_num(rec.get("probability"), 3)}</td>'
                 f'<td class="n">{_num(rec.get("not_in_library"), 3) if first else ""}</td>'
-                f"<td>{_flags_html(flags)}</td></tr>"
+
+                + f"<td>{_flags_html(flags)}</td></tr>"
             )
         bodies.append("<tbody>" + "".join(rows) + "</tbody>")
     return (f"<h3>Shortlists</h3>{note}"
-            f'<table class="shortlist">{_SHORT_HEAD}{"".join(bodies)}</table>')
+            f'<table class="shortlist{" two" if two else ""}">{_SHORT_HEAD_TWO if two else _SHORT_HEAD}'
+            f'{"".join(bodies)}</table>')
+
+
+def _second_delta_cell(rec: dict[str, Any]) -> str:
+    """The candidate's ΔRI on the second class (paired index − its library index there), or why there is none."""
+    if _finite(rec.get("second_delta_ri")):
+        return f'<span class="partner" title="ΔRI on the second column">{_num(rec.get("second_delta_ri"), 1)}</span>'
+    if not _finite(rec.get("second_library_ri")) and "not-on-second-class" in split_flags(rec.get("flags")):
+        return '<span class="partner" title="no library entry on the second class">not listed</span>'
+    return ""
+
+
+def _second_peak_cell(rec: dict[str, Any]) -> str:
+    """The paired second-run peak and its index ("B7: 1306.0"), or "unpaired"."""
+    peak = rec.get("second_peak")
+    if peak is None or (isinstance(peak, float) and not math.isfinite(peak)) or str(peak).strip() == "":
+        return '<span class="partner empty">unpaired</span>'
+    return f'<span class="partner" title="paired peak of the second run: its index">{e(peak)} · {_num(rec.get("second_ri"), 1)}</span>'
 
 
 def _spectra(run: RunResult, max_peaks: int) -> str:
