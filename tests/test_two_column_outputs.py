@@ -384,3 +384,22 @@ def test_report_shortlist_shows_the_partner(two):
     assert "peak second col." in text and "ΔRI second" in text
     assert f"A1 B10 · {two[2][0]:.1f}" in text  # A1's partner with its index
     assert "unpaired" in text               # A11
+
+
+def test_hostile_second_peak_ids_are_neutralised(tmp_path):
+    """Peak ids of the second run are user text: escaped in the report, neutralised in the CSV (a leading ' before
+    a formula, OWASP guidance on CSV injection), kept literal in the JSON."""
+    snap, _, _ = library()
+    a, b, xa, xb, partner = runs()
+    b = b.assign(peak=["=HYPERLINK(\"x\")" if p == "B10" else ("<script>B9</script>" if p == "B9" else p)
+                       for p in b["peak"]])
+    res = matcher.screen(a, phase_class="slightly-polar", library=snap, second=b, second_class="polar")
+    page = render_report(res)
+    assert "<script>" not in page and "&lt;script&gt;B9&lt;/script&gt;" in page
+    res.to_csv(tmp_path / "h.csv")
+    with open(tmp_path / "h.csv", newline="", encoding="utf-8") as fh:
+        rows = {r["peak"]: r for r in csv.DictReader(fh)}
+    assert rows["A1"]["second_peak"] == "'=HYPERLINK(\"x\")"
+    doc = results_document(res)
+    peaks = {p["peak"]: p for p in doc["runs"][0]["peaks"]}
+    assert peaks["A1"]["second_peak"] == "=HYPERLINK(\"x\")" and peaks["A2"]["second_peak"] == "<script>B9</script>"
