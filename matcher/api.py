@@ -471,13 +471,16 @@ def query(ri: float, phase_class: str, *, library: Any = None, window: float | N
           window_percent: float | None = None, mol_ion: float | None = None, ions: Any = None,
           hit: str | None = None, hit_match: float | None = None, top: int | None = None,
           fallback: bool = False, homologues: bool = False, index_scatter: float | None = None,
-          crowding: str | float | None = None, spectrum: Any = None) -> "QueryResult":
+          crowding: str | float | None = None, spectrum: Any = None, second_ri: float | None = None,
+          second_class: str | None = None) -> "QueryResult":
     """Ranked candidates for one retention index; returns a :class:`~matcher.identify.query.QueryResult`.
 
     ``ions`` are key ions (whole m/z: a list or text such as ``"93 136"``);
     ``hit`` and ``hit_match`` (0-100) are your spectral search's proposal.
     ``spectrum`` is the peak's mass spectrum: a JCAMP-DX file with one block,
     or ``(mz, intensity)`` arrays.
+    ``second_ri`` and ``second_class``: the unknown's index on a second column of another polarity;
+    both indices are scored jointly (:mod:`matcher.identify.two_columns`).
     ``result.candidates`` lists records in rank order, ``result.table`` the
     same as a DataFrame, ``result.to_dict()`` is the ``matcher query --json``
     document.
@@ -486,7 +489,8 @@ def query(ri: float, phase_class: str, *, library: Any = None, window: float | N
 
     return _query(ri, phase_class, **_source(library), window=window, window_percent=window_percent,
                   mol_ion=mol_ion, ions=ions, hit=hit, hit_match=hit_match, top=top, fallback=fallback,
-                  homologues=homologues, index_scatter=index_scatter, crowding=crowding, spectrum=spectrum)
+                  homologues=homologues, index_scatter=index_scatter, crowding=crowding, spectrum=spectrum,
+                  second_ri=second_ri, second_class=second_class)
 
 
 @dataclass

@@ -63,12 +63,13 @@ DETAIL_COLUMNS: tuple[str, ...] = (
 )
 
 #: Columns of a two-column screen only (matcher.identify.two_columns), after the detail columns: the peak of the
-#: second run paired with this one and its index, the candidate's library index on the second class, the
-#: deviation there (second index − library) and the second column's evidence (log likelihood ratio).
-SECOND_COLUMNS: tuple[str, ...] = ("second_peak", "second_ri", "second_library_ri", "second_delta_ri",
-                                   "evidence_second")
+#: second run paired with this one, its index and the probability of that pairing (of no partner, for an
+#: unpaired peak), the candidate's library index on the second class, the deviation there (second index −
+#: library) and the second column's evidence (log likelihood ratio).
+SECOND_COLUMNS: tuple[str, ...] = ("second_peak", "second_ri", "second_pair_probability", "second_library_ri",
+                                   "second_delta_ri", "evidence_second")
 #: Of these, the ones that belong to the peak (its partner), not to a candidate.
-SECOND_PEAK_KEYS: tuple[str, ...] = ("second_peak", "second_ri")
+SECOND_PEAK_KEYS: tuple[str, ...] = ("second_peak", "second_ri", "second_pair_probability")
 
 #: The evidence columns (natural-log likelihood ratios against not-in-library); a
 #: candidate record's ``evidence`` object holds them without the ``evidence_`` prefix.

@@ -20,6 +20,10 @@ Example: a peak at index 1031 on a 5 % phenyl column with molecular ion 136
   With the peak's mass spectrum (a JCAMP-DX file of one block), compared with the library's spectra:
 
     matcher query 1031 --class slightly-polar --spectrum peak-17.jdx
+
+  The same unknown measured on two columns of different polarity, scored with both indices:
+
+    matcher query 1031 --class slightly-polar --second-ri 1211 --second-class polar
 """
 
 
@@ -47,6 +51,8 @@ def register(app: typer.Typer) -> None:
         old_hit: Annotated[Optional[float], typer.Option("--hit-score", hidden=True, metavar="0-100")] = None,
         crowding: Annotated[Optional[str], typer.Option("--crowding", metavar="TYPE|N", help="How crowded the sample is with compounds not in the library: sparse, moderate (default), crowded, dense, or unlisted peaks per 100 index units.")] = None,
         spectrum: Annotated[Optional[str], typer.Option("--spectrum", metavar="ONE.jdx", help="The peak's mass spectrum: a JCAMP-DX file with one block; compared with the library's reference spectra.")] = None,
+        second_ri: Annotated[Optional[float], typer.Option("--second-ri", metavar="RI", help="The unknown's index on a second column of another polarity (needs --second-class); both indices are scored jointly.")] = None,
+        second_class: Annotated[Optional[str], typer.Option("--second-class", metavar="CLASS", help="Polarity class of the second column.")] = None,
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
@@ -57,7 +63,8 @@ def register(app: typer.Typer) -> None:
 
         result = query(ri, phase_class, library=db, window=window, window_percent=window_percent, mol_ion=mol_ion,
                        ions=ions or None, hit=hit, hit_match=hit_match, top=top, fallback=fallback,
-                       homologues=homologues, index_scatter=sd, crowding=crowding, spectrum=spectrum)
+                       homologues=homologues, index_scatter=sd, crowding=crowding, spectrum=spectrum,
+                       second_ri=second_ri, second_class=second_class)
         doc = result.to_dict()
         if as_json:
             say(json.dumps(doc, indent=2, ensure_ascii=False))
@@ -69,17 +76,25 @@ def render(doc: dict) -> str:
     from matcher.report.terminal import format_table
 
     w = doc["window"]
-    head = (f"index {doc['ri']:g} on {doc['class']}, window ±{w['half_width']:g}; "
-            f"{doc['candidates_in_window']} candidate(s) in window")
+    two = (doc.get("model") or {}).get("second")
+    head = (f"index {doc['ri']:g} on {doc['class']}, window ±{w['half_width']:g}"
+            + (f"; index {two['ri']:g} on {two['class']}, window ±{two['half_width']:g}" if two else "")
+            + f"; {doc['candidates_in_window']} candidate(s) in window")
     if not doc["candidates"]:
         body = "no library entry inside the window (not in library: 1.00)"
     else:
         spectral = any(c.get("spectrum_similarity") is not None for c in doc["candidates"])
-        rows = [[c["rank"], c["name"], f"{c['library_ri']:.1f}", f"{c['delta_ri']:+.1f}", f"{c['probability']:.3f}"]
+        def num(v, fmt):
+            return "-" if v is None else format(v, fmt)
+
+        rows = [[c["rank"], c["name"], f"{c['library_ri']:.1f}", f"{c['delta_ri']:+.1f}"]
+                + ([num(c.get("second_library_ri"), ".1f"), num(c.get("second_delta_ri"), "+.1f")] if two else [])
+                + [f"{c['probability']:.3f}"]
                 + ([("-" if c.get("spectrum_similarity") is None else f"{c['spectrum_similarity']:.3f}")] if spectral else [])
                 + [";".join(c["flags"])] for c in doc["candidates"]]
-        heads = ["rank", "name", "library RI", "ΔRI", "probability"] + (["spectrum"] if spectral else []) + ["flags"]
-        body = format_table(heads, rows, align="rlrrr" + ("r" if spectral else "") + "l")
+        heads = (["rank", "name", "library RI", "ΔRI"] + (["second library RI", "second ΔRI"] if two else [])
+                 + ["probability"] + (["spectrum"] if spectral else []) + ["flags"])
+        body = format_table(heads, rows, align="rlrr" + ("rr" if two else "") + "r" + ("r" if spectral else "") + "l")
         body += f"\nnot in library: {doc['not_in_library']:.3f}"
     notes = "".join(f"\nnote: {n}" for n in doc["notes"])
     return f"{head}\n\n{body}{notes}\n\n{doc['caution']}"

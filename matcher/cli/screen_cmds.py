@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from typing import Annotated, List, Optional
 
 import typer
@@ -21,11 +22,18 @@ Examples
     matcher screen a.csv b.csv c.csv --calibration a.json --calibration b.json --calibration c.json
         --class polar --adaptive -o batch.json
 
-  Two runs on two columns, with the facts for the QC record (an export's preamble fills what is not given):
+  Two runs of different samples in one batch, with the facts for the QC record (an export's preamble fills
+  what is not given):
 
-    matcher screen lot7-phenyl.csv lot7-peg.csv --calibration phenyl.json --calibration peg.json
+    matcher screen lot7-phenyl.csv lot8-peg.csv --calibration phenyl.json --calibration peg.json
         --class slightly-polar --class polar --sample "lot 7" --analyst ana --instrument "GC-2"
         --column "5 % phenyl 30 m x 0.25 mm x 0.25 um" -o lot7.xlsx --report lot7.html
+
+  One sample on two columns of different polarity (one injection split to both), confirmed jointly: each
+  peak of the first run is paired with a peak of the second and scored with both indices:
+
+    matcher screen lot7-phenyl.csv --ladder alkanes-phenyl.csv --class slightly-polar
+        --second lot7-peg.csv --second-ladder alkanes-peg.csv --second-class polar -o lot7.csv --report lot7.html
 
   A peak table whose time column has a header of its own:
 
@@ -81,6 +89,11 @@ def register(app: typer.Typer) -> None:
         analyst: Annotated[Optional[str], typer.Option("--analyst", metavar="WHO", help="Who ran and reviewed the screen, for the QC record.")] = None,
         instrument: Annotated[Optional[str], typer.Option("--instrument", metavar="INSTRUMENT", help="The GC (and detector) the run was made on, for the QC record.")] = None,
         column: Annotated[Optional[str], typer.Option("--column", metavar="COLUMN", help="The column: phase, length x inner diameter x film, for the QC record.")] = None,
+        second: Annotated[Optional[str], typer.Option("--second", metavar="PEAKS.csv|RUN", help="The same sample run on a second column of another polarity (two-column confirmation): its peaks are paired with the first run's and every peak is scored with both indices. Needs --second-class.")] = None,
+        second_class: Annotated[Optional[str], typer.Option("--second-class", metavar="CLASS", help="Polarity class of the second column.")] = None,
+        second_calibration: Annotated[Optional[str], typer.Option("--second-calibration", metavar="CAL.json", help="Saved calibration of the second column.")] = None,
+        second_ladder: Annotated[Optional[str], typer.Option("--second-ladder", metavar="LADDER.csv", help="Ladder CSV, or the ladder's run file, of the second column.")] = None,
+        second_spectra: Annotated[Optional[str], typer.Option("--second-spectra", metavar="RUN.jdx", help="The second run's peak spectra (JCAMP-DX blocks titled by peak id); used to pair the peaks.")] = None,
         db: DbOption = None,
     ) -> None:
         import sys
@@ -114,7 +127,9 @@ def register(app: typer.Typer) -> None:
                             homologues=homologues, adaptive=adaptive, anchors=anchors, index_scatter=sd,
                             crowding=crowding, split_peaks=split_peaks, sample=sample, analyst=analyst,
                             instrument=instrument, column=column, spectra=spectra or None, progress=progress, min_snr=min_snr,
-                            output=out, report=report)
+                            output=out, report=report, second=second, second_class=second_class,
+                            second_calibration=second_calibration, second_ladder=second_ladder,
+                            second_spectra=second_spectra)
         finally:
             if bar is not None:
                 bar.__exit__(None, None, None)
@@ -123,6 +138,9 @@ def register(app: typer.Typer) -> None:
         written = [out] + ([str(sidecar_path(out))] if out.lower().endswith(".csv") else []) + ([report] if report else [])
         if not quiet:
             say(summary(result))
+            for run in result.runs:
+                if run.second:
+                    say(pairing_line(run))
             for p in written:
                 say(f"wrote {p}")
             say("")
@@ -131,6 +149,16 @@ def register(app: typer.Typer) -> None:
             for n in run.notices:
                 if n:
                     note(f"{run.label}: {n}")
+
+
+def pairing_line(run) -> str:
+    """One line on a two-column run's pairing: how many peaks paired, the split factor of the areas."""
+    two, info = run.second, run.second.get("pairing") or {}
+    area = info.get("area")
+    return (f"{run.label} + {two['label']} ({two['class']}): {info.get('paired', 0)} of {run.peak_count} peaks paired, "
+            f"{info.get('uncertain_pairs', 0)} of them uncertain (pair probability < 0.9); "
+            f"{info.get('unpaired_second', 0)} peak(s) of the second run unpaired"
+            + (f"; area ratio second/first {math.exp(area['log_factor']):.3g}" if area else ""))
 
 
 def summary(result) -> str:

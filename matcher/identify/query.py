@@ -31,6 +31,7 @@ import numpy as np
 
 from matcher import CAUTION
 from matcher import rules
+from matcher.errors import MatcherError
 from matcher.identify.window_search import window_description
 from matcher.identify.evidence import DEFAULT_MEASUREMENT_SD, DEFAULT_PRESENCE, Model
 from matcher.results import candidate_record, plain
@@ -40,13 +41,22 @@ from matcher.store.snapshot import LibrarySnapshot
 
 
 def candidate_records(sl: Shortlist, rows: np.ndarray) -> list[dict]:
-    """Candidate records (see :func:`matcher.results.candidate_record`) for shortlist rows with a rank."""
+    """Candidate records (see :func:`matcher.results.candidate_record`) for shortlist rows with a rank.
+
+    With a second column (``second_ri``), each record also holds ``second_library_ri`` and ``second_delta_ri``
+    and its ``evidence`` the ``second`` term."""
+    from matcher.results import EVIDENCE_COLUMNS
+
     c = sl.columns
+    two = "evidence_second" in c
+    evidence = list(EVIDENCE_COLUMNS) + (["evidence_second"] if two else [])
+    extra = ["second_library_ri", "second_delta_ri"] if two else []
     out = []
     for i in rows:
         if c["rank"][i] == 0:
             continue
-        out.append(candidate_record(lambda k, i=i: c[k][i], [f for f in str(c["flags"][i]).split(";") if f]))
+        out.append(candidate_record(lambda k, i=i: c[k][i], [f for f in str(c["flags"][i]).split(";") if f],
+                                    evidence_columns=evidence, extra=extra))
     return out
 
 
@@ -122,6 +132,8 @@ def query(
     presence: float = DEFAULT_PRESENCE,
     crowding: str | float | None = None,
     spectrum: Any = None,
+    second_ri: float | None = None,
+    second_class: str | None = None,
 ) -> QueryResult:
     """Ranked shortlist for one index against one class of the library; see :class:`QueryResult`.
 
@@ -135,11 +147,21 @@ def query(
     units) and each listed compound the presence prior ``presence``.
     Settings are checked by :mod:`matcher.rules` (and :mod:`matcher.limits`);
     a bad one raises :class:`~matcher.errors.MatcherError`.
+
+    Two columns: ``second_ri`` is the unknown's index measured on a second column of class
+    ``second_class``; each candidate's odds gain the second column's index evidence
+    (:mod:`matcher.identify.two_columns`, the class's default scatter and the crowding prior there), and the
+    records carry ``second_library_ri`` and ``second_delta_ri``.
     """
     from matcher.limits import check_mol_ion, check_sd
 
     phase_class = rules.check_class(phase_class)
     ri = rules.check_ri(ri)
+    if (second_ri is None) != (second_class is None):
+        raise MatcherError("a second column needs both its index and its class: --second-ri RI --second-class CLASS")
+    if second_ri is not None:
+        second_ri = rules.check_ri(second_ri)
+        second_class = rules.check_class(second_class)
     if index_scatter is not None:
         index_scatter = check_sd(index_scatter)
     if mol_ion is not None:
@@ -170,6 +192,8 @@ def query(
     )
     lam0 = crowding_density(crowding)
     model = Model(sd, presence=float(presence), unlisted=UnlistedField.flat(lam0))
+    if second_ri is not None:
+        peaks.second = one_second_column(snapshot, second_class, second_ri, lam0, homologues=homologues)
     sl = shortlist(home, peaks, model, window=window, window_percent=window_percent,
                    top=top, neighbour=neighbour)
     rows = np.arange(len(sl.columns["peak"]))
@@ -180,11 +204,28 @@ def query(
         candidates=candidate_records(sl, rows),
         not_in_library=plain(sl.not_in_library[0]),
         candidates_in_window=int(sl.candidate_count[0]),
-        model={"index_scatter": sd, "presence": float(presence), "unlisted_per_100": round(lam0 * 100, 3)},
+        model={"index_scatter": sd, "presence": float(presence), "unlisted_per_100": round(lam0 * 100, 3),
+               **({"second": {"ri": second_ri, "class": second_class,
+                              "index_scatter": float(peaks.second.index_scatter),
+                              "half_width": plain(peaks.second.window[0])}} if second_ri is not None else {})},
         library={"location": snapshot.source, "revision": snapshot.revision, "entries": len(home.entries),
                  "spectra": len(home.references) if home.references is not None else 0},
         notes=list(sl.notes) + ([NO_REFERENCE_SPECTRA] if packed is not None and home.references is None else []),
     )
+
+
+def one_second_column(snapshot: LibrarySnapshot, phase_class: str, ri: float, unlisted: float, *,
+                      homologues: bool = False):
+    """The second column of a single unknown: its index on ``phase_class``, paired for sure."""
+    from matcher.identify.two_columns import SecondColumn, per_compound
+    from matcher.identify.window_search import half_widths
+
+    home = prepare(snapshot, phase_class, homologues=homologues)
+    lib, spread = per_compound(home.entries, len(snapshot.compounds))
+    x = np.array([float(ri)])
+    return SecondColumn(phase_class=phase_class, partner=np.array([0]), peak_id=np.array(["second"], dtype=object),
+                        ri=x, unlisted=np.array([float(unlisted)]), window=half_widths(x, phase_class, None, None),
+                        library_ri=lib, library_spread=spread, index_scatter=DEFAULT_MEASUREMENT_SD[phase_class])
 
 
 NO_REFERENCE_SPECTRA = ("the library holds no reference spectra, so the spectrum was not compared "

@@ -844,7 +844,7 @@ def _pair_with_second(home: PreparedClass, prep: PreparedRun, home_b: PreparedCl
                          b_logw=odds_b, n_b=len(x_b), area_a=area_a, area_b=area_b, spectra_a=spectra_a,
                          spectra_b=spectra_b, spectrum_model=home.spectrum_model)
     n_comp = len(home.compounds)
-    lib_ri, lib_sd = per_compound(home_b.entries, min(n_comp, len(home_b.compounds)))
+    lib_ri, lib_sd = per_compound(home_b.entries, n_comp)  # measured entries name snapshot compounds only
     partner = pairing.partner
     safe = np.where(partner >= 0, partner, 0)
     has = partner >= 0
@@ -855,6 +855,13 @@ def _pair_with_second(home: PreparedClass, prep: PreparedRun, home_b: PreparedCl
         unlisted=np.where(has, lam_b[safe] if len(x_b) else 1.0, 1.0),
         window=np.where(has, w_b[safe] if len(x_b) else np.nan, np.nan),
         library_ri=lib_ri, library_spread=lib_sd, index_scatter=float(prep_b.model.index_scatter))
+    if pairing.options is not None and len(x_b):
+        o = pairing.options
+        real = o >= 0
+        at = np.where(real, o, 0)
+        second.option_ri = np.where(real, x_b[at], np.nan)
+        second.option_unlisted = np.where(real, lam_b[at], 1.0)
+        second.option_probability = pairing.option_probability
     return second, pairing
 
 

@@ -352,6 +352,7 @@ def second_columns(cols: dict, second) -> None:
     partner = second.partner[peak]
     cols["second_peak"] = np.where(partner >= 0, second.peak_id[peak], "").astype(object)
     cols["second_ri"] = np.where(partner >= 0, second.ri[peak], np.nan)
+    cols["second_pair_probability"] = second.pair_probability[peak]
     cols["second_library_ri"] = np.where(cand, ev["library_ri"], np.nan)
     cols["second_delta_ri"] = np.where(cand, ev["delta_ri"], np.nan)
     cols["evidence_second"] = np.where(cand, ev["evidence"], 0.0)

@@ -66,15 +66,19 @@ import numpy as np
 
 #: u, the prior probability that a peak has no partner on the other column (an assumption, not fitted).
 UNPAIRED = 0.1
-#: σ of ln(area_B / area_A) − ln k used when too few pairs are confident to estimate it (assumption:
+#: σ of ln(area_B / area_A) − ln k used when the first pass has too few pairs to estimate it (assumption:
 #: split ratios and detector responses differ by compound by some tens of per cent).
-AREA_SCATTER = 0.3
+AREA_SCATTER = 0.5
 #: least σ of the area term (integration error of a few per cent).
 MIN_AREA_SCATTER = 0.15
 #: fewest pairs of the first pass to estimate the split factor and its scatter.
 MIN_AREA_PAIRS = 5
 #: pairs whose peaks share no candidate are scored only when both runs together hold at most this many pairs.
 DENSE_PAIRS = 4_000_000
+#: partners kept open per peak (the chosen one and its strongest rivals, "no partner" included).
+OPTIONS = 3
+#: rivals less probable than this are dropped from a peak's open partners.
+OPTION_FLOOR = 0.01
 #: a pair of areas further than this many σ_k from the split factor is not considered "agreeing".
 AREA_REACH = 3.0
 
@@ -86,8 +90,11 @@ class SecondColumn:
     Per peak of the first run: ``partner`` (position in the second run, −1 unpaired),
     ``peak_id``, ``ri`` (the partner's index, corrected like the rest of its run),
     ``unlisted`` (λ_U of the second run there), ``window`` (the half-width of the
-    second class there). Per library compound: ``library_ri`` and ``library_spread`` on
-    the second class (NaN where the compound has no entry there).
+    second class there); ``options``: up to :data:`OPTIONS` partners the pairing
+    left open, (n, K) arrays ``option_ri`` (NaN: no partner), ``option_unlisted`` and
+    ``option_probability`` (0 for an unused slot; a row sums to 1), the chosen partner first.
+    Per library compound: ``library_ri`` and ``library_spread`` on the second class
+    (NaN where the compound has no entry there).
     """
 
     phase_class: str
@@ -99,15 +106,34 @@ class SecondColumn:
     library_ri: np.ndarray
     library_spread: np.ndarray
     index_scatter: float
+    option_ri: np.ndarray | None = None
+    option_unlisted: np.ndarray | None = None
+    option_probability: np.ndarray | None = None
 
     def take(self, idx: np.ndarray) -> "SecondColumn":
         idx = np.asarray(idx, dtype=np.int64)
+        opt = {k: None if getattr(self, k) is None else getattr(self, k)[idx]
+               for k in ("option_ri", "option_unlisted", "option_probability")}
         return replace(self, partner=self.partner[idx], peak_id=self.peak_id[idx], ri=self.ri[idx],
-                       unlisted=self.unlisted[idx], window=self.window[idx])
+                       unlisted=self.unlisted[idx], window=self.window[idx], **opt)
+
+    @property
+    def pair_probability(self) -> np.ndarray:
+        """Per peak: the probability of the chosen pairing (of staying unpaired, for an unpaired peak)."""
+        if self.option_probability is None:
+            return np.ones(len(self.partner))
+        return self.option_probability[:, 0]
+
+    def _log_ratio(self, x, lam, lib, spread):
+        s = np.sqrt(np.where(np.isfinite(spread), spread, 0.0) ** 2 + self.index_scatter ** 2)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return -0.5 * ((x - lib) / s) ** 2 - np.log(s) - 0.5 * np.log(2 * np.pi) - np.log(lam)
 
     def evidence(self, peak: np.ndarray, compound: np.ndarray) -> dict[str, np.ndarray]:
-        """Per (peak, compound) pair: ``evidence`` e_B (0 unpaired or not listed), ``library_ri``, ``delta_ri``
-        (second index − library, NaN where either is missing), ``listed`` and ``inside`` (|Δ| ≤ second window)."""
+        """Per (peak, compound) pair: ``evidence`` e_B (0 unpaired or not listed; over the open pairings,
+        ln Σ_k p_k e^{e_B(b_k, j)}, an unpaired option counting e^0), ``library_ri``, ``delta_ri`` (the chosen
+        partner's index − library, NaN where either is missing), ``listed``, ``paired`` and ``inside``
+        (|Δ| ≤ the second window)."""
         peak = np.asarray(peak, dtype=np.int64)
         compound = np.asarray(compound, dtype=np.int64)
         known = (compound >= 0) & (compound < len(self.library_ri))
@@ -116,14 +142,23 @@ class SecondColumn:
         spread = np.where(known, self.library_spread[c] if len(self.library_spread) else np.nan, np.nan)
         paired = self.partner[peak] >= 0
         listed = np.isfinite(lib)
-        x = self.ri[peak]
-        delta = np.where(paired & listed, x - lib, np.nan)
-        s = np.sqrt(np.where(listed, spread, 0.0) ** 2 + self.index_scatter ** 2)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            ev = -0.5 * (delta / s) ** 2 - np.log(s) - 0.5 * np.log(2 * np.pi) - np.log(self.unlisted[peak])
-        ok = paired & listed & np.isfinite(ev)
-        return {"evidence": np.where(ok, ev, 0.0), "library_ri": lib, "delta_ri": delta, "listed": listed,
-                "paired": paired, "inside": ok & (np.abs(delta) <= self.window[peak])}
+        delta = np.where(paired & listed, self.ri[peak] - lib, np.nan)
+        if self.option_probability is None:
+            ev = self._log_ratio(self.ri[peak], self.unlisted[peak], lib, spread)
+            ev = np.where(paired & listed & np.isfinite(ev), ev, 0.0)
+        else:
+            p = self.option_probability[peak]
+            x = self.option_ri[peak]
+            terms = self._log_ratio(x, self.option_unlisted[peak], lib[:, None], spread[:, None])
+            terms = np.where(np.isfinite(x), terms, 0.0)  # no partner: the not-in-library ratio, 1
+            with np.errstate(divide="ignore"):
+                terms = np.where(p > 0, terms + np.log(np.where(p > 0, p, 1.0)), -np.inf)
+            top = np.max(terms, axis=1, keepdims=True)
+            top = np.where(np.isfinite(top), top, 0.0)
+            ev = top[:, 0] + np.log(np.sum(np.exp(terms - top), axis=1))
+            ev = np.where(listed & np.isfinite(ev), ev, 0.0)
+        return {"evidence": ev, "library_ri": lib, "delta_ri": delta, "listed": listed,
+                "paired": paired, "inside": paired & listed & (np.abs(delta) <= self.window[peak])}
 
 
 def per_compound(entries, n_compounds: int) -> tuple[np.ndarray, np.ndarray]:
@@ -154,6 +189,8 @@ class Pairing:
     partner: np.ndarray  # per peak of the first run: position in the second run, −1 unpaired
     gain: np.ndarray  # per peak of the first run: the pair's log likelihood ratio g_ab (NaN unpaired)
     info: dict = field(default_factory=dict)
+    options: np.ndarray | None = None  # (n, OPTIONS): partner positions left open, chosen first; −1 none, −2 unused
+    option_probability: np.ndarray | None = None  # (n, OPTIONS), rows sum to 1
 
 
 def _logsumexp_by(keys: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -333,9 +370,9 @@ def pair_peaks(*, a_peak, a_comp, a_logw, n_a: int, b_peak, b_comp, b_ev, b_logw
         spec_pairs = int(np.isfinite(sim).sum())
     partner = best_matching(rows_, cols_, total, n_a, n_b)
     gain = np.full(n_a, np.nan)
-    lookup = {(int(a), int(b)): i for i, (a, b) in enumerate(zip(rows_, cols_))}
-    for a in np.flatnonzero(partner >= 0):
-        gain[a] = total[lookup[(int(a), int(partner[a]))]] - prior
+    on = np.flatnonzero(partner[rows_] == cols_)  # the chosen pairs' rows
+    gain[rows_[on]] = total[on] - prior
+    options, option_p = open_pairings(rows_, cols_, total, partner, n_b)
     info = {
         "method": "assignment of pairs by maximum summed log likelihood ratio (Kuhn 1955; Jonker & Volgenant 1987)",
         "unpaired_prior": unpaired,
@@ -346,7 +383,80 @@ def pair_peaks(*, a_peak, a_comp, a_logw, n_a: int, b_peak, b_comp, b_ev, b_logw
         "spectra_compared": spec_pairs,
         "notes": notes,
     }
-    return Pairing(partner, gain, info)
+    info["uncertain_pairs"] = int(((option_p[:, 0] < 0.9) & (partner >= 0)).sum())
+    return Pairing(partner, gain, info, options, option_p)
+
+
+def open_pairings(rows, cols, score, partner: np.ndarray, n_b: int) -> tuple[np.ndarray, np.ndarray]:
+    """The partners each peak could take and their probabilities, next to the chosen matching.
+
+    ``score``: the pair scores, an array aligned with ``rows``/``cols`` (or a dict (row, col) -> score).
+    For peak a matched to b (or single), each other partner b' (or none) is scored by the best local change
+    of the matching that gives a b': Δ = s(a,b') − s(a,b) − s(a',b') + max(0, s(a',b)) when b' belongs to a'
+    (a' takes b or stays single), Δ = s(a,b') − s(a,b) when b' is free, and Δ = −s(a,b) for no partner, with
+    Δ = 0 for the chosen one; P(b') ∝ e^Δ over the chosen one and the :data:`OPTIONS` − 1 strongest rivals
+    (those under :data:`OPTION_FLOOR` dropped). A local (two-swap) view of the pairing's uncertainty, not an
+    exact sum over all matchings.
+
+    >>> s = {(0, 0): 5.0, (0, 1): 4.0, (1, 0): 4.0, (1, 1): 5.0}
+    >>> opts, p = open_pairings(np.array([0, 0, 1, 1]), np.array([0, 1, 0, 1]), s, np.array([0, 1]), 2)
+    >>> opts.tolist(), p.round(3).tolist()
+    ([[0, 1, -2], [1, 0, -2]], [[0.881, 0.119, 0.0], [0.881, 0.119, 0.0]])
+    """
+    rows = np.asarray(rows, dtype=np.int64)
+    cols = np.asarray(cols, dtype=np.int64)
+    if isinstance(score, dict):
+        score = np.array([score[(int(r), int(c))] for r, c in zip(rows, cols)], dtype=float)
+    score = np.asarray(score, dtype=float)
+    partner = np.asarray(partner, dtype=np.int64)
+    n_a = len(partner)
+    n_b = max(int(n_b), 1)
+    keys = rows * n_b + cols
+    order = np.argsort(keys, kind="stable")
+    sorted_keys = keys[order]
+
+    def pair_score(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+        """s(a, b), −inf where the pair is not an edge (or b < 0)."""
+        want = a * n_b + np.maximum(b, 0)
+        i = np.clip(np.searchsorted(sorted_keys, want), 0, max(len(sorted_keys) - 1, 0))
+        found = (b >= 0) & (len(sorted_keys) > 0) & (sorted_keys[i] == want) if len(sorted_keys) else np.zeros(len(a), bool)
+        return np.where(found, score[order[i]] if len(sorted_keys) else 0.0, -np.inf)
+
+    here = np.where(partner >= 0, pair_score(np.arange(n_a), partner), 0.0)  # s(a, b) of the chosen pair
+    owner = np.full(n_b, -1, dtype=np.int64)
+    owner[partner[partner >= 0]] = np.flatnonzero(partner >= 0)
+    rival = cols != partner[rows]
+    r, c, sc = rows[rival], cols[rival], score[rival]
+    a2 = owner[c]
+    taken = a2 >= 0
+    a2s = np.where(taken, a2, 0)
+    swap_back = np.maximum(0.0, pair_score(a2s, partner[r]))  # a' takes the b that a leaves, or stays single
+    d = sc - here[r] - np.where(taken, here[a2s] - np.where(partner[r] >= 0, swap_back, 0.0), 0.0)
+    # options per peak: the chosen (Δ 0), no partner (Δ −s(a,b), for a paired peak), the rivals
+    paired = np.flatnonzero(partner >= 0)
+    opt_a = np.concatenate([np.arange(n_a), paired, r])
+    opt_b = np.concatenate([partner, np.full(len(paired), -1), c])
+    opt_d = np.concatenate([np.zeros(n_a), -here[paired], d])
+    first = np.concatenate([np.ones(n_a, bool), np.zeros(len(paired) + len(r), bool)])
+    o = np.lexsort((-opt_d, ~first, opt_a))  # per peak: the chosen one first, then rivals by Δ
+    opt_a, opt_b, opt_d = opt_a[o], opt_b[o], opt_d[o]
+    starts = np.flatnonzero(np.r_[True, opt_a[1:] != opt_a[:-1]])
+    pos = np.arange(len(opt_a)) - np.repeat(starts, np.diff(np.r_[starts, len(opt_a)]))
+    keep = pos < OPTIONS
+    opt_a, opt_b, opt_d, pos = opt_a[keep], opt_b[keep], opt_d[keep], pos[keep]
+    options = np.full((n_a, OPTIONS), -2, dtype=np.int64)
+    delta = np.full((n_a, OPTIONS), -np.inf)
+    options[opt_a, pos] = opt_b
+    delta[opt_a, pos] = opt_d
+    probs = np.exp(delta - delta.max(axis=1, keepdims=True))
+    probs /= probs.sum(axis=1, keepdims=True)
+    drop = (probs < OPTION_FLOOR) & (np.arange(OPTIONS) > 0)
+    probs[drop] = 0.0
+    options[drop] = -2
+    probs /= probs.sum(axis=1, keepdims=True)
+    # unused slots last
+    o2 = np.argsort(options == -2, axis=1, kind="stable")
+    return np.take_along_axis(options, o2, axis=1), np.take_along_axis(probs, o2, axis=1)
 
 
 def _logsumexp_per(peak: np.ndarray, logw: np.ndarray, n: int) -> np.ndarray:
