@@ -29,6 +29,7 @@ from engine_helpers import DATA, essential_oils
 from matcher.io.result_files import read_result, sidecar_path
 from matcher.report.files import output_validator, results_document, second_document
 from matcher.report.html import render_report
+from matcher.results import SECOND_COLUMNS, SECOND_PEAK_KEYS
 from matcher.store.snapshot import CompoundTable, build_snapshot
 
 #: the ten compounds of the invented sample (names as in the data files)
@@ -158,8 +159,8 @@ def test_candidate_second_columns(two):
 def test_csv_has_the_five_columns_and_the_values(two, written):
     res, xa, xb, partner = two
     frame = pd.read_csv(written / "out.csv", dtype={"second_peak": str, "peak": str})
-    assert list(frame.columns[-5:]) == ["second_peak", "second_ri", "second_library_ri", "second_delta_ri",
-                                        "evidence_second"]
+    assert list(frame.columns[-len(SECOND_COLUMNS):]) == list(SECOND_COLUMNS)
+    assert {"second_peak", "second_ri", "second_library_ri", "second_delta_ri", "evidence_second"} <= set(SECOND_COLUMNS)
     first = frame.groupby("peak", sort=False).head(1).set_index("peak")
     assert first.loc["A3", "second_peak"] == partner["A3"] == "B8"
     assert first.loc["A3", "second_ri"] == pytest.approx(xb[2], abs=0.005)
@@ -183,7 +184,11 @@ def test_json_peak_level_and_candidate_level(two, written):
     assert p["second_peak"] == "B4" and p["second_ri"] == pytest.approx(xb[6])
     lead = p["candidates"][0]
     assert lead["name"] == "geraniol"
-    assert "second_peak" not in lead and "second_ri" not in lead  # once per peak, not per candidate
+    assert not set(SECOND_PEAK_KEYS) & set(lead)  # once per peak, not per candidate
+    top = res.runs[0].table
+    top = top[(top["peak"] == "A7") & (top["rank"] == 1)].iloc[0]
+    assert 0.0 < p["second_pair_probability"] <= 1.0
+    assert p["second_pair_probability"] == pytest.approx(top["second_pair_probability"])
     assert lead["second_library_ri"] == pytest.approx(_polar()["geraniol"])
     row = res.runs[0].table
     row = row[(row["peak"] == "A7") & (row["rank"] == 1)].iloc[0]
@@ -210,6 +215,7 @@ def test_read_back_alike_from_csv_and_json(two, written):
         assert {k: peaks[k]["second_peak"] for k in partner} == partner
         assert peaks["A11"]["second_peak"] is None and peaks["A11"]["second_ri"] is None
         assert peaks["A2"]["second_ri"] == pytest.approx(xb[1], abs=0.005)
+        assert 0.0 < peaks["A2"]["second_pair_probability"] <= 1.0
         lead = peaks["A2"]["candidates"][0]
         assert lead["name"] == "beta-pinene" and "second_peak" not in lead
         assert lead["second_library_ri"] == pytest.approx(_polar()["beta-pinene"])
@@ -220,6 +226,8 @@ def test_read_back_alike_from_csv_and_json(two, written):
     for k in pa:
         assert set(pa[k]) == set(pb[k])
         assert pa[k]["second_peak"] == pb[k]["second_peak"]
+        if pb[k]["second_pair_probability"] is not None:  # the CSV rounds it down to 6 decimals
+            assert 0 <= pb[k]["second_pair_probability"] - pa[k]["second_pair_probability"] < 1e-6
         assert pa[k]["flags"] == pb[k]["flags"]
 
 
@@ -263,7 +271,7 @@ def test_xlsx_shortlist_columns_and_runs_sheet(two, written):
     wb = load_workbook(written / "out.xlsx", read_only=True)
     rows = list(wb["shortlist"].iter_rows(values_only=True))
     head = list(rows[0])
-    for c in ("second_peak", "second_ri", "second_library_ri", "second_delta_ri", "evidence_second"):
+    for c in SECOND_COLUMNS:
         assert c in head
     at = {c: head.index(c) for c in head}
     a1 = next(r for r in rows[1:] if r[at["peak"]] == "A1")

@@ -262,7 +262,8 @@ class ResultView:
     ``runs`` is a list of dicts ``{"label", "source", "class", "checksum", "standards", "peaks"}`` (and, for a
     two-column screen, ``second``: the second column's ``label``, ``source``, ``class`` and ``checksum``);
     each peak holds the peak keys of :data:`matcher.results.PEAK_KEYS` (and a two-column screen's
-    ``second_peak`` and ``second_ri``, :data:`matcher.results.SECOND_PEAK_KEYS`), ``flags`` (common to
+    ``second_peak``, ``second_ri`` and ``second_pair_probability``, :data:`matcher.results.SECOND_PEAK_KEYS`),
+    ``flags`` (common to
     the peak's rows) and ``candidates`` (records of :func:`matcher.results.candidate_record`,
     with ``flags``, ``evidence`` and any further columns the output carries). ``sha256`` is the
     checksum of the result file's bytes (what a review record is tied to).
@@ -338,8 +339,8 @@ def _json_peak(p: dict) -> dict:
 
 
 def _second_fields(values: dict) -> dict:
-    """A two-column screen's ``second_peak`` (text, ``None`` when unpaired) and ``second_ri`` (a number or ``None``),
-    alike from a CSV row and a JSON peak.
+    """A two-column screen's ``second_peak`` (text, ``None`` when unpaired), ``second_ri`` and
+    ``second_pair_probability`` (numbers or ``None``), alike from a CSV row and a JSON peak.
 
     >>> _second_fields({"second_peak": "", "second_ri": None}), _second_fields({"second_peak": 12, "second_ri": "1480.5"})
     ({'second_peak': None, 'second_ri': None}, {'second_peak': '12', 'second_ri': 1480.5})
@@ -351,7 +352,7 @@ def _second_fields(values: dict) -> dict:
         v = plain(v)
         if k == "second_peak":
             v = None if v is None or str(v).strip() == "" else str(v).strip()
-        elif k == "second_ri":
+        elif k in ("second_ri", "second_pair_probability"):
             v = _num(v)
         out[k] = v
     return out

@@ -109,7 +109,7 @@ DECIMALS: dict[str, int] = {
     # a two-column screen (matcher.results.SECOND_COLUMNS)
     "second_ri": 2, "second_library_ri": 2, "second_delta_ri": 2, "evidence_second": 4,
 }
-PROBABILITY_COLUMNS = ("probability", "not_in_library")
+PROBABILITY_COLUMNS = ("probability", "not_in_library", "second_pair_probability")
 PROBABILITY_DECIMALS = 6
 EXCEL_MAX_ROWS = 1_048_576
 
@@ -319,8 +319,9 @@ def _peaks(table: pd.DataFrame) -> list[dict[str, Any]]:
 
 
 def second_peak_fields(get, columns) -> dict[str, Any]:
-    """A peak's partner on the second column: ``second_peak`` (its id as text, ``None`` when unpaired) and
-    ``second_ri`` (its index), for the columns of :data:`~matcher.results.SECOND_PEAK_KEYS` the table has.
+    """A peak's partner on the second column: ``second_peak`` (its id as text, ``None`` when unpaired),
+    ``second_ri`` (its index) and ``second_pair_probability``, for the columns of
+    :data:`~matcher.results.SECOND_PEAK_KEYS` the table has.
 
     >>> second_peak_fields({"second_peak": 7, "second_ri": np.float64(1480.5)}.get, ["second_peak", "second_ri"])
     {'second_peak': '7', 'second_ri': 1480.5}
@@ -749,6 +750,8 @@ def _second_sheet_rows(second: dict[str, Any]):
         yield [_cell("pairing of the peaks"), _cell(pairing.get("method"))]
         yield [_cell("prior probability of no partner"), _cell(pairing.get("unpaired_prior"))]
         yield [_cell("peaks paired"), _cell(pairing.get("paired"))]
+        if pairing.get("uncertain_pairs") is not None:
+            yield [_cell("pairs less probable than 0.9"), _cell(pairing.get("uncertain_pairs"))]
         yield [_cell("peaks of this run without partner"), _cell(pairing.get("unpaired_first"))]
         yield [_cell("peaks of the second run without partner"), _cell(pairing.get("unpaired_second"))]
         yield [_cell("pairs with both spectra compared"), _cell(pairing.get("spectra_compared"))]

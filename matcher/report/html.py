@@ -614,7 +614,9 @@ def _second_peak_cell(rec: dict[str, Any]) -> str:
     peak = rec.get("second_peak")
     if peak is None or (isinstance(peak, float) and not math.isfinite(peak)) or str(peak).strip() == "":
         return '<span class="partner empty">unpaired</span>'
-    return f'<span class="partner" title="paired peak of the second run: its index">{e(peak)} · {_num(rec.get("second_ri"), 1)}</span>'
+    prob = rec.get("second_pair_probability")
+    tip = "paired peak of the second run and its index" + (f"; pair probability {_num(prob, 3)}" if _finite(prob) else "")
+    return f'<span class="partner" title="{e(tip)}">{e(peak)} · {_num(rec.get("second_ri"), 1)}</span>'
 
 
 def _spectra(run: RunResult, max_peaks: int) -> str:
@@ -811,10 +813,12 @@ def _second_column(i: int, run: RunResult) -> str:
     n = min(len(ids), len(partners), len(xs), len(ys))
     unpaired_b = [str(v) for v in second.get("unpaired_second") or []]
     lead = _leading_flags(run.table)
+    pair_p = _pair_probabilities(run.table)
     disagree = [k for k in range(n) if DISAGREES_FLAG in lead.get(ids[k], [])]
     unpaired_a = [p for p, f in lead.items() if "unpaired" in f]
     pair_rows = [
         ("pairs made", e(_int(pairing.get("paired")) if pairing.get("paired") is not None else str(n))),
+        ("pairs less probable than 0.9", _int(pairing.get("uncertain_pairs"))),
         ("peaks of this run without partner", _int(pairing.get("unpaired_first"))
          + (f" ({e(', '.join(unpaired_a[:SHOWN_UNPAIRED]))}{' …' if len(unpaired_a) > SHOWN_UNPAIRED else ''})"
             if unpaired_a else "")),
@@ -828,7 +832,7 @@ def _second_column(i: int, run: RunResult) -> str:
         ("leading candidates the second column contradicts", str(len(disagree))),
     ]
     notes = [str(v) for v in pairing.get("notes") or []]
-    plot = _pairs_plot(second, ids[:n], partners[:n], xs[:n], ys[:n], set(disagree))
+    plot = _pairs_plot(second, ids[:n], partners[:n], xs[:n], ys[:n], set(disagree), pair_p)
     return (
         '<h3>Second column</h3>'
         '<p class="note">The same sample run on a column of another polarity. Each peak of this run was paired with '
@@ -847,8 +851,17 @@ def _second_column(i: int, run: RunResult) -> str:
     )
 
 
+def _pair_probabilities(table: pd.DataFrame | None) -> dict[str, float]:
+    """Per peak id, the probability of its pairing (``second_pair_probability``), where the table has it."""
+    if table is None or len(table) == 0 or "second_pair_probability" not in table:
+        return {}
+    first = table.drop_duplicates("peak")
+    values = pd.to_numeric(first["second_pair_probability"], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    return {str(p): float(v) for p, v in zip(first["peak"], values) if math.isfinite(v)}
+
+
 def _pairs_plot(second: dict[str, Any], ids: list[str], partners: list[str], xs: list, ys: list,
-                disagree: set[int]) -> str:
+                disagree: set[int], pair_p: dict[str, float] | None = None) -> str:
     """First-column index against second-column index of every pair, the library's two-class compounds behind."""
     cls = readable(second.get("class"))
     ok = [k for k in range(len(ids)) if _finite(xs[k]) and _finite(ys[k])]
@@ -870,7 +883,9 @@ def _pairs_plot(second: dict[str, Any], ids: list[str], partners: list[str], xs:
                                        name="library compound listed on both classes"))
 
         def tip(k: int) -> str:
-            return f"peak {ids[k]} ({_num(xs[k], 1)}) with second-run peak {partners[k]} ({_num(ys[k], 1)})"
+            p = (pair_p or {}).get(ids[k])
+            return (f"peak {ids[k]} ({_num(xs[k], 1)}) with second-run peak {partners[k]} ({_num(ys[k], 1)})"
+                    + (f", pair probability {p:.3f}" if p is not None else ""))
 
         agree = [k for k in ok if k not in disagree]
         against = [k for k in ok if k in disagree]
