@@ -259,8 +259,11 @@ def _read_peak(results_path: str | os.PathLike, peak: Any, *, run: str | None = 
 class ResultView:
     """A whole screening output read back: every run with its peaks and their candidates.
 
-    ``runs`` is a list of dicts ``{"label", "source", "class", "checksum", "standards", "peaks"}``;
-    each peak holds the peak keys of :data:`matcher.results.PEAK_KEYS`, ``flags`` (common to
+    ``runs`` is a list of dicts ``{"label", "source", "class", "checksum", "standards", "peaks"}`` (and, for a
+    two-column screen, ``second``: the second column's ``label``, ``source``, ``class`` and ``checksum``);
+    each peak holds the peak keys of :data:`matcher.results.PEAK_KEYS` (and a two-column screen's
+    ``second_peak``, ``second_ri`` and ``second_pair_probability``, :data:`matcher.results.SECOND_PEAK_KEYS`),
+    ``flags`` (common to
     the peak's rows) and ``candidates`` (records of :func:`matcher.results.candidate_record`,
     with ``flags``, ``evidence`` and any further columns the output carries). ``sha256`` is the
     checksum of the result file's bytes (what a review record is tied to).
@@ -281,19 +284,21 @@ class ResultView:
 def _group_rows(rows: list[dict], columns: list[str]) -> list[dict]:
     """Output rows grouped per peak (in file order): the peak's fields once, the ranked candidates nested."""
     import matcher.results as results
-    from matcher.results import (DETAIL_COLUMNS, EVIDENCE_COLUMNS, PEAK_KEYS, SHORTLIST_COLUMNS,
+    from matcher.results import (DETAIL_COLUMNS, EVIDENCE_COLUMNS, PEAK_KEYS, SECOND_PEAK_KEYS, SHORTLIST_COLUMNS,
                                  candidate_record, group_rows, plain)
 
     prefix = results.EVIDENCE_PREFIX
     ev_cols = [c for c in EVIDENCE_COLUMNS if c in columns] + [
         c for c in columns if c.startswith(prefix) and c not in EVIDENCE_COLUMNS]
-    known = set(SHORTLIST_COLUMNS) | set(DETAIL_COLUMNS) | set(ev_cols)
+    at_peak = [c for c in SECOND_PEAK_KEYS if c in columns]  # a two-column screen: the peak's partner, once
+    known = set(SHORTLIST_COLUMNS) | set(DETAIL_COLUMNS) | set(ev_cols) | set(at_peak)
     extra = [c for c in columns if c not in known]
     peaks = []
     for key, rows_p in group_rows(rows, lambda row: str(plain(row.get("peak")))):
         first = rows_p[0]
         peak = {k: plain(first.get(k)) for k in PEAK_KEYS}
         peak["peak"] = key
+        peak.update(_second_fields({c: first.get(c) for c in at_peak}))
         flag_lists = [[f for f in str(r.get("flags") or "").split(";") if f] for r in rows_p]
         candidates = []
         for r, flags in zip(rows_p, flag_lists):
@@ -311,7 +316,7 @@ def _group_rows(rows: list[dict], columns: list[str]) -> list[dict]:
 
 def _json_peak(p: dict) -> dict:
     """One peak of the screen JSON as the review reads it: the peak's keys, its flags, its candidates by rank."""
-    from matcher.results import PEAK_KEYS, plain
+    from matcher.results import PEAK_KEYS, SECOND_PEAK_KEYS, plain
 
     if not isinstance(p, dict):
         raise TypeError("a peak is not an object")
@@ -320,6 +325,7 @@ def _json_peak(p: dict) -> dict:
         if k not in peak and k not in ("flags", "candidates"):
             peak[k] = v
     peak["peak"] = str(plain(p.get("peak")))
+    peak.update(_second_fields({k: p[k] for k in SECOND_PEAK_KEYS if k in p}))
     peak["flags"] = [str(f) for f in p.get("flags") or []]
     cands = [dict(c) for c in p.get("candidates") or []]
     for c in cands:
@@ -330,6 +336,35 @@ def _json_peak(p: dict) -> dict:
     cands.sort(key=lambda c: (c.get("rank") is None, c.get("rank") or 0))
     peak["candidates"] = cands
     return peak
+
+
+def _second_fields(values: dict) -> dict:
+    """A two-column screen's ``second_peak`` (text, ``None`` when unpaired), ``second_ri`` and
+    ``second_pair_probability`` (numbers or ``None``), alike from a CSV row and a JSON peak.
+
+    >>> _second_fields({"second_peak": "", "second_ri": None}), _second_fields({"second_peak": 12, "second_ri": "1480.5"})
+    ({'second_peak': None, 'second_ri': None}, {'second_peak': '12', 'second_ri': 1480.5})
+    """
+    from matcher.results import plain
+
+    out = {}
+    for k, v in values.items():
+        v = plain(v)
+        if k == "second_peak":
+            v = None if v is None or str(v).strip() == "" else str(v).strip()
+        elif k in ("second_ri", "second_pair_probability"):
+            v = _num(v)
+        out[k] = v
+    return out
+
+
+def _second_run(run_doc: dict | None) -> dict | None:
+    """The second column's run of a two-column screen as the review names it (label, source, class, checksum)."""
+    second = (run_doc or {}).get("second")
+    if not isinstance(second, dict):
+        return None
+    return {"label": str(second.get("label") or ""), "source": str(second.get("source") or ""),
+            "class": str(second.get("class") or ""), "checksum": _checksum(second)}
 
 
 def _standards(run_doc: dict | None) -> list[dict]:
@@ -345,7 +380,7 @@ def _run_entry(label: str, run_doc: dict | None, peaks: list[dict]) -> dict:
     return {"label": label, "source": str((run_doc or {}).get("source") or ""),
             "class": str((run_doc or {}).get("class") or (peaks[0].get("class") if peaks else "") or ""),
             "checksum": _checksum(run_doc) if run_doc else "", "standards": _standards(run_doc),
-            "peaks": peaks}
+            **({"second": _second_run(run_doc)} if _second_run(run_doc) else {}), "peaks": peaks}
 
 
 def read_result(results_path: str | os.PathLike) -> ResultView:
@@ -419,7 +454,7 @@ def _read_result(results_path: str | os.PathLike) -> ResultView:
                       sidecar=sidecar)
 
 
-_TEXT_COLUMNS = {"peak", "class", "name", "cas", "flags", "run", "formula", "hit"}
+_TEXT_COLUMNS = {"peak", "class", "name", "cas", "flags", "run", "formula", "hit", "second_peak"}
 
 
 def _cell(column: str, value: str) -> Any:

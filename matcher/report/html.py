@@ -19,6 +19,11 @@
   with its anchors (without anchors, the confident matches of the run are shown: rank 1,
   probability ≥ 0.9, not marked for review); the composition (area % per peak and its most
   probable candidate);
+* for a two-column screen, the second column: the second run's file, class, calibration and
+  correction, the pairing of the peaks (counts, the areas' split factor k with its scatter, the
+  second run's peaks without partner) and a plot of every pair's two indices over the library
+  compounds listed on both classes, pairs the leading candidate's second-column index contradicts
+  drawn as diamonds (legend in words);
 * each peak's shortlist with its flags; rows needing review are marked in
   words (and colour);
 * a review and sign-off block (screened by, reviewed by, date, signature).
@@ -102,6 +107,10 @@ table.shortlist tr.needs-review td:first-child { box-shadow: inset 4px 0 0 var(-
 table.shortlist tr.needs-review { background: #fffaf0; }
 td.mark { font-weight: 700; color: var(--warn); font-size: 12px; white-space: nowrap; }
 td.peak { font-weight: 600; }
+table.shortlist.two { font-size: 13px; }
+table.shortlist.two .flag { white-space: normal; }
+table.shortlist.two td:last-child { min-width: 11.5em; }
+.partner { font-weight: 400; font-size: 12px; color: var(--soft); white-space: nowrap; }
 .empty { color: var(--soft); font-style: italic; }
 nav ul { margin: 4px 0; padding-left: 18px; }
 svg.plot { border: 1px solid var(--line); background: #fff; max-width: 100%; height: auto; }
@@ -204,7 +213,7 @@ def _summary(result: ScreenResult, summaries: list[dict[str, Any]]) -> str:
     rows = []
     for i, (run, s) in enumerate(zip(result.runs, summaries), start=1):
         rows.append(
-            f'<tr><td><a href="#run-{i}">{e(run.label)}</a></td><td>{e(run.phase_class)}</td>'
+            f'<tr><td><a href="#run-{i}">{e(run.label)}</a></td><td>{e(run.phase_class)}{_second_class(run)}</td>'
             f"<td>{_window(run.window)}</td><td class=\"n\">{s['peaks']}</td>"
             f"<td class=\"n\">{s['with_candidates']}</td><td class=\"n\">{s['review']}</td>"
             f"<td class=\"n\">{s['no_candidate']}</td><td class=\"n\">{s['not_in_library']}</td></tr>"
@@ -224,6 +233,11 @@ def _summary(result: ScreenResult, summaries: list[dict[str, Any]]) -> str:
         return '<h2 class="first" id="summary">Summary</h2><p class="empty">No runs were screened.</p>'
     return (f'<h2 class="first" id="summary">Summary</h2><table class="summary">{head}{"".join(rows)}</table>'
             f"{flag_table}")
+
+
+def _second_class(run: RunResult) -> str:
+    second = run.second if isinstance(getattr(run, "second", None), dict) else None
+    return f" (second column: {e(second.get('class'))})" if second else ""
 
 
 def _window(window: Any) -> str:
@@ -527,6 +541,11 @@ _SHORT_HEAD = ("<thead><tr><th></th><th>peak</th><th class=\"n\">rt (min)</th><t
                "<th class=\"n\">probability</th><th class=\"n\">not in library</th><th>flags</th></tr></thead>")
 
 
+#: The shortlist head of a two-column screen: the paired peak with its index, and ΔRI on the second class.
+_SHORT_HEAD_TWO = (_SHORT_HEAD.replace("<th>peak</th>", "<th>peak<br><span class=\"partner\">second col.</span></th>")
+                   .replace("<th class=\"n\">ΔRI</th>", "<th class=\"n\">ΔRI<br><span class=\"partner\">second</span></th>"))
+
+
 def _shortlists(run: RunResult, max_peaks: int) -> str:
     table = run.table
     if table is None or len(table) == 0:
@@ -548,6 +567,7 @@ def _shortlists(run: RunResult, max_peaks: int) -> str:
                 "The CSV or JSON output lists every peak.</p>")
     else:
         shown = keys
+    two = "second_delta_ri" in table.columns  # a two-column screen: the partner's index and each candidate's Δ there
     bodies = []
     for key in shown:
         rows = []
@@ -559,21 +579,44 @@ def _shortlists(run: RunResult, max_peaks: int) -> str:
             rows.append(
                 f'<tr class="{"needs-review" if needs else "ok"}">'
                 f'<td class="mark">{"review" if needs else ""}</td>'
-                f'<td class="peak">{e(rec.get("peak")) if first else ""}</td>'
+                f'<td class="peak">{e(rec.get("peak")) if first else ""}'
+                f'{"<br>" + _second_peak_cell(rec) if first and two else ""}</td>'
                 f'<td class="n">{e(run.time_text(rec.get("peak"), rec.get("rt"))) if first else ""}</td>'
                 f'<td class="n">{_num(rec.get("ri"), 1) if first else ""}</td>'
                 f'<td class="n">{_num(rec.get("area_percent"), 2) if first and _finite(rec.get("area_percent")) else ""}</td>'
                 f'<td class="n">{_int(rec.get("rank"))}</td>'
                 f'<td class="name">{e(rec.get("name")) if ranked else "<span class=empty>no candidate</span>"}</td>'
                 f'<td class="cas">{e(rec.get("cas"))}</td><td class="formula">{e(rec.get("formula"))}</td>'
-                f'<td class="n">{_num(rec.get("library_ri"), 1)}</td><td class="n">{_num(rec.get("delta_ri"), 1)}</td>'
+                f'<td class="n">{_num(rec.get("library_ri"), 1)}</td><td class="n">{_num(rec.get("delta_ri"), 1)}'
+                f'{"<br>" + _second_delta_cell(rec) if two and ranked else ""}</td>'
                 f'<td class="n">{_num(rec.get("probability"), 3)}</td>'
                 f'<td class="n">{_num(rec.get("not_in_library"), 3) if first else ""}</td>'
-                f"<td>{_flags_html(flags)}</td></tr>"
+
+                + f"<td>{_flags_html(flags)}</td></tr>"
             )
         bodies.append("<tbody>" + "".join(rows) + "</tbody>")
     return (f"<h3>Shortlists</h3>{note}"
-            f'<table class="shortlist">{_SHORT_HEAD}{"".join(bodies)}</table>')
+            f'<table class="shortlist{" two" if two else ""}">{_SHORT_HEAD_TWO if two else _SHORT_HEAD}'
+            f'{"".join(bodies)}</table>')
+
+
+def _second_delta_cell(rec: dict[str, Any]) -> str:
+    """The candidate's ΔRI on the second class (paired index − its library index there), or why there is none."""
+    if _finite(rec.get("second_delta_ri")):
+        return f'<span class="partner" title="ΔRI on the second column">{_num(rec.get("second_delta_ri"), 1)}</span>'
+    if not _finite(rec.get("second_library_ri")) and "not-on-second-class" in split_flags(rec.get("flags")):
+        return '<span class="partner" title="no library entry on the second class">not listed</span>'
+    return ""
+
+
+def _second_peak_cell(rec: dict[str, Any]) -> str:
+    """The paired second-run peak and its index ("B7: 1306.0"), or "unpaired"."""
+    peak = rec.get("second_peak")
+    if peak is None or (isinstance(peak, float) and not math.isfinite(peak)) or str(peak).strip() == "":
+        return '<span class="partner empty">unpaired</span>'
+    prob = rec.get("second_pair_probability")
+    tip = "paired peak of the second run and its index" + (f"; pair probability {_num(prob, 3)}" if _finite(prob) else "")
+    return f'<span class="partner" title="{e(tip)}">{e(peak)} · {_num(rec.get("second_ri"), 1)}</span>'
 
 
 def _spectra(run: RunResult, max_peaks: int) -> str:
@@ -673,11 +716,190 @@ def _run_section(i: int, run: RunResult, summary: dict[str, Any], max_peaks: int
         + _chromatograms(i, run)
         + f'<div id="run-{i}-calibration">{_calibration(run.calibration)}</div>'
         + f'<div id="run-{i}-correction">{_correction(run)}</div>'
+        + (f'<div id="run-{i}-second">{_second_column(i, run)}</div>' if getattr(run, "second", None) else "")
         + f'<div id="run-{i}-composition">{_composition(run)}</div>'
         + f'<div id="run-{i}-shortlists">{_shortlists(run, max_peaks)}</div>'
         + f'<div id="run-{i}-spectra">{_spectra(run, max_peaks)}</div>'
         + "</section>"
     )
+
+
+#: The flag on a leading candidate whose second-column index disagrees (matcher.identify.flags).
+DISAGREES_FLAG = "second-column-disagrees"
+#: At most this many second-run peaks without a partner are named in the report (all are in the JSON output).
+SHOWN_UNPAIRED = 60
+
+
+def _leading_flags(table: pd.DataFrame | None) -> dict[str, list[str]]:
+    """Per peak id, the flags of its leading row (rank 1, else its only row)."""
+    if table is None or len(table) == 0 or "peak" not in table:
+        return {}
+    out: dict[str, list[str]] = {}
+    ranks = (pd.to_numeric(table["rank"], errors="coerce").to_numpy(dtype=float, na_value=np.nan) if "rank" in table
+             else np.full(len(table), np.nan))
+    flags = table["flags"] if "flags" in table else [""] * len(table)
+    for peak, rank, f in zip(table["peak"].astype(str), ranks, flags):
+        if rank == 1 or peak not in out:  # the rank-1 row, else the peak's only (candidate-less) row
+            out[peak] = split_flags(f)
+    return out
+
+
+def _split_factor_text(area: dict[str, Any] | None) -> str:
+    """k = exp(ln k) with the scatter of ln(area ratio) about it, and where the estimate came from."""
+    if not isinstance(area, dict) or not _finite(area.get("log_factor")):
+        return "not estimated: one of the runs gave no areas, so the pairing rests on the indices (and spectra) alone"
+    k = math.exp(float(area["log_factor"]))
+    text = f"k = {k:.3g} (area on the second column ÷ area on the first)"
+    if _finite(area.get("scatter")):
+        sc = float(area["scatter"])
+        text += f"; scatter of ln(area ratio) about ln k: {sc:.3g} (a factor of about {math.exp(sc):.3g} either way)"
+    if area.get("source"):
+        text += f"; estimated from {readable(area.get('source'))}"
+    return text
+
+
+def _second_column(i: int, run: RunResult) -> str:
+    """A two-column screen: the second run's provenance, the pairing, and the plot of paired indices."""
+    second = run.second if isinstance(run.second, dict) else None
+    if not second:
+        return ""
+    pairing = second.get("pairing") if isinstance(second.get("pairing"), dict) else {}
+    cal = second.get("calibration") if isinstance(second.get("calibration"), dict) else None
+    cor = second.get("correction") if isinstance(second.get("correction"), dict) else None
+    cal_text = ""
+    if cal:
+        source = cal.get("source") if isinstance(cal.get("source"), dict) else {}
+        rng = (cal.get("qc") or {}).get("index_range") if isinstance(cal.get("qc"), dict) else None
+        findings = [f for f in ((cal.get("qc") or {}).get("findings") or []) if isinstance(f, dict)] \
+            if isinstance(cal.get("qc"), dict) else []
+        warnings = [w for w in cal.get("warnings") or []]
+        bits = [f"ladder {e(mask_secrets(str(source.get('ladder'))))}" if source.get("ladder") else "",
+                _series_text(cal.get("series"), cal.get("index_scale")) if cal.get("series") else "",
+                _text(cal.get("mode")) if cal.get("mode") else "",
+                ("index range " + " to ".join(_num(v, 0) for v in rng))
+                if isinstance(rng, (list, tuple)) and len(rng) == 2 else "",
+                e(plural(len(findings), "ladder finding")) + (", " + e(plural(len(warnings), "warning")) if warnings else "")]
+        cal_text = "; ".join(b for b in bits if b)
+    else:
+        cal_text = "no ladder: the second peak table gave indices"
+    if cor:
+        if cor.get("applied") and _finite(cor.get("slope")) and _finite(cor.get("offset")):
+            cor_text = (f"applied: ΔRI (measured − library) = {_num(cor.get('slope'), 5)} · RI "
+                        f"{'+' if float(cor['offset']) >= 0 else '−'} {_num(abs(float(cor['offset'])), 2)}")
+        else:
+            cor_text = "not applied: the plain screen was used" + (
+                f" ({mask_secrets(str(cor.get('notice')))})" if cor.get("notice") else "")
+    else:
+        cor_text = "not requested"
+    scatter = second.get("index_scatter")
+    checksum = second.get("checksum")
+    checksum = checksum.get("sha256") if isinstance(checksum, dict) else checksum
+    facts = [
+        ("second run", e(second.get("label"))),
+        ("peak file", e(mask_secrets(str(second.get("source") or "")))),
+        ("polarity class", e(second.get("class"))),
+        ("tolerance window", _window(second.get("window"))),
+        ("peaks", _int(second.get("peak_count"))),
+        ("index scatter", f"{_num(scatter, 2)} index units" if _finite(scatter) else ""),
+        ("ladder calibration", cal_text),
+        ("RI column", e(index_statement(cal, cor))),
+        ("adaptive correction", e(cor_text)),
+        ("peak table SHA-256", f"<code>{e(checksum)}</code>" if checksum else ""),
+    ]
+    pairs = second.get("pairs") if isinstance(second.get("pairs"), dict) else {}
+    ids = [str(v) for v in pairs.get("peak") or []]
+    partners = [str(v) for v in pairs.get("second_peak") or []]
+    xs, ys = list(pairs.get("ri") or []), list(pairs.get("second_ri") or [])
+    n = min(len(ids), len(partners), len(xs), len(ys))
+    unpaired_b = [str(v) for v in second.get("unpaired_second") or []]
+    lead = _leading_flags(run.table)
+    pair_p = _pair_probabilities(run.table)
+    disagree = [k for k in range(n) if DISAGREES_FLAG in lead.get(ids[k], [])]
+    unpaired_a = [p for p, f in lead.items() if "unpaired" in f]
+    pair_rows = [
+        ("pairs made", e(_int(pairing.get("paired")) if pairing.get("paired") is not None else str(n))),
+        ("pairs less probable than 0.9", _int(pairing.get("uncertain_pairs"))),
+        ("peaks of this run without partner", _int(pairing.get("unpaired_first"))
+         + (f" ({e(', '.join(unpaired_a[:SHOWN_UNPAIRED]))}{' …' if len(unpaired_a) > SHOWN_UNPAIRED else ''})"
+            if unpaired_a else "")),
+        ("peaks of the second run without partner", _int(pairing.get("unpaired_second"))
+         + (f" ({e(', '.join(unpaired_b[:SHOWN_UNPAIRED]))}{' …' if len(unpaired_b) > SHOWN_UNPAIRED else ''})"
+            if unpaired_b else "")),
+        ("split factor of the areas", e(_split_factor_text(pairing.get("area")))),
+        ("pairs with both spectra compared", _int(pairing.get("spectra_compared"))),
+        ("prior probability of no partner", _num(pairing.get("unpaired_prior"), 2)),
+        ("method", e(readable(pairing.get("method")))),
+        ("leading candidates the second column contradicts", str(len(disagree))),
+    ]
+    notes = [str(v) for v in pairing.get("notes") or []]
+    plot = _pairs_plot(second, ids[:n], partners[:n], xs[:n], ys[:n], set(disagree), pair_p)
+    return (
+        '<h3>Second column</h3>'
+        '<p class="note">The same sample run on a column of another polarity. Each peak of this run was paired with '
+        "at most one peak of the second run (on the indices, the areas of the split injection and, where both have "
+        "them, the spectra); the paired peak's index on the second class enters each candidate's probability. "
+        "Agreement on two columns strengthens a tentative identification; it does not confirm it.</p>"
+        + _kv_table(facts)
+        + "<h3>Pairing of the peaks</h3>" + _kv_table(pair_rows)
+        + ("".join(f'<p class="note">{e(mask_secrets(t))}</p>' for t in notes))
+        + f'<div class="plotbox wide">{plot}</div>'
+        + '<p class="note">Each marker is a pair of peaks: its index on this run\'s column across, on the second '
+        "column up. Small grey dots are library compounds with an entry on both classes; a pair far from them "
+        "suggests a wrong pair or a compound the library does not list on both. Diamonds mark pairs whose leading "
+        "candidate's second-column index lies outside its window on the second class (flag "
+        "second-column-disagrees): review them.</p>"
+    )
+
+
+def _pair_probabilities(table: pd.DataFrame | None) -> dict[str, float]:
+    """Per peak id, the probability of its pairing (``second_pair_probability``), where the table has it."""
+    if table is None or len(table) == 0 or "second_pair_probability" not in table:
+        return {}
+    first = table.drop_duplicates("peak")
+    values = pd.to_numeric(first["second_pair_probability"], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    return {str(p): float(v) for p, v in zip(first["peak"], values) if math.isfinite(v)}
+
+
+def _pairs_plot(second: dict[str, Any], ids: list[str], partners: list[str], xs: list, ys: list,
+                disagree: set[int], pair_p: dict[str, float] | None = None) -> str:
+    """First-column index against second-column index of every pair, the library's two-class compounds behind."""
+    cls = readable(second.get("class"))
+    ok = [k for k in range(len(ids)) if _finite(xs[k]) and _finite(ys[k])]
+    layers = []
+    if ok:
+        fx, fy = [float(xs[k]) for k in ok], [float(ys[k]) for k in ok]
+        span_x, span_y = max(fx) - min(fx), max(fy) - min(fy)
+        lo_x, hi_x = min(fx) - max(0.05 * span_x, 20.0), max(fx) + max(0.05 * span_x, 20.0)
+        lo_y, hi_y = min(fy) - max(0.05 * span_y, 20.0), max(fy) + max(0.05 * span_y, 20.0)
+        lib = second.get("library_points") if isinstance(second.get("library_points"), dict) else {}
+        lx, ly, ln = list(lib.get("ri") or []), list(lib.get("second_ri") or []), list(lib.get("name") or [])
+        keep = [j for j in range(min(len(lx), len(ly))) if _finite(lx[j]) and _finite(ly[j])
+                and lo_x <= float(lx[j]) <= hi_x and lo_y <= float(ly[j]) <= hi_y]
+        if keep:
+            layers.append(plots.points([lx[j] for j in keep], [ly[j] for j in keep],
+                                       labels=[f"{ln[j] if j < len(ln) else ''}: library {_num(lx[j], 0)} / "
+                                               f"{_num(ly[j], 0)}" for j in keep],
+                                       colour="muted", marker="dot", css="library-point",
+                                       name="library compound listed on both classes"))
+
+        def tip(k: int) -> str:
+            p = (pair_p or {}).get(ids[k])
+            return (f"peak {ids[k]} ({_num(xs[k], 1)}) with second-run peak {partners[k]} ({_num(ys[k], 1)})"
+                    + (f", pair probability {p:.3f}" if p is not None else ""))
+
+        agree = [k for k in ok if k not in disagree]
+        against = [k for k in ok if k in disagree]
+        layers.append(plots.points([xs[k] for k in agree], [ys[k] for k in agree], labels=[tip(k) for k in agree],
+                                   colour="primary", css="pair", name="pair of peaks"))
+        if against:
+            layers.append(plots.points([xs[k] for k in against], [ys[k] for k in against],
+                                       labels=[tip(k) + ": leading candidate disagrees on the second column"
+                                               for k in against],
+                                       colour="secondary", marker="diamond", css="pair disagrees",
+                                       name="pair whose leading candidate disagrees on the second column"))
+    return plots.xy_plot(layers, x_label="retention index, this run's column",
+                         y_label=f"retention index, second column ({cls})",
+                         title=f"Paired peaks: {len(ok)} pairs", width=720, height=420)
 
 
 def _signature(result: ScreenResult) -> str:

@@ -36,7 +36,7 @@ import numpy as np
 import pandas as pd
 
 #: Flags that on their own give no reason to look again at a row.
-REASSURING_FLAGS: frozenset[str] = frozenset({"in-window", "mass-match", "ions-agree", "hit-agrees"})
+REASSURING_FLAGS: frozenset[str] = frozenset({"in-window", "mass-match", "ions-agree", "hit-agrees", "columns-agree"})
 
 #: The flag by which the screening engine marks a row for review.
 REVIEW_FLAG = "review"

@@ -36,6 +36,8 @@ class Layer:
     colour: str = "primary"
     dashed: bool = False
     name: str = ""                 # legend text
+    marker: str = "circle"         # points: "circle" (hollow), "dot" (small, filled, behind) or "diamond"
+    css: str = ""                  # points: class attribute of every marker (lets a reader or test find them)
 
 
 def _clean(xs: Sequence, ys: Sequence) -> tuple[list[float], list[float]]:
@@ -51,12 +53,32 @@ def _clean(xs: Sequence, ys: Sequence) -> tuple[list[float], list[float]]:
     return out_x, out_y
 
 
-def points(x: Sequence, y: Sequence, *, labels: Sequence | None = None, colour: str = "primary", name: str = "") -> Layer:
-    """Markers at (x, y); ``labels`` become tooltips (escaped)."""
+MARKERS = ("circle", "dot", "diamond")
+
+
+def points(x: Sequence, y: Sequence, *, labels: Sequence | None = None, colour: str = "primary", name: str = "",
+           marker: str = "circle", css: str = "") -> Layer:
+    """Markers at (x, y); ``labels`` become tooltips (escaped). ``marker``: one of :data:`MARKERS`
+    (a "dot" layer is drawn behind the other points); ``css`` becomes each marker's class."""
+    if marker not in MARKERS:
+        raise ValueError(f"marker must be one of {', '.join(MARKERS)}, not {marker!r}")
     lab = [str(v) for v in labels] if labels is not None else []
     keep = [i for i, (a, b) in enumerate(zip(x, y)) if _clean([a], [b])[0]]
     xs, ys = _clean([x[i] for i in keep], [y[i] for i in keep])
-    return Layer("points", xs, ys, labels=[lab[i] if i < len(lab) else "" for i in keep], colour=colour, name=name)
+    return Layer("points", xs, ys, labels=[lab[i] if i < len(lab) else "" for i in keep], colour=colour, name=name,
+                 marker=marker, css="".join(ch for ch in css if ch.isalnum() or ch in " -_"))
+
+
+def _marker(kind: str, cx: float, cy: float, colour: str, css: str, inner: str = "") -> str:
+    """One point marker as SVG text."""
+    cls = f' class="{css}"' if css else ""
+    if kind == "dot":
+        return f'<circle{cls} cx="{cx}" cy="{cy}" r="1.9" fill="{colour}" fill-opacity="0.45" stroke="none">{inner}</circle>'
+    if kind == "diamond":
+        r = 5.0
+        pts = f"{cx},{round(cy - r, 2)} {round(cx + r, 2)},{cy} {cx},{round(cy + r, 2)} {round(cx - r, 2)},{cy}"
+        return f'<polygon{cls} points="{pts}" fill="{colour}" fill-opacity="0.25" stroke="{colour}" stroke-width="1.8">{inner}</polygon>'
+    return f'<circle{cls} cx="{cx}" cy="{cy}" r="3.6" fill="#ffffff" stroke="{colour}" stroke-width="1.8">{inner}</circle>'
 
 
 def line(x: Sequence, y: Sequence, *, colour: str = "primary", dashed: bool = False, name: str = "") -> Layer:
@@ -160,7 +182,7 @@ def xy_plot(
     )
     # layers: bands first, then lines, then points on top
     order = {"band": 0, "line": 1, "points": 2}
-    for layer in sorted(layers, key=lambda la: order.get(la.kind, 3)):
+    for layer in sorted(layers, key=lambda la: order.get(la.kind, 3) + (0.5 if la.kind == "points" and la.marker != "dot" else 0)):
         colour = COLOURS.get(layer.colour, COLOURS["primary"])
         if layer.kind == "band" and layer.x:
             upper = " ".join(f"{sx(a)},{sy(b)}" for a, b in zip(layer.x, layer.y2))
@@ -174,9 +196,7 @@ def xy_plot(
             for i, (a, b) in enumerate(zip(layer.x, layer.y)):
                 tip = layer.labels[i] if i < len(layer.labels) else ""
                 title_el = f"<title>{html_text(tip)}</title>" if tip else ""
-                parts.append(
-                    f'<circle cx="{sx(a)}" cy="{sy(b)}" r="3.6" fill="#ffffff" stroke="{colour}" stroke-width="1.8">{title_el}</circle>'
-                )
+                parts.append(_marker(layer.marker, sx(a), sy(b), colour, layer.css, title_el))
     # legend
     named = [la for la in layers if la.name]
     lx = left + 10
@@ -184,7 +204,7 @@ def xy_plot(
         colour = COLOURS.get(layer.colour, COLOURS["primary"])
         y = top + 14 + 15 * i
         if layer.kind == "points":
-            parts.append(f'<circle cx="{lx + 8}" cy="{y - 4}" r="3.6" fill="#ffffff" stroke="{colour}" stroke-width="1.8"/>')
+            parts.append(_marker(layer.marker, lx + 8, y - 4, colour, "legend"))
         elif layer.kind == "band":
             parts.append(f'<rect x="{lx}" y="{y - 9}" width="16" height="9" fill="{colour}" fill-opacity="0.2"/>')
         else:
