@@ -224,6 +224,9 @@ def test_two_column_settings_are_checked(library):
                        second_class="polar")
     with pytest.raises(matcher.MatcherError, match="class"):
         matcher.screen(first, phase_class="slightly-polar", library=library, second=second, second_class="waxy")
+    with pytest.raises(matcher.MatcherError, match="--second-calibration or --second-ladder, not both"):
+        matcher.screen(first, phase_class="slightly-polar", library=library, second=second, second_class="polar",
+                       second_calibration="c.json", second_ladder="l.csv")
 
 
 def test_command_line_two_columns(tmp_path, library, monkeypatch):

@@ -796,6 +796,10 @@ def _plan_second(plan: list[RunInput], second, second_class, calibration, ladder
         raise MatcherError("give the second column's polarity class: --second-class CLASS")
     if _as_list(second) and len(_as_list(second)) != 1:
         raise MatcherError("give one run with --second")
+    if _as_list(calibration) and _as_list(ladder):
+        raise MatcherError("give either --second-calibration or --second-ladder, not both")
+    if len(_as_list(calibration)) > 1 or len(_as_list(ladder)) > 1:
+        raise MatcherError("give one --second-calibration or one --second-ladder for the second run")
     runs = plan_runs(second, calibration, ladder)
     if len(_as_list(spectra)) > 1:
         raise MatcherError("give one spectra file with --second-spectra")
