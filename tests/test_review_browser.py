@@ -190,3 +190,25 @@ def test_hostile_library_text_never_runs_in_the_page(browser, tmp_path):
         page.close()
     finally:
         server.stop()
+
+
+def test_a_two_column_result_shows_the_partner_and_the_second_deviation(browser, tmp_path):
+    """Two invented runs of one sample on 5 % phenyl and polyethylene glycol (indices of
+    tests/data/essential_oil_indices.csv and polar_indices.csv, recalled from memory)."""
+    import matcher
+    from test_two_columns import sample_runs, two_class_library
+
+    first, second, _, truth = sample_runs(4, n=12)
+    out = tmp_path / "both.csv"
+    matcher.screen(first, phase_class="slightly-polar", library=two_class_library(), second=second,
+                   second_class="polar", output=out)
+    server = Server(out, "ana", tmp_path)
+    try:
+        page, _ = _open(browser, server)
+        text = page.inner_text("#detail")
+        first_peak = page.inner_text("#detail h2").split()[1]
+        assert f"paired with peak {truth[first_peak]} of the second column" in text
+        assert "second ΔRI" in page.inner_text("#cands")
+        page.close()
+    finally:
+        server.stop()

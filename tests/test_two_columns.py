@@ -23,6 +23,7 @@ from __future__ import annotations
 import csv
 import itertools
 import json
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -346,3 +347,29 @@ def test_two_run_files_with_spectra_are_paired_and_confirmed(tmp_path):
     for rows, p in zip(both, partners):  # measured: both unpaired (their shared PEG peak is a mixture)
         if p in ("", "nan"):
             assert "unpaired" in rows["flags"].iloc[0] and "review" in rows["flags"].iloc[0]
+
+
+def test_the_review_page_receives_each_peaks_partner(library, tmp_path):
+    """The review API serves a two-column result's partner per peak (the page shows it beside the facts)."""
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        from starlette.testclient import TestClient
+    from matcher.review.server import TOKEN_HEADER, create_app
+    from matcher.review.session import open_review
+
+    first, second, _, truth = sample_runs(4)
+    out = tmp_path / "both.csv"
+    matcher.screen(first, phase_class="slightly-polar", library=library, second=second, second_class="polar",
+                   output=out)
+    review = open_review(out, reviewer="ana")
+    client = TestClient(create_app(review, token="t", port=48124), base_url="http://127.0.0.1:48124")
+    peaks = client.get("/api/peaks", headers={TOKEN_HEADER: "t"}).json()["peaks"]
+    got = {p["peak"]: p["second_peak"] for p in peaks}
+    assert sum(got[p] == w for p, w in truth.items()) >= 31
+    p0 = peaks[0]
+    assert isinstance(p0["second_ri"], float) and 0.0 <= p0["second_pair_probability"] <= 1.0
+    assert "second_delta_ri" in p0["candidates"][0] and "second" in p0["candidates"][0]["evidence"]
+    js = (Path(matcher.__file__).parent / "review" / "assets" / "review.js").read_text(encoding="utf-8")
+    assert "p.second_peak" in js and "second ΔRI" in js  # the page shows them

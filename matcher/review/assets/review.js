@@ -7,7 +7,8 @@
   var CAN_ADD = document.querySelector('meta[name="review-can-add"]').content === "yes";
   var state = { peaks: [], shown: [], sel: 0, pick: 0, summary: null };
   var EVIDENCE_WORDS = { index: "retention index", mol_ion: "molecular ion", ions: "key ions",
-                         hit: "spectral-search name", spectrum: "spectrum similarity" };
+                         hit: "spectral-search name", spectrum: "spectrum similarity",
+                         second: "index on the second column" };
 
   function el(tag, attrs, kids) {
     var e = document.createElement(tag);
@@ -134,6 +135,10 @@
     var hitScore = p.hit_score !== undefined ? p.hit_score : p.hit_match;
     if (p.hit) { facts.push("spectral search named " + p.hit + (hitScore !== null && hitScore !== undefined ? " (" + num(hitScore, 0) + ")" : "")); }
     if (p.not_in_library !== null) { facts.push("not in the library: " + num(p.not_in_library, 3)); }
+    if (p.second_peak !== undefined) {  // a two-column result: the peak of the second run paired with this one
+      facts.push(p.second_peak ? "paired with peak " + p.second_peak + " of the second column at index " + num(p.second_ri, 1) +
+        (p.second_pair_probability !== null && p.second_pair_probability !== undefined ? " (pair probability " + num(p.second_pair_probability, 2) + ")" : "")
+        : "no partner on the second column"); }
     if (p.ladder) { var L = p.ladder;
       facts.push(L.outside ? "outside the ladder (" + (L.below ? "after " + L.below.name : "before " + L.above.name) + ")"
         : "between " + L.below.name + " (" + num(L.below.index, 0) + ") and " + L.above.name + " (" + num(L.above.index, 0) + ")"); }
@@ -146,7 +151,9 @@
     d.appendChild(el("h3", { text: "Candidates" }));
     if (!p.candidates.length) { d.appendChild(el("p", { cls: "hint", text: "Nothing in the library inside the window." })); }
     else {
-      var t = el("table", { id: "cands" }, [el("tr", {}, ["#", "name", "probability", "ΔRI", "library index", "flags", "evidence"].map(function (h) { return el("th", { text: h }); }))]);
+      var two = p.candidates.some(function (c) { return c.second_library_ri !== undefined; });
+      var heads = ["#", "name", "probability", "ΔRI", "library index"].concat(two ? ["second ΔRI"] : []).concat(["flags", "evidence"]);
+      var t = el("table", { id: "cands" }, [el("tr", {}, heads.map(function (h) { return el("th", { text: h }); }))]);
       p.candidates.forEach(function (c, i) {
         var ev = el("td", { cls: "words" });
         Object.keys(c.evidence || {}).forEach(function (k) {
@@ -160,7 +167,8 @@
         (c.flags || []).forEach(function (f) { fcell.appendChild(el("span", { cls: "flag" + (f === "review" ? " flag-review" : ""), text: f })); });
         var tr = el("tr", { cls: i === state.pick ? "picked" : "", "data-rank": String(c.rank) }, [
           el("td", { cls: "num", text: String(i + 1) }), el("td", { text: c.name }), el("td", { cls: "num", text: num(c.probability, 3) }),
-          el("td", { cls: "num", text: num(c.delta_ri, 2) }), el("td", { cls: "num", text: num(c.library_ri, 1) }), fcell, ev]);
+          el("td", { cls: "num", text: num(c.delta_ri, 2) }), el("td", { cls: "num", text: num(c.library_ri, 1) }),
+          two ? el("td", { cls: "num", text: num(c.second_delta_ri, 2) }) : null, fcell, ev]);
         tr.addEventListener("click", function () { state.pick = i; drawDetail(); });
         t.appendChild(tr);
       });
