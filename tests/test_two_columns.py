@@ -110,7 +110,7 @@ def test_no_confident_wrong_calls_with_two_columns(library):
         hit = np.array([two.loc[f"P{i + 1}", "name"] == nm for i, nm in enumerate(names)])
         confident += int((p >= 0.9).sum())
         wrong_confident += int(((p >= 0.9) & ~hit).sum())
-    assert confident >= 60  # the second column makes many calls confident (measured 69 of 330) ...
+    assert confident >= 65  # the second column makes many calls confident (measured 79 of 330) ...
     assert wrong_confident == 0  # ... and none of them wrong (measured: 0)
 
 

@@ -80,7 +80,7 @@ MIN_AREA_PAIRS = 5
 DENSE_PAIRS = 4_000_000
 #: probability that a pair is wrong however good it looks (an assumption): the second column can lower a
 #: candidate's odds at most 1/PAIRING_DOUBT-fold, so one wrong pair cannot bury a right first-column call.
-PAIRING_DOUBT = 0.1
+PAIRING_DOUBT = 0.05
 #: pairs sharing no candidate are compared by spectrum only when both runs together hold at most this many pairs.
 DENSE_SPECTRA = 250_000
 #: partners kept open per peak (the chosen one and its strongest rivals, "no partner" included).
