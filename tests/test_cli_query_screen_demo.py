@@ -11,6 +11,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+
+from matcher.errors import MatcherError
 from typer.testing import CliRunner
 
 from matcher import CAUTION
@@ -180,3 +182,9 @@ def test_anchors_file_drives_the_correction(lib, tmp_path):
     first = t[t["rank"] == 1].set_index("peak")
     assert first.loc["1", "ri"] == pytest.approx(1000.0, abs=0.5)
     assert first.loc["4", "name"] == "limonene"
+    # a name the library's class lacks is refused naming the file, the row, its line and the column
+    (tmp_path / "bad-anchors.csv").write_text("peak,compound,ri\n1,decane,\n2,unobtainium,\n")
+    with pytest.raises(MatcherError) as err:
+        screen([str(tmp_path / "shifted.csv")], "slightly-polar", db=lib, anchors=str(tmp_path / "bad-anchors.csv"))
+    msg = str(err.value)
+    assert "bad-anchors.csv" in msg and "unobtainium" in msg and "line 3" in msg and "compound" in msg

@@ -24,7 +24,7 @@ from matcher import rules as R
 from matcher.identify.adaptive import ANCHOR_PROBABILITY, apply_correction
 from matcher.identify.window_search import half_widths, window_description
 from matcher.classes import check_class
-from matcher.errors import InputError, MatcherError
+from matcher.errors import MatcherError
 from matcher.identify.evidence import DEFAULT_MEASUREMENT_SD, Model, PeakHints
 from matcher.identify.hints import ion_masks
 from matcher.results import DETAIL_COLUMNS, REPORT_PEAKS, SECOND_COLUMNS, SHORTLIST_COLUMNS, RunResult, ScreenResult
@@ -93,25 +93,6 @@ def plan_runs(peak_files: Any, calibration: Any = None, ladder: Any = None,
         g = given[0] if len(given) == 1 else (given[k] if given else None)
         runs.append(RunInput(p, g if cals else None, g if lads else None, labels[k] if labels else None))
     return runs
-
-
-def _calibrate(run: RunInput, mode: str, dead_time: float | None, rt_unit: str | None, min_snr: float | None = None):
-    from matcher.signal.run_peaks import is_run_file, ladder_from_run
-    from matcher.retention.calibration import Calibration, calibrate
-    from matcher.retention.ladder import Ladder, read_ladder
-
-    if run.calibration is not None:
-        return run.calibration if isinstance(run.calibration, Calibration) else Calibration.load(run.calibration)
-    if run.ladder is not None:
-        if not isinstance(run.ladder, Ladder) and is_run_file(run.ladder):  # the ladder's own GC-MS run
-            lad, record, found_warnings = ladder_from_run(run.ladder, min_snr=min_snr)
-            cal = calibrate(lad, mode=mode, dead_time=dead_time)
-            cal.source["run"] = record
-            cal.warnings = list(found_warnings) + list(cal.warnings)
-            return cal
-        lad = run.ladder if isinstance(run.ladder, Ladder) else read_ladder(run.ladder, rt_unit=rt_unit)
-        return calibrate(lad, mode=mode, dead_time=dead_time)
-    return None
 
 
 def _label(run: RunInput) -> str:
@@ -331,20 +312,11 @@ def select_anchors(sl: Shortlist | Iterable[tuple[np.ndarray, Shortlist]], x: np
     return peak.astype(np.int64), ref.astype(float), [str(v) for v in name]
 
 
-def _anchors_from_file(path: str, label: str, peak_ids: np.ndarray, snapshot: LibrarySnapshot, home: PreparedClass):
-    """User-named anchors: CSV with ``peak`` and ``name`` (a library compound) or ``ri`` (reference index)."""
+def _anchors_for_run(rows, label: str, peak_ids: np.ndarray, home: PreparedClass):
+    """The anchors of one run from an anchors file's rows (:func:`matcher.io.anchors.read_anchors`): (peak
+    positions, reference indices, names); a name the library's class lacks is refused naming file, row and line."""
     from matcher.chem.names import matching_key
-    from matcher.io.delimited import load_table, map_headers, numbers, texts
 
-    raw = load_table(path, what="anchors file")
-    cols = map_headers(raw, {"peak": ["peak id", "peak #", "id"], "name": ["compound"], "ri": ["reference index", "index"],
-                             "run": ["file", "sample"]})
-    if "peak" not in cols or not ({"name", "ri"} & set(cols)):
-        raise InputError("needs a 'peak' column and a 'name' or 'ri' column", file=path)
-    pk = texts(raw, cols["peak"], required=True)
-    names = texts(raw, cols["name"]) if "name" in cols else [""] * len(pk)
-    ref = numbers(raw, cols["ri"], required=False, positive=True) if "ri" in cols else np.full(len(pk), np.nan)
-    runs = texts(raw, cols["run"]) if "run" in cols else [""] * len(pk)
     by_key = {}
     e = home.entries
     for k in range(len(e)):
@@ -352,18 +324,16 @@ def _anchors_from_file(path: str, label: str, peak_ids: np.ndarray, snapshot: Li
             by_key[matching_key(str(home.compounds.name[e.compound[k]]))] = (float(e.ri[k]), str(home.compounds.name[e.compound[k]]))
     pos_of = {str(p): i for i, p in enumerate(peak_ids)}
     out_pos, out_ref, out_name = [], [], []
-    for r, (p, nm, rv, rn) in enumerate(zip(pk, names, ref, runs), start=1):
-        if rn and rn != label:
-            continue
+    for r in rows.for_run(label):
+        p, nm, rv = rows.peak[r], rows.name[r], float(rows.ri[r])
         if p not in pos_of:
             continue
         if np.isfinite(rv):
-            out_pos.append(pos_of[p]); out_ref.append(float(rv)); out_name.append(nm or f"anchor {p}")
+            out_pos.append(pos_of[p]); out_ref.append(rv); out_name.append(nm or f"anchor {p}")
             continue
         hitk = by_key.get(matching_key(nm))
         if hitk is None:
-            raise InputError(f"{nm!r} is not in the library's {home.phase_class} class; give its 'ri' instead",
-                             file=path, row=r, line=raw.line_of(r), column=cols.get("name"))
+            raise rows.error(r, f"{nm!r} is not in the library's {home.phase_class} class; give its 'ri' instead")
         out_pos.append(pos_of[p]); out_ref.append(hitk[0]); out_name.append(hitk[1])
     return np.array(out_pos, dtype=np.int64), np.array(out_ref, dtype=float), out_name
 
@@ -630,33 +600,6 @@ def public_correction(correction: dict | None) -> dict | None:
     return out
 
 
-def peak_spectra(path: Any, peak_ids: np.ndarray) -> list:
-    """One spectrum (or None) per peak from a JCAMP-DX file whose blocks are titled by peak id.
-
-    A title may also end in `` peak ID`` (as ``matcher peaks --spectra-out`` writes them); an empty block means
-    no spectrum. A block whose title names no peak of the run, or a peak named twice, refuses the file (file,
-    block, line).
-    """
-    from matcher.io.jcamp import read_jcamp
-
-    blocks = read_jcamp(path)
-    pos = {str(p).strip(): i for i, p in enumerate(peak_ids)}
-    out: list = [None] * len(peak_ids)
-    for b in blocks:
-        title = b.title.strip()
-        i = pos.get(title)
-        if i is None and " peak " in title:
-            i = pos.get(title.rsplit(" peak ", 1)[1].strip())
-        if i is None:
-            raise InputError(f"block {b.block} (line {b.line}): title {b.title[:60]!r} is not a peak id of the run "
-                             "(each block of a run's spectra file is titled by its peak id)", file=os.fspath(path))
-        if out[i] is not None:
-            raise InputError(f"block {b.block} (line {b.line}): peak {b.title[:60]!r} has a spectrum already",
-                             file=os.fspath(path))
-        out[i] = b.spectrum if len(b.mz) else None
-    return out
-
-
 NO_REFERENCE_SPECTRA = ("the library holds no reference spectra, so the peaks' spectra were not compared "
                         "(add some with: matcher library import-spectra)")
 
@@ -761,31 +704,14 @@ def _classes(phase_class: Any, n_runs: int) -> list[str]:
     return classes * n_runs if len(classes) == 1 else classes
 
 
-def _load_run(run: RunInput, spectra_file, *, rt_unit, header_map, min_snr, mode, dead_time):
-    """One run read and converted to indices: (run, table, calibration, indices, extrapolated, spectra)."""
-    from matcher.io.peak_tables import PeakTable
-    from matcher.signal.run_peaks import read_peaks_or_run
+def _load_run(run: RunInput, spectra_file, **reading):
+    """One run read and converted to indices (:func:`matcher.signal.screen_inputs.load_run`):
+    (run, table, calibration, indices, extrapolated, spectra)."""
+    from matcher.signal.screen_inputs import load_run
 
-    table = run.peaks if isinstance(run.peaks, PeakTable) else read_peaks_or_run(
-        run.peaks, rt_unit=rt_unit, overrides=header_map, min_snr=min_snr)
-    cal = None
-    extrap = np.zeros(len(table.peak), dtype=bool)
-    if table.has_ri:
-        x = np.asarray(table.ri, dtype=float)
-    else:
-        cal = _calibrate(run, mode, dead_time, rt_unit, min_snr)
-        if cal is None:
-            raise MatcherError(f"{run.peaks_path}: the table has no 'ri' column; give --calibration CAL.json or --ladder LADDER.csv")
-        x, extrap = cal.convert(np.asarray(table.rt, dtype=float))
-    spec = None
-    if spectra_file is not None:
-        if getattr(table, "spectra", ()):
-            raise MatcherError(f"{run.peaks_path} has a 'spectrum' column and --spectra {spectra_file} "
-                               "was given too: give the spectra once")
-        spec = peak_spectra(spectra_file, np.asarray(table.peak))
-    elif getattr(table, "spectra", ()):
-        spec = list(table.spectra)
-    return run, table, cal, np.asarray(x, dtype=float), np.asarray(extrap, dtype=bool), spec
+    got = load_run(run.peaks, calibration=run.calibration, ladder=run.ladder, spectra=spectra_file,
+                   name=run.peaks_path, **reading)
+    return run, got.table, got.calibration, got.ri, got.extrapolated, got.spectra
 
 
 def _plan_second(plan: list[RunInput], second, second_class, calibration, ladder, spectra) -> dict:
@@ -879,7 +805,7 @@ def peaks_area(table) -> np.ndarray | None:
     return None
 
 
-def _prepare_second(two: dict, prepared: dict, home: PreparedClass, prep: PreparedRun, ids_a, area_a, snapshot,
+def _prepare_second(two: dict, prepared: dict, home: PreparedClass, prep: PreparedRun, ids_a, area_a,
                     index_scatter, *, window, window_percent, adaptive, anchors, crowding, split_peaks) -> dict:
     """Prepare the second run on its own class, pair it with the first, and put its evidence on ``prep.peaks``.
 
@@ -894,8 +820,8 @@ def _prepare_second(two: dict, prepared: dict, home: PreparedClass, prep: Prepar
     peaks_b = PeakInput(x_b_raw, table_b.mol_ion, table_b.ions, table_b.hit, table_b.hit_match, extrap_b,
                         spectra=packed_b)
     sd_b = DEFAULT_MEASUREMENT_SD[home_b.phase_class] if index_scatter is None else float(index_scatter)
-    anchors_b = _anchors_from_file(anchors, label_b, ids_b, snapshot, home_b) if anchors else None
-    prep_b = prepare_run(home_b, peaks_b, sd_b, adaptive=adaptive or bool(anchors), user_anchors=anchors_b,
+    anchors_b = _anchors_for_run(anchors, label_b, ids_b, home_b) if anchors is not None else None
+    prep_b = prepare_run(home_b, peaks_b, sd_b, adaptive=adaptive or anchors is not None, user_anchors=anchors_b,
                          estimate_scatter=index_scatter is None, peak_ids=ids_b, crowding=crowding,
                          exclusive=not split_peaks)
     second, pairing = _pair_with_second(home, prep, home_b, prep_b, window=window, window_percent=window_percent,
@@ -1003,8 +929,6 @@ def screen(
     :data:`~matcher.results.SECOND_COLUMNS` and the run its ``second`` provenance.
     """
     from matcher.limits import check_sd
-    from matcher.io.peak_tables import PeakTable
-    from matcher.signal.run_peaks import read_peaks_or_run
     from matcher.identify.unlisted import crowding_density
 
     if isinstance(phase_class, str):
@@ -1033,6 +957,11 @@ def screen(
     if second is not None:
         two = _plan_second(plan, second, second_class, second_calibration, second_ladder, second_spectra)
         two["loaded"] = _load_run(two["run"], two["spectra"], **reading)
+    anchor_rows = None
+    if anchors:
+        from matcher.io.anchors import read_anchors
+
+        anchor_rows = read_anchors(anchors)
 
     if snapshot is None:
         from matcher.store.snapshot_loader import load_snapshot
@@ -1060,7 +989,7 @@ def screen(
         peaks = PeakInput(x_raw, table.mol_ion, table.ions, table.hit, table.hit_match, extrap, spectra=packed)
         user_anchors = None
         if anchors:
-            user_anchors = _anchors_from_file(anchors, label, np.asarray(table.peak), snapshot, home)
+            user_anchors = _anchors_for_run(anchor_rows, label, np.asarray(table.peak), home)
         ids = np.asarray(table.peak)
         prep = prepare_run(home, peaks, base_sd, window=window, window_percent=window_percent,
                            adaptive=adaptive or bool(anchors), user_anchors=user_anchors,
@@ -1071,9 +1000,9 @@ def screen(
         area_percent = getattr(table, "area_percent", None)
         second_doc = None
         if two is not None:  # a two-column screen: the second run prepared on its own, then paired
-            second_doc = _prepare_second(two, prepared, home, prep, ids, peaks_area(table), snapshot, index_scatter,
+            second_doc = _prepare_second(two, prepared, home, prep, ids, peaks_area(table), index_scatter,
                                          window=window, window_percent=window_percent, adaptive=adaptive,
-                                         anchors=anchors, crowding=crowding, split_peaks=split_peaks)
+                                         anchors=anchor_rows, crowding=crowding, split_peaks=split_peaks)
         keeper = _Keeper(REPORT_PEAKS) if sink is not None else None
         given = getattr(table, "rt_decimals", None)
         decimals = np.asarray(list(given), dtype=object) if given is not None and len(given) == len(ids) else None

@@ -45,6 +45,7 @@ write → read → write identical text.
 from __future__ import annotations
 
 import math
+import os
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -369,3 +370,28 @@ def write_jcamp(spectra: list[JcampSpectrum], path: str | Path) -> None:
 
 __all__ = ["JcampSpectrum", "parse_jcamp", "read_jcamp", "write_jcamp", "jcamp_text", "block_text", "label_key",
            "number_text"]
+
+
+def spectra_by_peak(path, peak_ids) -> list:
+    """One spectrum (or None) per peak from a JCAMP-DX file whose blocks are titled by peak id.
+
+    A title may also end in `` peak ID`` (as ``matcher peaks --spectra-out`` writes them); an empty block means
+    no spectrum. A block whose title names no peak of the run, or a peak named twice, refuses the file (file,
+    block, line).
+    """
+    blocks = read_jcamp(path)
+    pos = {str(p).strip(): i for i, p in enumerate(peak_ids)}
+    out: list = [None] * len(peak_ids)
+    for b in blocks:
+        title = b.title.strip()
+        i = pos.get(title)
+        if i is None and " peak " in title:
+            i = pos.get(title.rsplit(" peak ", 1)[1].strip())
+        if i is None:
+            raise InputError(f"block {b.block} (line {b.line}): title {b.title[:60]!r} is not a peak id of the run "
+                             "(each block of a run's spectra file is titled by its peak id)", file=os.fspath(path))
+        if out[i] is not None:
+            raise InputError(f"block {b.block} (line {b.line}): peak {b.title[:60]!r} has a spectrum already",
+                             file=os.fspath(path))
+        out[i] = b.spectrum if len(b.mz) else None
+    return out

@@ -82,7 +82,8 @@ def main() -> None:
     ap.add_argument("--entries", type=int, default=5_000)
     ap.add_argument("--top", type=int, default=5)
     a = ap.parse_args()
-    from matcher.identify.screening import peak_spectra, screen
+    from matcher.identify.screening import screen
+    from matcher.io.jcamp import spectra_by_peak as peak_spectra
     from matcher.io.jcamp import read_jcamp
     from matcher.io.peak_tables import read_peaks
     from matcher.report.files import write_results
