@@ -811,6 +811,7 @@ def _prepare_second(two: dict, prepared: dict, home: PreparedClass, prep: Prepar
 
     Returns the second run's provenance for :attr:`RunResult.second`."""
     from matcher.chem.spectra import SpectrumSet
+    from matcher.identify.two_columns import per_compound
 
     run_b, table_b, cal_b, x_b_raw, extrap_b, spec_b = two["loaded"]
     home_b = prepared[two["class"]][0]
@@ -837,7 +838,7 @@ def _prepare_second(two: dict, prepared: dict, home: PreparedClass, prep: Prepar
     prep.notices.extend(info.pop("notes", []))
     prep.notices.extend(f"second run: {n}" for n in prep_b.notices)
     both = np.isfinite(second.library_ri[: len(home.compounds)])
-    lib_a, _ = _per_compound_first(home)
+    lib_a, _ = per_compound(home.entries, len(home.compounds))
     shown_lib = np.flatnonzero(both & np.isfinite(lib_a))
     return {
         "source": run_b.peaks_path, "label": label_b, "class": home_b.phase_class,
@@ -857,12 +858,6 @@ def _prepare_second(two: dict, prepared: dict, home: PreparedClass, prep: Prepar
                            "ri": lib_a[shown_lib[:5000]].tolist(),
                            "second_ri": second.library_ri[shown_lib[:5000]].tolist()},
     }
-
-
-def _per_compound_first(home: PreparedClass):
-    from matcher.identify.two_columns import per_compound
-
-    return per_compound(home.entries, len(home.compounds))
 
 
 def screen(

@@ -354,6 +354,7 @@ def pair_peaks(*, a_peak, a_comp, a_logw, n_a: int, b_peak, b_comp, b_ev, b_logw
     # candidate pairs: those sharing a candidate, and (for runs small enough) any pair whose areas or spectra agree
     rows_, cols_ = ka, kb
     base = index_gain
+    dense_sim = None
     if n_a * n_b <= DENSE_PAIRS and (stats.get("available") or both_spectra) and n_a and n_b:
         grid_a, grid_b = np.divmod(np.arange(n_a * n_b, dtype=np.int64), n_b)
         agree = np.zeros(len(grid_a), dtype=bool)
@@ -365,7 +366,8 @@ def pair_peaks(*, a_peak, a_comp, a_logw, n_a: int, b_peak, b_comp, b_ev, b_logw
             from matcher.identify.spectral_evidence import SpectrumModel
 
             model = spectrum_model if spectrum_model is not None else SpectrumModel.default()
-            agree |= model.log_ratio(pair_similarity(spectra_a, spectra_b, grid_a, grid_b)) > 0
+            dense_sim = pair_similarity(spectra_a, spectra_b, grid_a, grid_b)  # every pair, kept for the scores
+            agree |= model.log_ratio(dense_sim) > 0
         extra = np.flatnonzero(agree)
         extra = extra[~np.isin(extra, keys)]
         rows_ = np.concatenate([ka, grid_a[extra]])
@@ -382,7 +384,8 @@ def pair_peaks(*, a_peak, a_comp, a_logw, n_a: int, b_peak, b_comp, b_ev, b_logw
         from matcher.chem.spectra import pair_similarity
         from matcher.identify.spectral_evidence import SpectrumModel
 
-        sim = pair_similarity(spectra_a, spectra_b, rows_, cols_)
+        sim = dense_sim[rows_ * n_b + cols_] if dense_sim is not None else \
+            pair_similarity(spectra_a, spectra_b, rows_, cols_)
         model = spectrum_model if spectrum_model is not None else SpectrumModel.default()
         total = total + model.log_ratio(sim)
         spec_pairs = int(np.isfinite(sim).sum())
