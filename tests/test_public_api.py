@@ -133,6 +133,9 @@ def test_query_result_dict_table_and_schema(demo_lib):
     registry = Registry().with_resources(
         [(s["$id"], Resource.from_contents(s)) for s in schemas.values()])
     jsonschema.Draft202012Validator(schemas["query-output.schema.json"], registry=registry).validate(doc)
+    two = matcher.query(1031, "slightly-polar", mol_ion=136, library=demo_lib, second_ri=1211, second_class="polar")
+    jsonschema.Draft202012Validator(schemas["query-output.schema.json"], registry=registry).validate(two.to_dict())
+    assert two.to_dict()["model"]["second"]["class"] == "polar" and "second" in two.best["evidence"]
     assert len(res.candidates) == 3 and list(res.table["rank"]) == [1, 2, 3]
     assert res.best is res.candidates[0] and res.best["nominal_mass"] == 136   # C10H16 → 136, fact of the trade
     assert set(res.best["evidence"]) == {"index", "mol_ion", "ions", "hit", "spectrum"}
