@@ -124,15 +124,18 @@ def render_crowded(report: dict) -> str:
 
     rows = []
     for cls, r in report["classes"].items():
-        for how in ("plain", "adaptive"):
-            e = r[how]
+        for how in ("plain", "adaptive", "spectra"):
+            e = r.get(how) or {}
             if "peaks" not in e:
                 continue
             rows.append([cls, how, e["peaks"], e["removed"], e["confident_calls"], _pct(e["confident_precision"]),
                          _pct(e["listed_first"]), f"{e['mean_top_probability_removed']:.3f}", f"{e['ece']:.3f}"])
     return (format_table(["class", "screen", "peaks", "not in library", "calls p>=0.9", "of them right", "listed first",
                           "mean p of not in library", "probability error"], rows, align="llrrrrrrr")
-            + f"\nrun shifted by {report['offset']:+g} index units; every other compound along the scale removed from the library")
+            + f"\nrun shifted by {report['offset']:+g} index units; every other compound along the scale removed from the library"
+            + ("; 'spectra': the plain screen with a spectrum per peak drawn from the library's own (a held-out replicate, "
+               "or a removed compound's spectrum) instead of the molecular ion"
+               if any("spectra" in r for r in report["classes"].values()) else ""))
 
 
 def _p(v) -> str:

@@ -308,8 +308,43 @@ def _subset_entries(entries: ClassEntries, keep: np.ndarray) -> ClassEntries:
                         entries.compound[keep], entries.predicted[keep])
 
 
+def crowded_spectra(refs, truth: np.ndarray, removed: np.ndarray):
+    """The spectra of a crowded run drawn from the library's own: (library's spectra, one spectrum or None per peak).
+
+    A removed compound's peak takes its first reference spectrum and the library keeps none of its spectra; a
+    listed compound with two or more spectra holds its first one out for its peak (the library keeps the rest);
+    a listed compound with one spectrum gives its peak none (its own spectrum would match itself exactly).
+
+    >>> from matcher.chem.spectra import ReferenceSpectra
+    >>> refs = ReferenceSpectra.build(np.array([0, 0, 1, 2]), [([41.0], [1.0]), ([41.0], [0.9]), ([43.0], [1.0]),
+    ...                                                          ([55.0], [1.0])])
+    >>> lib, peaks = crowded_spectra(refs, np.array([0, 1, 2]), np.array([False, False, True]))
+    >>> lib.compound.tolist(), [p is not None for p in peaks]
+    ([0, 1], [True, False, True])
+    """
+    from matcher.chem.spectra import ReferenceSpectra
+
+    first, count = refs._table()
+    keep = np.ones(len(refs), dtype=bool)
+    held: list = []
+    for c, gone in zip(np.asarray(truth, np.int64), np.asarray(removed, bool)):
+        n = int(count[c]) if 0 <= c < len(count) else 0
+        if n == 0 or (not gone and n < 2):
+            held.append(None)
+            continue
+        row = int(first[c])
+        held.append(refs.spectra.relative(row))
+        if gone:
+            keep[row:row + n] = False
+        else:
+            keep[row] = False
+    rows = np.flatnonzero(keep)
+    return ReferenceSpectra(refs.spectra.take(rows), refs.compound[rows], refs.ids[rows]), held
+
+
 def evaluate_crowded(snapshot: LibrarySnapshot, phase_class: str, *, offset: float = 0.0, noise: float | None = None,
-                     adaptive: bool = False, with_mol_ion: bool = True, crowding=None, seed: int = SEED) -> dict:
+                     adaptive: bool = False, with_mol_ion: bool = True, crowding=None, seed: int = SEED,
+                     with_spectra: bool = False) -> dict:
     """Crowded-sample self-check: every other compound along the index scale is removed from the library,
     and all of them (kept and removed) are screened together as one run.
 
@@ -319,7 +354,9 @@ def evaluate_crowded(snapshot: LibrarySnapshot, phase_class: str, *, offset: flo
     calls at p ≥ :data:`CONFIDENT_AT` that are right), ``confident_calls``, ``listed_first`` (listed
     compounds ranked first), ``mean_top_probability_removed``, ``max_compound_sum`` (largest sum of one
     compound's probabilities over the run, at most 1) and ``ece`` (expected calibration error of the top
-    probability, ten bins).
+    probability, ten bins). With ``with_spectra`` (a library holding reference spectra) the peaks also carry
+    spectra drawn from the library's own (:func:`crowded_spectra`), and the molecular ion is left out, as a
+    spectrum shows it.
 
     >>> from matcher.store.snapshot import CompoundTable, build_snapshot
     >>> comp = CompoundTable.from_records([{"id": i + 1, "name": f"c{i}", "nominal_mass": 136.0} for i in range(60)])
@@ -345,15 +382,24 @@ def evaluate_crowded(snapshot: LibrarySnapshot, phase_class: str, *, offset: flo
     removed_mask[order[1::2]] = True
     kept = np.zeros(len(entries), dtype=bool)
     kept[order[0::2]] = True
-    lib = LibrarySnapshot(snapshot.compounds, {phase_class: _subset_entries(entries, kept)})
+    truth = entries.compound[order]
+    is_removed = removed_mask[order]
+    peak_spectra = None
+    lib_refs = None
+    if with_spectra and snapshot.spectra is not None and len(snapshot.spectra):
+        from matcher.chem.spectra import SpectrumSet
+
+        lib_refs, held = crowded_spectra(snapshot.spectra, truth, is_removed)
+        peak_spectra = SpectrumSet.from_spectra(held).with_cache()
+        with_mol_ion = False
+        out["peaks_with_spectrum"] = int(sum(h is not None for h in held))
+    lib = LibrarySnapshot(snapshot.compounds, {phase_class: _subset_entries(entries, kept)}, spectra=lib_refs)
     home = prepare(lib, phase_class)
     sd = entries.sd[order] if noise is None else np.full(len(order), float(noise))
     x = entries.ri[order] + rng.normal(0.0, 1.0, len(order)) * sd + offset
-    truth = entries.compound[order]
-    is_removed = removed_mask[order]
     mass = snapshot.compounds.nominal_mass[truth] if with_mol_ion else None
-    sl, _, model, info, corr, _ = screen_run(home, PeakInput(x, mol_ion=mass), DEFAULT_MEASUREMENT_SD[phase_class],
-                                             adaptive=adaptive, crowding=crowding)
+    sl, _, model, info, corr, _ = screen_run(home, PeakInput(x, mol_ion=mass, spectra=peak_spectra),
+                                             DEFAULT_MEASUREMENT_SD[phase_class], adaptive=adaptive, crowding=crowding)
     c = sl.columns
     top = c["rank"] == 1
     n = len(x)
@@ -384,10 +430,16 @@ def evaluate_crowded(snapshot: LibrarySnapshot, phase_class: str, *, offset: flo
 
 def evaluate_crowded_all(snapshot: LibrarySnapshot, phase_class: str | None = None, *, offset: float = 4.0,
                          noise: float | None = None, crowding=None) -> dict:
-    """:func:`evaluate_crowded` for one class or every class with at least four entries, plain and adaptive."""
+    """:func:`evaluate_crowded` for one class or every class with at least four entries, plain and adaptive, and
+    with spectra when the library holds reference spectra."""
     classes = [check_class(phase_class)] if phase_class else [c for c in PHASE_CLASSES if len(snapshot.entries(c)) >= 4]
-    per = {c: {"plain": evaluate_crowded(snapshot, c, offset=offset, noise=noise, crowding=crowding),
-               "adaptive": evaluate_crowded(snapshot, c, offset=offset, noise=noise, crowding=crowding, adaptive=True)}
-           for c in classes}
+    spectra = snapshot.spectra is not None and len(snapshot.spectra) > 0
+    per = {}
+    for c in classes:
+        per[c] = {"plain": evaluate_crowded(snapshot, c, offset=offset, noise=noise, crowding=crowding),
+                  "adaptive": evaluate_crowded(snapshot, c, offset=offset, noise=noise, crowding=crowding, adaptive=True)}
+        if spectra:  # the library's spectra: the same runs with a spectrum per peak instead of the molecular ion
+            per[c]["spectra"] = evaluate_crowded(snapshot, c, offset=offset, noise=noise, crowding=crowding,
+                                                 with_spectra=True)
     return {"mode": "crowded", "offset": offset, "classes": per,
             "library": {"location": snapshot.source, "revision": snapshot.revision}}
