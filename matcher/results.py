@@ -195,6 +195,7 @@ class RunResult:
     summary: dict[str, Any] | None = None  # counted part by part when streamed (matcher.report.summary.add_summaries)
     streamed: bool = False           # rows went to a file as they came; ``table`` keeps leading rows and the report's peaks
     checksum: str = ""               # SHA-256 of the peak table's normalised content (matcher.io.peak_tables.content_checksum)
+    spectra_checksum: str = ""       # SHA-256 of the peaks' spectra (matcher.io.peak_tables.spectra_checksum), "" without
     #: a run file's decimated TIC and detected peaks, for the report (matcher.signal.run_peaks); None for a peak table
     chromatogram: dict[str, Any] | None = None
     record: dict[str, Any] = field(default_factory=dict)  # RECORD_FIELDS given or read from the preamble, and 'preamble'

@@ -480,9 +480,16 @@ def test_peak_table_spectrum_column_is_used(oils_library, tmp_path):
             w.writerow([f"P{k + 1}", r["ri_compilation"], format_spectrum_text(*u)])
     import matcher
 
-    a = matcher.screen(str(table), phase_class="slightly-polar", library=url).top()
-    b = matcher.screen(str(run), phase_class="slightly-polar", library=url, spectra=str(spectra)).top()
+    ra = matcher.screen(str(table), phase_class="slightly-polar", library=url)
+    rb = matcher.screen(str(run), phase_class="slightly-polar", library=url, spectra=str(spectra))
+    a, b = ra.top(), rb.top()
     assert a["spectrum_similarity"].tolist() == b["spectrum_similarity"].tolist()
+    # the run's provenance records its spectra by content, whichever way they came (column or JCAMP-DX file)
+    assert len(ra.runs[0].spectra_checksum) == 64 and ra.runs[0].spectra_checksum == rb.runs[0].spectra_checksum
+    assert matcher.screen(str(run), phase_class="slightly-polar", library=url).runs[0].spectra_checksum == ""
+    rb.to_json(str(tmp_path / "out.json"))
+    doc = json.loads((tmp_path / "out.json").read_text(encoding="utf-8"))
+    assert doc["runs"][0]["checksum"]["spectra_sha256"] == rb.runs[0].spectra_checksum
     assert a["name"].tolist() == [r["name"] for r in rows[:12]]
     with pytest.raises(matcher.MatcherError, match="give the spectra once"):
         matcher.screen(str(table), phase_class="slightly-polar", library=url, spectra=str(spectra))

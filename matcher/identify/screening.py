@@ -705,13 +705,12 @@ def _classes(phase_class: Any, n_runs: int) -> list[str]:
 
 
 def _load_run(run: RunInput, spectra_file, **reading):
-    """One run read and converted to indices (:func:`matcher.signal.screen_inputs.load_run`):
-    (run, table, calibration, indices, extrapolated, spectra)."""
+    """One run read and converted to indices: (run, :class:`matcher.signal.screen_inputs.LoadedRun`)."""
     from matcher.signal.screen_inputs import load_run
 
     got = load_run(run.peaks, calibration=run.calibration, ladder=run.ladder, spectra=spectra_file,
                    name=run.peaks_path, **reading)
-    return run, got.table, got.calibration, got.ri, got.extrapolated, got.spectra
+    return run, got
 
 
 def _plan_second(plan: list[RunInput], second, second_class, calibration, ladder, spectra) -> dict:
@@ -813,7 +812,8 @@ def _prepare_second(two: dict, prepared: dict, home: PreparedClass, prep: Prepar
     from matcher.chem.spectra import SpectrumSet
     from matcher.identify.two_columns import per_compound
 
-    run_b, table_b, cal_b, x_b_raw, extrap_b, spec_b = two["loaded"]
+    run_b, got_b = two["loaded"]
+    table_b, cal_b, x_b_raw, extrap_b, spec_b = got_b.table, got_b.calibration, got_b.ri, got_b.extrapolated, got_b.spectra
     home_b = prepared[two["class"]][0]
     label_b = _label(run_b)
     ids_b = np.asarray(table_b.peak)
@@ -971,7 +971,8 @@ def screen(
     labels_seen: dict[str, int] = {}
     from matcher.chem.spectra import SpectrumSet
 
-    for (run, table, cal, x_raw, extrap, spec), run_class in zip(loaded, classes):
+    for (run, got), run_class in zip(loaded, classes):
+        table, cal, x_raw, extrap, spec = got.table, got.calibration, got.ri, got.extrapolated, got.spectra
         home, neighbour = prepared[run_class]
         base_sd = DEFAULT_MEASUREMENT_SD[run_class] if index_scatter is None else float(index_scatter)
         label = _label(run)
@@ -1028,6 +1029,7 @@ def screen(
             table=df, calibration=None if cal is None else cal.to_dict(), correction=public_correction(prep.correction),
             index_scatter=prep.model.index_scatter, notices=prep.notices + sorted(notes), peak_count=len(table.peak),
             run_model=prep.info, checksum=getattr(table, "checksum", ""), record=_record(table, record),
+            spectra_checksum=got.spectra_checksum,
             rt_decimals=_given_decimals(table, kept=set(df["peak"].astype(str)) if sink is not None else None),
             streamed=sink is not None, chromatogram=getattr(table, "chromatogram", None) or None,
             spectra=shown_spectra, second=second_doc,

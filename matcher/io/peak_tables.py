@@ -177,6 +177,32 @@ def content_checksum(peak, rt, ri, mol_ion, ions, hit, hit_match, area) -> str:
     return h.hexdigest()
 
 
+def spectra_checksum(peak, spectra) -> str:
+    """SHA-256 (hex) of a run's peak spectra: per peak its id, m/z values and intensities scaled to a base peak
+    of 1 (rounded to 6 digits), whatever file or column they came from; "" when no peak has a spectrum.
+
+    >>> s = spectra_checksum(["1", "2"], [(np.array([41.0, 93.0]), np.array([20.0, 100.0])), None])
+    >>> len(s), s == spectra_checksum(["1", "2"], [([41, 93], [2.0, 10.0]), None]), spectra_checksum(["1"], [None])
+    (64, True, '')
+    """
+    import hashlib
+
+    h = hashlib.sha256(b"matcher peak spectra v1\0")
+    any_spectrum = False
+    for p, sp in zip(peak, spectra):
+        if sp is None:
+            continue
+        mz, y = (np.asarray(v, dtype=np.float64) for v in sp)
+        if not len(mz):
+            continue
+        any_spectrum = True
+        top = float(np.max(y)) if len(y) else 0.0
+        rel = np.round(y / top, 6) if top > 0 else y
+        h.update(str(p).encode("utf-8", "surrogatepass") + b"\0")
+        h.update(np.ascontiguousarray(mz).tobytes() + b"\0" + np.ascontiguousarray(rel).tobytes() + b"\0")
+    return h.hexdigest() if any_spectrum else ""
+
+
 def _is_header(fields: list[str]) -> bool:
     """A peak table's header row: it names a time or index column and at least one other known column."""
     from matcher.io.delimited import normalize_header, strip_units

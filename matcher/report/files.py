@@ -378,6 +378,8 @@ def run_document(run: RunResult, *, with_peaks: bool = True) -> dict[str, Any]:
     }
     if getattr(run, "checksum", ""):
         doc["checksum"] = {"sha256": str(run.checksum)}  # the peak table's content: one peak, one identity
+        if getattr(run, "spectra_checksum", ""):  # and the peaks' spectra, wherever they came from
+            doc["checksum"]["spectra_sha256"] = str(run.spectra_checksum)
     if getattr(run, "second", None):
         doc["second"] = second_document(run.second)  # a two-column screen: the second column's run and the pairing
     if with_peaks:

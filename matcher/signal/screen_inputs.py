@@ -30,6 +30,7 @@ class LoadedRun:
     ri: np.ndarray
     extrapolated: np.ndarray
     spectra: list | None
+    spectra_checksum: str = ""  # matcher.io.peak_tables.spectra_checksum of the peaks' spectra ("" without)
 
 
 def calibrate_run(calibration: Any, ladder: Any, *, mode: str, dead_time: float | None, rt_unit: str | None,
@@ -85,4 +86,7 @@ def load_run(peaks: Any, *, calibration: Any = None, ladder: Any = None, spectra
         spec = spectra_by_peak(spectra, np.asarray(table.peak))
     elif getattr(table, "spectra", ()):
         spec = list(table.spectra)
-    return LoadedRun(table, cal, np.asarray(x, dtype=float), np.asarray(extrap, dtype=bool), spec)
+    from matcher.io.peak_tables import spectra_checksum
+
+    digest = spectra_checksum(table.peak, spec) if spec is not None else ""
+    return LoadedRun(table, cal, np.asarray(x, dtype=float), np.asarray(extrap, dtype=bool), spec, digest)
