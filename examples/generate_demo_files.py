@@ -9,6 +9,14 @@ rough values of our own, not measurements of any oil and not taken from a
 published analysis. The times are invented; each peak sits at its compound's
 library centre plus a small systematic offset and noise; three compounds the
 library does not hold are added, and mass-spectral hints on most peaks.
+
+The same injection split to a second column, polyethylene glycol (polar class),
+with a flame-ionisation detector (no mass hints) gives ``run_polar.csv`` and its
+ladder ``ladder_polar.csv``: each compound at its polar library centre (or, for
+the six the demo library lists on 5 % phenyl only, at an invented polar index)
+plus offset and noise, the three unlisted compounds at invented polar indices,
+areas 0.8 × the first column's with 5 % scatter, peaks numbered in their own
+elution order.
 """
 
 from __future__ import annotations
@@ -36,6 +44,19 @@ COMPOSITION: list[tuple[str, float]] = [
 ]
 #: Summed peak area of the run (invented detector counts).
 TOTAL_AREA = 40_000_000
+#: Invented polar indices of the compounds the demo library lists on 5 % phenyl only, and of the three unlisted
+#: compounds (by their 5 % phenyl index); invented for the demo, not reference values.
+POLAR_INVENTED = {"α-pinene": 1019.0, "sabinene": 1118.0, "γ-terpinene": 1241.0, "germacrene D": 1702.0,
+                  "δ-cadinene": 1751.0, "elemol": 2080.0, 1114.0: 1498.0, 1398.0: 1562.0, 1611.0: 2015.0}
+POLAR_HEADER = ("# matcher demo: incoming lot JB-0412 of juniper-berry oil, the same injection split to a\n"
+                "# polyethylene-glycol column (flame-ionisation detector), oven programmed.\n"
+                "# INVENTED NUMBERS FOR THE DEMO, not measurements.\n")
+
+
+def polar_ladder_time(index: np.ndarray) -> np.ndarray:
+    """Invented oven-programme mapping of the polar column from index to minutes."""
+    u = (np.asarray(index, float) - 800.0) / 100.0
+    return 2.60 + 1.85 * u - 0.020 * u**2
 
 
 def ladder_time(index: np.ndarray) -> np.ndarray:
@@ -72,6 +93,7 @@ def main() -> None:
     for ri, formula, percent in [(1114.0, "C10H16O", 0.4), (1398.0, "C15H24", 0.6), (1611.0, "C15H26O", 0.3)]:
         peaks.append((ri, None, formula, percent))
     peaks.sort()
+    kept = []
     with open(os.path.join(HERE, "run.csv"), "w", newline="", encoding="utf-8") as fh:
         fh.write(HEADER)
         w = csv.writer(fh)
@@ -84,6 +106,39 @@ def main() -> None:
                 hit, score = name, int(rng.integers(72, 96))
             area = int(round(TOTAL_AREA * percent / 100.0 * (1.0 + rng.normal(0, 0.04))))
             w.writerow([k, f"{t:.3f}", mol, hit, score, area])
+            kept.append((ri, name, area))
+    write_polar(rows, kept)
+
+
+def write_polar(rows, peaks) -> None:
+    """The second column's run and ladder (see the module doc); its own random numbers, so run.csv stays as it is."""
+    rng = np.random.default_rng(413)
+    carbons = np.arange(8, 26)
+    with open(os.path.join(HERE, "ladder_polar.csv"), "w", newline="", encoding="utf-8") as fh:
+        fh.write(POLAR_HEADER)
+        w = csv.writer(fh)
+        w.writerow(["rt", "carbons", "name"])
+        for c, t in zip(carbons, polar_ladder_time(100.0 * carbons)):
+            w.writerow([f"{t:.3f}", c, f"n-C{c}"])
+    polar: dict[str, list] = {}
+    for r in rows:
+        if r.phase_class == "polar":
+            polar.setdefault(r.name, []).append(r.ri)
+    second = []
+    for ri, name, area in peaks:
+        if name is None:
+            centre = POLAR_INVENTED[ri]
+        else:
+            centre = float(np.median(polar[name])) if name in polar else POLAR_INVENTED[name]
+        second.append((centre + 4.0 + rng.normal(0, 2.5), int(round(0.8 * area * (1.0 + rng.normal(0, 0.05))))))
+    second.sort()
+    with open(os.path.join(HERE, "run_polar.csv"), "w", newline="", encoding="utf-8") as fh:
+        fh.write(POLAR_HEADER)
+        w = csv.writer(fh)
+        w.writerow(["Peak #", "Ret. time (min)", "Area"])
+        for k, (ri, area) in enumerate(second, start=1):
+            t = float(np.interp(ri, 100.0 * carbons, polar_ladder_time(100.0 * carbons)))
+            w.writerow([f"W{k}", f"{t:.3f}", area])
 
 
 if __name__ == "__main__":

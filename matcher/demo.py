@@ -5,7 +5,10 @@ A small distillery's QC lab checks an incoming lot of juniper-berry oil on its
 invented for the demo and says so. :func:`run_demo` builds a fresh demo
 library in the output folder, calibrates the example ladder, screens the
 example run with the adaptive correction, and writes the shortlist, the
-calibration and an HTML report there.
+calibration and an HTML report there. The same injection was also run on a
+polyethylene-glycol column (polar class, flame-ionisation detector: areas only);
+the demo screens both columns together too (two-column confirmation) and writes
+``two-columns.csv`` and ``two-columns.html``.
 """
 
 from __future__ import annotations
@@ -25,6 +28,9 @@ class DemoOutcome:
     shortlist: str
     report: str
     result: object  # ScreenResult
+    two_columns: str = ""  # the two-column shortlist (CSV)
+    two_columns_report: str = ""
+    two_columns_result: object = None  # ScreenResult of the two-column screen
 
 
 #: The demo's QC-record facts (invented, like every number of the demo).
@@ -55,17 +61,29 @@ def run_demo(out_dir: str = "matcher-demo") -> DemoOutcome:
     cal_path = os.path.join(folder, "calibration.json")
     csv_path = os.path.join(folder, "shortlist.csv")
     html_path = os.path.join(folder, "report.html")
+    two_csv = os.path.join(folder, "two-columns.csv")
+    two_html = os.path.join(folder, "two-columns.html")
+    examples = files("matcher.examples")
     with as_file(files("matcher.shipped").joinpath("demo_library.csv")) as lib_csv, \
-            as_file(files("matcher.examples").joinpath("ladder.csv")) as ladder_csv, \
-            as_file(files("matcher.examples").joinpath("run.csv")) as run_csv:
+            as_file(examples.joinpath("ladder.csv")) as ladder_csv, \
+            as_file(examples.joinpath("run.csv")) as run_csv, \
+            as_file(examples.joinpath("ladder_polar.csv")) as polar_ladder_csv, \
+            as_file(examples.joinpath("run_polar.csv")) as polar_run_csv:
         init_library(db_path)
         import_library(db_path, str(lib_csv), who="matcher demo")
         cal = calibrate(read_ladder(str(ladder_csv)))
         cal.save(cal_path)
         result = screen([str(run_csv)], DEMO_CLASS, db=db_path, calibration=cal_path, adaptive=True, top=3,
                         record=DEMO_RECORD)
-    for run in result.runs:
-        run.source = "examples/run.csv"
+        two = screen([str(run_csv)], DEMO_CLASS, db=db_path, calibration=cal_path, top=3, record=DEMO_RECORD,
+                     second=str(polar_run_csv), second_class="polar", second_ladder=str(polar_ladder_csv))
+    for res in (result, two):
+        for run in res.runs:
+            run.source = "examples/run.csv"
+            if run.second:
+                run.second["source"] = "examples/run_polar.csv"
     write_results(result, csv_path)
     write_report(result, html_path)
-    return DemoOutcome(folder, db_path, cal_path, csv_path, html_path, result)
+    write_results(two, two_csv)
+    write_report(two, two_html)
+    return DemoOutcome(folder, db_path, cal_path, csv_path, html_path, result, two_csv, two_html, two)

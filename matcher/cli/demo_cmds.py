@@ -22,7 +22,8 @@ def register(app: typer.Typer) -> None:
     @app.command(
         "demo",
         help="Run the demo end to end: build the demo house library, calibrate the example ladder, screen the "
-        "example run (juniper-berry oil on a 5 % phenyl column; invented numbers) and write a shortlist and a report.\n\n"
+        "example run (juniper-berry oil on a 5 % phenyl column; invented numbers) and write a shortlist and a report; "
+        "then screen it together with the same injection on a polyethylene-glycol column (two-column confirmation).\n\n"
         + CAUTION,
         epilog=EXAMPLE,
     )
@@ -49,8 +50,14 @@ def register(app: typer.Typer) -> None:
                          [[r.peak, f"{r.ri:.1f}", r.name, f"{r.probability:.3f}", r.flags] for r in first.itertuples()],
                          align="rrlrl"))
         say("")
+        from matcher.cli.screen_cmds import pairing_line
+
+        say("the same injection on a polyethylene-glycol column (polar class), both columns scored together:")
+        say(pairing_line(outcome.two_columns_result.runs[0]))
+        say("")
         for label, path in (("library", outcome.library), ("calibration", outcome.calibration),
-                            ("shortlist", outcome.shortlist), ("report", outcome.report)):
+                            ("shortlist", outcome.shortlist), ("report", outcome.report),
+                            ("two columns", outcome.two_columns), ("its report", outcome.two_columns_report)):
             say(f"{label:12s} {path}")
         say("")
         say(CAUTION)
