@@ -26,8 +26,10 @@ not-in-library, one hypothesis on both columns. :math:`t^{area}` compares the
 log area ratio :math:`r_{ab} = \\ln(A_b/A_a)` of one injection split to two
 columns, :math:`\\mathcal N(r; \\ln k, \\sigma_k)` with the split factor *k*
 and its scatter estimated from the pairs of a first pass made on the indices
-alone (median, and 1.4826 × median absolute deviation: robust to the few
-wrong pairs such a pass makes), against the spread of
+alone (median and median absolute deviation, robust to the wrong pairs such a
+pass makes; the scatter kept between 0.15 and 0.5), mixed with a share of 0.1
+of right pairs whose areas disagree anyway (co-elution on one column), so a
+disagreeing area lowers a pair's odds at most tenfold, against the spread of
 *r* over unrelated peaks; :math:`t^{spec}` is the library-calibrated log
 likelihood ratio of the two peaks' spectral similarity
 (:mod:`matcher.identify.spectral_evidence`) where both have spectra.
@@ -72,6 +74,8 @@ UNPAIRED = 0.1
 #: σ of ln(area_B / area_A) − ln k used when the first pass has too few pairs to estimate it (assumption:
 #: split ratios and detector responses differ by compound by some tens of per cent).
 AREA_SCATTER = 0.5
+#: share of right pairs whose areas disagree anyway (co-elution on one column, integration): an assumption.
+AREA_OUTLIERS = 0.1
 #: least σ of the area term (integration error of a few per cent).
 MIN_AREA_SCATTER = 0.15
 #: fewest pairs of the first pass to estimate the split factor and its scatter.
@@ -292,7 +296,9 @@ def best_matching(rows: np.ndarray, cols: np.ndarray, gain: np.ndarray, n_rows: 
 
 
 def _area_stats(la: np.ndarray, lb: np.ndarray, first: np.ndarray) -> dict:
-    """Split factor and scatter of ln(area_B/area_A) from first-pass pairs; the spread over unrelated peaks."""
+    """Split factor and scatter of ln(area_B/area_A) from first-pass pairs (median and 1.4826 × median absolute
+    deviation, the scatter between :data:`MIN_AREA_SCATTER` and :data:`AREA_SCATTER`: a first pass with many
+    wrong pairs, as in a dense library, must not make the areas say nothing); the spread over unrelated peaks."""
     ok_a, ok_b = np.isfinite(la), np.isfinite(lb)
     out = {"available": bool(ok_a.any() and ok_b.any())}
     if not out["available"]:
@@ -300,26 +306,38 @@ def _area_stats(la: np.ndarray, lb: np.ndarray, first: np.ndarray) -> dict:
     paired = np.flatnonzero((first >= 0) & ok_a)
     paired = paired[ok_b[first[paired]]]
     r = lb[first[paired]] - la[paired]
+    spread = float(np.sqrt(np.var(la[ok_a]) + np.var(lb[ok_b])))
+    background = float(np.median(lb[ok_b]) - np.median(la[ok_a]))
     if len(r) >= MIN_AREA_PAIRS:
         centre = float(np.median(r))
-        scatter = max(1.4826 * float(np.median(np.abs(r - centre))), MIN_AREA_SCATTER)
+        scatter = min(max(1.4826 * float(np.median(np.abs(r - centre))), MIN_AREA_SCATTER), AREA_SCATTER)
         source = f"{len(r)} pairs of the first pass (indices alone)"
     else:
         centre = float(np.log(np.exp(lb[ok_b]).sum() / np.exp(la[ok_a]).sum()))
         scatter = AREA_SCATTER
         source = "the runs' summed areas (too few pairs in the first pass to estimate it)"
-    spread = float(np.sqrt(np.var(la[ok_a]) + np.var(lb[ok_b])))
-    out.update(log_factor=centre, scatter=scatter, background_centre=float(np.median(lb[ok_b]) - np.median(la[ok_a])),
+    out.update(log_factor=centre, scatter=scatter, background_centre=background,
                background_spread=max(spread, 2.0 * scatter), pairs=int(len(r)), source=source)
     return out
 
 
-def _area_term(stats: dict, r: np.ndarray) -> np.ndarray:
+def area_term(stats: dict, r: np.ndarray) -> np.ndarray:
+    """The area term t_area of the module doc for log area ratios ``r``: the split factor's normal density,
+    mixed with the share :data:`AREA_OUTLIERS` of pairs whose areas disagree however right the pair (a
+    co-elution on one column, a badly integrated peak), against the spread of unrelated peaks; so a
+    disagreeing area lowers a pair's odds at most 1/AREA_OUTLIERS-fold.
+
+    >>> st = {"available": True, "log_factor": 0.0, "scatter": 0.1, "background_centre": 0.0, "background_spread": 1.5}
+    >>> area_term(st, np.array([0.0, 5.0])).round(2).tolist()
+    [2.61, -2.3]
+    """
     if not stats.get("available"):
         return np.zeros(len(r))
     s, m = stats["scatter"], stats["background_spread"]
-    t = (-0.5 * ((r - stats["log_factor"]) / s) ** 2 - np.log(s)) \
-        - (-0.5 * ((r - stats["background_centre"]) / m) ** 2 - np.log(m))
+    r = np.asarray(r, dtype=float)
+    near = -0.5 * ((r - stats["log_factor"]) / s) ** 2 - np.log(s)
+    far = -0.5 * ((r - stats["background_centre"]) / m) ** 2 - np.log(m)
+    t = np.logaddexp(np.log1p(-AREA_OUTLIERS) + near, np.log(AREA_OUTLIERS) + far) - far
     return np.where(np.isfinite(t), t, 0.0)
 
 
@@ -378,7 +396,7 @@ def pair_peaks(*, a_peak, a_comp, a_logw, n_a: int, b_peak, b_comp, b_ev, b_logw
         notes.append(f"{n_a} × {n_b} peaks: only pairs sharing a library candidate were considered")
     total = base + prior
     if stats.get("available"):
-        total = total + _area_term(stats, lb[cols_] - la[rows_])
+        total = total + area_term(stats, lb[cols_] - la[rows_])
     spec_pairs = 0
     if both_spectra and len(rows_):
         from matcher.chem.spectra import pair_similarity
