@@ -220,16 +220,16 @@ def test_merge_command_dry_run_and_json(library_url, other_url, tmp_path):
 # --------------------------------------------------------------------------- check lists spectrum problems
 
 
-def _insert(url, compound_id, peaks, n_peaks, *, source=SOURCE, title="broken on purpose"):
+def _insert(url, compound_id, peaks, n_peaks, *, source=SOURCE, title="broken on purpose", records=None):
     """A spectrum row written straight into the table (the import would refuse it): test only."""
     from sqlalchemy import create_engine, text
 
     eng = create_engine(url)
     try:
         with eng.begin() as conn:
-            conn.execute(text("INSERT INTO spectra (compound_id, title, peaks, n_peaks, source, created_at) "
-                              "VALUES (:c, :t, :p, :n, :s, '2026-01-01T00:00:00')"),
-                         {"c": compound_id, "t": title, "p": peaks, "n": n_peaks, "s": source})
+            conn.execute(text("INSERT INTO spectra (compound_id, title, peaks, n_peaks, source, records, created_at) "
+                              "VALUES (:c, :t, :p, :n, :s, :r, '2026-01-01T00:00:00')"),
+                         {"c": compound_id, "t": title, "p": peaks, "n": n_peaks, "s": source, "r": records})
             return conn.execute(text("SELECT MAX(id) FROM spectra")).scalar()
     finally:
         eng.dispose()
@@ -248,6 +248,7 @@ def test_check_lists_broken_and_copied_spectra(library_url, tmp_path):
     unsorted = _insert(library_url, lin, "93:45 68:100 41:12", 3)
     wrong_n = _insert(library_url, lin, "41:12 68:100", 5)
     silent = _insert(library_url, lin, "41:0 68:0", 2)
+    bad_records = _insert(library_url, lin, "41:30 68:100", 2, records='[["ORIGIN"]]')  # a label without its value
     copy = _insert(library_url, lim, good, len(spec[0]))                     # same peaks, same source
     other_src = _insert(library_url, lim, good, len(spec[0]), source="licensed collection")
     found = check(library_url)
@@ -258,6 +259,8 @@ def test_check_lists_broken_and_copied_spectra(library_url, tmp_path):
         f"spectrum {unsorted} 'broken on purpose' of compound {lin}: m/z not in ascending order (the stored form is sorted by m/z)",
         f"spectrum {wrong_n} 'broken on purpose' of compound {lin}: n_peaks is 5 but 2 m/z:intensity pairs are stored",
         f"spectrum {silent} 'broken on purpose' of compound {lin}: every intensity is 0 (no base peak)",
+        f"spectrum {bad_records} 'broken on purpose' of compound {lin}: its kept records are not a JSON list of "
+        f"[label, value] pairs (export-spectra would fail on it)",
     ]
     strict = check(library_url, strict=True)
     extra = [p for p in strict if p not in found]
@@ -272,7 +275,7 @@ def test_check_lists_broken_and_copied_spectra(library_url, tmp_path):
                for p in check(library_url, strict=True))
     # the command: exit 1 and one line per problem
     res = runner.invoke(app, ["library", "check", "--db", library_url])
-    assert res.exit_code == 1 and res.output.count("problem: spectrum") == 6
+    assert res.exit_code == 1 and res.output.count("problem: spectrum") == 7
 
 
 def test_check_lists_a_spectrum_whose_compound_is_missing(tmp_path):

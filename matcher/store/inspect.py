@@ -316,14 +316,26 @@ def check(db: str | None, *, strict: bool = False) -> list[str]:
     return problems
 
 
+def _record_pairs(records: str) -> bool:
+    """True when a spectrum's ``records`` text is a JSON list of [label, value] text pairs."""
+    import json
+
+    try:
+        got = json.loads(records)
+    except ValueError:
+        return False
+    return isinstance(got, list) and all(
+        isinstance(r, list) and len(r) == 2 and all(isinstance(v, str) for v in r) for r in got)
+
+
 def _spectrum_problems(conn, *, strict: bool) -> list[str]:
     """Problems of the reference spectra (``check``); the ones that may be deliberate only with ``strict``.
 
     Always listed (a screen would fail on the row, or the spectrum is wrong): a spectrum without peaks,
     a pair that is not ``m/z:intensity``, m/z outside 1 to ``MAX_MZ``, a negative or non-finite intensity,
     an m/z listed twice, m/z not in ascending order (the stored form is sorted), ``n_peaks`` not the
-    number of pairs, every intensity 0 (no base peak), and two spectra of one compound from the same
-    source with the same peaks (:func:`matcher.chem.same_peaks.same_peaks`: a copy, which the spectral
+    number of pairs, kept records that are not a JSON list of [label, value] pairs, every intensity 0
+    (no base peak), and two spectra of one compound from the same source with the same peaks (:func:`matcher.chem.same_peaks.same_peaks`: a copy, which the spectral
     evidence would take for a perfect replicate). With ``strict``: the same peaks under two different
     sources (one spectrum kept with two provenances), and spectra of a compound whose observations are
     all retired (kept for the record, they stay in the library's spectral statistics).
@@ -343,10 +355,13 @@ def _spectrum_problems(conn, *, strict: bool) -> list[str]:
         if on:
             active.add(cid)
     per_compound: dict[int, list] = {}
-    for sid, cid, title, peaks, n_peaks, source in conn.execute(
-        text("SELECT id, compound_id, title, peaks, n_peaks, source FROM spectra ORDER BY compound_id, id")
+    for sid, cid, title, peaks, n_peaks, source, records in conn.execute(
+        text("SELECT id, compound_id, title, peaks, n_peaks, source, records FROM spectra ORDER BY compound_id, id")
     ):
         who = f"spectrum {sid} {title!r} of compound {cid}"
+        if records and not _record_pairs(records):
+            problems.append(f"{who}: its kept records are not a JSON list of [label, value] pairs "
+                            f"(export-spectra would fail on it)")
         parts = [p for p in re.split(r"[\s,;]+", peaks or "") if p]
         if not parts:
             problems.append(f"{who}: holds no peaks")
