@@ -211,14 +211,17 @@ class Library:
 
         return retire(self.db, observation, why, analyst=analyst)
 
-    def merge(self, other: "Library | str | os.PathLike", *, analyst: str | None = None):
-        """Merge another library (handle, path, URL, or a library CSV/XLSX); conflicts reported, never overwritten."""
+    def merge(self, other: "Library | str | os.PathLike", *, analyst: str | None = None, dry_run: bool = False):
+        """Merge another library (handle, path, URL, or a library CSV/XLSX); conflicts reported, never overwritten.
+
+        Its reference spectra come along with their compounds (a spectrum already held is skipped);
+        ``dry_run`` reports what would change and writes nothing."""
         from matcher.curate.merge import merge
 
         other_db = other.db if isinstance(other, Library) else os.fspath(other)
         if other_db is None:
             raise MatcherError("merge needs the other library's path or URL")
-        return merge(self.db, other_db, analyst=analyst)
+        return merge(self.db, other_db, analyst=analyst, dry_run=dry_run)
 
     def backup(self, path: str | os.PathLike, *, overwrite: bool = False):
         """A consistent copy of a SQLite library, safe while others write."""

@@ -36,7 +36,9 @@ EX_MERGE = (
     "Example: bring in the second instrument's library (a library file or a CSV export of it)\n\n"
     "    matcher library merge gc2-library.sqlite --db lab.sqlite\n\n"
     "    matcher library merge gc2-export.csv --json --db lab.sqlite\n\n"
-    "Observations already present are skipped (merging twice adds nothing); conflicts are reported, never overwritten."
+    "    matcher library merge gc2-library.sqlite --dry-run --db lab.sqlite\n\n"
+    "Observations and reference spectra already present are skipped (merging twice adds nothing); a library's "
+    "spectra come with their compounds (a CSV carries none); conflicts are reported, never overwritten."
 )
 EX_BACKUP = "Example: a consistent copy while others may be adding\n\n    matcher library backup -o /backups/lab-2024-05-14.sqlite --db lab.sqlite"
 
@@ -201,21 +203,22 @@ def register(app: typer.Typer) -> None:
             f"centre now {after['centre']:.1f} (spread {after['spread']:.1f}, {after['count']} observation{'' if after['count'] == 1 else 's'})")
         say(f"retired observation {doc['observation']} of {doc['compound']!r} ({doc['phase_class']} {doc['ri']:g}); {rest}")
 
-    @lib.command("merge", help="Merge another library into this one; conflicts are reported, nothing is overwritten.",
-                 epilog=EX_MERGE)
+    @lib.command("merge", help="Merge another library into this one (observations and reference spectra); "
+                 "conflicts are reported, nothing is overwritten.", epilog=EX_MERGE)
     def merge_cmd(
         other: Annotated[str, typer.Argument(metavar="OTHER", help="The other library: a path or URL, or a library CSV/XLSX.")],
+        dry_run: Annotated[bool, typer.Option("--dry-run", help="Check everything and report what would change; write nothing.")] = False,
         analyst: Editor = None,
         db: DbOption = None,
         as_json: JsonFlag = False,
     ) -> None:
         from matcher.api import open_library
 
-        report = open_library(db).merge(other, analyst=analyst)
+        report = open_library(db).merge(other, analyst=analyst, dry_run=dry_run)
         if as_json:
             say(json.dumps(report.as_dict(), indent=2, ensure_ascii=False))
             return
-        say(report.summary())
+        say(("dry run, nothing written: " if dry_run else "") + report.summary())
         for c in report.conflicts:
             say(f"conflict: {c.text()}")
 

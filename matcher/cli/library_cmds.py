@@ -164,9 +164,11 @@ def register(app: typer.Typer) -> None:
         if rows:
             say(format_table(["class", "compounds", "observations", "lowest", "highest", "per 100 units", "widest gap"], rows))
 
-    @lib.command("check", help="Check integrity: database, foreign keys, orphans, duplicate names, invalid CAS/formula/InChIKey.", epilog=EX_CHECK)
+    @lib.command("check", help="Check integrity: database, foreign keys, orphans, duplicate names, invalid CAS/formula/InChIKey, "
+                 "damaged or duplicated reference spectra.", epilog=EX_CHECK)
     def check_cmd(
-        strict: Annotated[bool, typer.Option("--strict", help="Also list CAS numbers shared by two compounds.")] = False,
+        strict: Annotated[bool, typer.Option("--strict", help="Also list what may be deliberate: CAS numbers shared by two compounds, "
+                                             "one spectrum held under two sources, spectra of a compound whose observations are all retired.")] = False,
         db: DbOption = None,
     ) -> None:
         from matcher.api import open_library

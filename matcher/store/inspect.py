@@ -218,7 +218,8 @@ def check(db: str | None, *, strict: bool = False) -> list[str]:
     """Integrity problems of the library, one line each (empty list: healthy).
 
     With ``strict``, a CAS number shared by two compounds is also listed (it may be
-    deliberate, e.g. a table listing an isomer mixture under two names).
+    deliberate, e.g. a table listing an isomer mixture under two names), and so are the
+    reference-spectrum findings that may be deliberate (see :func:`_spectrum_problems`).
     """
     from sqlalchemy import text
 
@@ -252,6 +253,7 @@ def check(db: str | None, *, strict: bool = False) -> list[str]:
             "observation": "SELECT o.id FROM observations o LEFT JOIN compounds c ON c.id = o.compound_id WHERE c.id IS NULL",
             "observation phase": "SELECT o.id FROM observations o LEFT JOIN phases p ON p.id = o.phase_id "
                                  "WHERE o.phase_id IS NOT NULL AND p.id IS NULL",
+            "spectrum": "SELECT s.id FROM spectra s LEFT JOIN compounds c ON c.id = s.compound_id WHERE c.id IS NULL",
         }
         for what, sql in orphan_sql.items():
             for (i,) in conn.execute(text(sql)):
@@ -310,6 +312,84 @@ def check(db: str | None, *, strict: bool = False) -> list[str]:
                 problems.append(f"observation {oid}: ri_sd {sd!r} (must be 0 to {MAX_SD:g} index units)")
             if n is not None and not 1 <= n <= MAX_N:
                 problems.append(f"observation {oid}: n {n!r} (must be 1 to {MAX_N})")
+        problems.extend(_spectrum_problems(conn, strict=strict))
+    return problems
+
+
+def _record_pairs(records: str) -> bool:
+    """True when a spectrum's ``records`` text is a JSON list of [label, value] text pairs."""
+    import json
+
+    try:
+        got = json.loads(records)
+    except ValueError:
+        return False
+    return isinstance(got, list) and all(
+        isinstance(r, list) and len(r) == 2 and all(isinstance(v, str) for v in r) for r in got)
+
+
+def _spectrum_problems(conn, *, strict: bool) -> list[str]:
+    """Problems of the reference spectra (``check``); the ones that may be deliberate only with ``strict``.
+
+    Always listed (a screen would fail on the row, or the spectrum is wrong): a spectrum without peaks,
+    a pair that is not ``m/z:intensity``, m/z outside 1 to ``MAX_MZ``, a negative or non-finite intensity,
+    an m/z listed twice, m/z not in ascending order (the stored form is sorted), ``n_peaks`` not the
+    number of pairs, kept records that are not a JSON list of [label, value] pairs, every intensity 0
+    (no base peak), and two spectra of one compound from the same source with the same peaks (:func:`matcher.chem.same_peaks.same_peaks`: a copy, which the spectral
+    evidence would take for a perfect replicate). With ``strict``: the same peaks under two different
+    sources (one spectrum kept with two provenances), and spectra of a compound whose observations are
+    all retired (kept for the record, they stay in the library's spectral statistics).
+    A spectrum whose compound is missing is an orphan (listed with the other orphans).
+    """
+    from sqlalchemy import select, text
+
+    from matcher.chem.same_peaks import same_peaks
+    from matcher.io.spectrum_text import parse_spectrum_text
+    from matcher.store.models import Observation
+
+    problems: list[str] = []
+    observed: set[int] = set()
+    active: set[int] = set()
+    for cid, on in conn.execute(select(Observation.compound_id, Observation.active).distinct()):
+        observed.add(cid)
+        if on:
+            active.add(cid)
+    per_compound: dict[int, list] = {}
+    for sid, cid, title, peaks, n_peaks, source, records in conn.execute(
+        text("SELECT id, compound_id, title, peaks, n_peaks, source, records FROM spectra ORDER BY compound_id, id")
+    ):
+        who = f"spectrum {sid} {title!r} of compound {cid}"
+        if records and not _record_pairs(records):
+            problems.append(f"{who}: its kept records are not a JSON list of [label, value] pairs "
+                            f"(export-spectra would fail on it)")
+        parts = [p for p in re.split(r"[\s,;]+", peaks or "") if p]
+        if not parts:
+            problems.append(f"{who}: holds no peaks")
+            continue
+        try:
+            got = parse_spectrum_text(peaks)
+        except ValueError as exc:
+            problems.append(f"{who}: {exc}")
+            continue
+        raw = [float(p.partition(":")[0]) for p in parts]
+        if any(b <= a for a, b in zip(raw, raw[1:])):
+            problems.append(f"{who}: m/z not in ascending order (the stored form is sorted by m/z)")
+        if n_peaks != len(parts):
+            problems.append(f"{who}: n_peaks is {n_peaks!r} but {len(parts)} m/z:intensity pairs are stored")
+        if not (got[1] > 0).any():
+            problems.append(f"{who}: every intensity is 0 (no base peak)")
+            continue
+        if strict and cid in observed and cid not in active:
+            problems.append(f"{who}: every observation of its compound is retired")
+        for other_id, other_source, other in per_compound.get(cid, ()):
+            if same_peaks(got, other):
+                if (source or "") == (other_source or ""):
+                    problems.append(f"{who}: same peaks and source as spectrum {other_id} (a copy)")
+                elif strict:
+                    problems.append(f"{who}: same peaks as spectrum {other_id} under another source "
+                                    f"({source or '-'} / {other_source or '-'})")
+                break
+        per_compound.setdefault(cid, []).append((sid, source, got))
     return problems
 
 
