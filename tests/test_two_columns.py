@@ -89,7 +89,7 @@ def test_two_columns_rank_more_compounds_first_and_pair_the_peaks(library, seed)
     right_one = sum(one.loc[f"P{i + 1}", "name"] == nm for i, nm in enumerate(names))
     right_two = sum(two.loc[f"P{i + 1}", "name"] == nm for i, nm in enumerate(names))
     paired = sum(two.loc[p, "second_peak"] == w for p, w in truth.items())
-    assert right_two >= 30, (right_one, right_two)  # measured 31-33 on these seeds
+    assert right_two >= 30, (right_one, right_two)  # measured 30-33 on these seeds
     assert right_two >= right_one + 3  # one column alone: 22-29 on these seeds
     assert paired >= 31  # measured 31-33
     assert set(two["second_peak"]) <= set(second["peak"]) | {""}
