@@ -65,6 +65,16 @@ def ladder_time(index: np.ndarray) -> np.ndarray:
     return 2.10 + 2.05 * u - 0.028 * u**2
 
 
+def write_ladder(name: str, header: str, carbons: np.ndarray, times: np.ndarray) -> None:
+    """An n-alkane ladder file of the demo: one line per alkane (time in minutes, carbon number, name)."""
+    with open(os.path.join(HERE, name), "w", newline="", encoding="utf-8") as fh:
+        fh.write(header)
+        w = csv.writer(fh)
+        w.writerow(["rt", "carbons", "name"])
+        for c, t in zip(carbons, times):
+            w.writerow([f"{t:.3f}", c, f"n-C{c}"])
+
+
 def main() -> None:
     from matcher.chem.formula import nominal_mass
     from matcher.store.snapshot import CompoundTable, build_snapshot
@@ -73,12 +83,7 @@ def main() -> None:
     rows, _ = read_rows(os.path.join(HERE, "..", "library", "demo_library.csv"))
     rng = np.random.default_rng(412)
     carbons = np.arange(7, 23)
-    with open(os.path.join(HERE, "ladder.csv"), "w", newline="", encoding="utf-8") as fh:
-        fh.write(HEADER)
-        w = csv.writer(fh)
-        w.writerow(["rt", "carbons", "name"])
-        for c, t in zip(carbons, ladder_time(100.0 * carbons)):
-            w.writerow([f"{t:.3f}", c, f"n-C{c}"])
+    write_ladder("ladder.csv", HEADER, carbons, ladder_time(100.0 * carbons))
 
     byname: dict[str, list] = {}
     for r in rows:
@@ -114,12 +119,7 @@ def write_polar(rows, peaks) -> None:
     """The second column's run and ladder (see the module doc); its own random numbers, so run.csv stays as it is."""
     rng = np.random.default_rng(413)
     carbons = np.arange(8, 26)
-    with open(os.path.join(HERE, "ladder_polar.csv"), "w", newline="", encoding="utf-8") as fh:
-        fh.write(POLAR_HEADER)
-        w = csv.writer(fh)
-        w.writerow(["rt", "carbons", "name"])
-        for c, t in zip(carbons, polar_ladder_time(100.0 * carbons)):
-            w.writerow([f"{t:.3f}", c, f"n-C{c}"])
+    write_ladder("ladder_polar.csv", POLAR_HEADER, carbons, polar_ladder_time(100.0 * carbons))
     polar: dict[str, list] = {}
     for r in rows:
         if r.phase_class == "polar":

@@ -53,6 +53,17 @@ def two_class_library(only_first: tuple[str, ...] = ()):
     return build_snapshot(comp, np.array(ids), np.array(cls), np.array(ri))
 
 
+def library_csv(path):
+    """The same two-class library as a library file to import (sources named, values from memory)."""
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh)
+        w.writerow(["name", "phase_class", "ri", "cas", "formula", "source"])
+        for r in ROWS:
+            w.writerow([r["name"], "slightly-polar", r["ri_adams"], r["cas"], r["formula"], "Adams 2007, from memory"])
+            w.writerow([r["name"], "polar", POLAR[r["name"]], r["cas"], r["formula"], "Babushok 2011, from memory"])
+    return path
+
+
 def sample_runs(seed: int, n: int = 33, area_scatter: float = 0.1):
     """Two runs of one invented sample: n compounds of the tables, the second run shuffled, areas split."""
     rng = np.random.default_rng(seed)
@@ -235,13 +246,7 @@ def test_command_line_two_columns(tmp_path, library, monkeypatch):
 
     from matcher.cli.main import app
 
-    lib_csv = tmp_path / "lib.csv"
-    with open(lib_csv, "w", newline="", encoding="utf-8") as fh:
-        w = csv.writer(fh)
-        w.writerow(["name", "phase_class", "ri", "cas", "formula", "source"])
-        for r in ROWS:
-            w.writerow([r["name"], "slightly-polar", r["ri_adams"], r["cas"], r["formula"], "Adams 2007, from memory"])
-            w.writerow([r["name"], "polar", POLAR[r["name"]], r["cas"], r["formula"], "Babushok 2011, from memory"])
+    lib_csv = library_csv(tmp_path / "lib.csv")
     db = f"sqlite:///{tmp_path / 'lib.sqlite'}"
     runner = CliRunner()
     assert runner.invoke(app, ["library", "init", "--db", db]).exit_code == 0
@@ -318,13 +323,7 @@ def test_two_run_files_with_spectra_are_paired_and_confirmed(tmp_path):
     a, b = tmp_path / "phenyl.cdf", tmp_path / "peg.cdf"
     write_e2077(a, counting_noise(first, minutes=minutes, scans=scans, seed=31))
     write_e2077(b, counting_noise(second, minutes=minutes, scans=scans, seed=32))
-    lib = tmp_path / "lib.csv"
-    with open(lib, "w", newline="", encoding="utf-8") as fh:
-        w = csv.writer(fh)
-        w.writerow(["name", "phase_class", "ri", "cas", "formula", "source"])
-        for r in ROWS:
-            w.writerow([r["name"], "slightly-polar", r["ri_adams"], r["cas"], r["formula"], "Adams 2007, from memory"])
-            w.writerow([r["name"], "polar", POLAR[r["name"]], r["cas"], r["formula"], "Babushok 2011, from memory"])
+    lib = library_csv(tmp_path / "lib.csv")
     db = str(tmp_path / "lab.sqlite")
     cli("library", "init", "--db", db)
     cli("library", "import", lib, "--db", db)

@@ -59,17 +59,29 @@ MAX_QUERIES = 3000  # per class and kind; a seeded sample beyond this
 SEED = 20261201
 
 
-def _ece(prob: np.ndarray, correct: np.ndarray, bins: int = 10) -> float:
-    if len(prob) == 0:
-        return float("nan")
+def probability_bins(prob: np.ndarray, correct: np.ndarray, bins: int = 10) -> list[tuple[float, float, int, float, float]]:
+    """Per non-empty bin of equal width on 0-1: (lower edge, upper edge, count, mean probability, hit rate).
+
+    >>> probability_bins(np.array([0.05, 0.95, 0.85]), np.array([False, True, False]), bins=2)
+    [(0.0, 0.5, 1, 0.05, 0.0), (0.5, 1.0, 2, 0.8999999999999999, 0.5)]
+    """
+    prob = np.asarray(prob, dtype=float)
+    correct = np.asarray(correct, dtype=bool)
     edges = np.linspace(0, 1, bins + 1)
     idx = np.clip(np.digitize(prob, edges[1:-1]), 0, bins - 1)
-    total = 0.0
+    out = []
     for b in range(bins):
         s = idx == b
         if s.any():
-            total += s.mean() * abs(prob[s].mean() - correct[s].mean())
-    return float(total)
+            out.append((float(edges[b]), float(edges[b + 1]), int(s.sum()), float(prob[s].mean()), float(correct[s].mean())))
+    return out
+
+
+def _ece(prob: np.ndarray, correct: np.ndarray, bins: int = 10) -> float:
+    """Expected calibration error: Σ over bins of share × |mean probability − hit rate|."""
+    if len(prob) == 0:
+        return float("nan")
+    return float(sum(n / len(prob) * abs(m - h) for _, _, n, m, h in probability_bins(prob, correct, bins)))
 
 
 def _held_out_similarity(refs, held: np.ndarray, peak: np.ndarray, compound: np.ndarray) -> np.ndarray:

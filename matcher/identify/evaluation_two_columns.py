@@ -107,27 +107,17 @@ def _without(snapshot: LibrarySnapshot, classes: tuple[str, str], gone: np.ndarr
 
 def _reliability(prob: np.ndarray, correct: np.ndarray, bins: int = 10) -> list[dict]:
     """Per non-empty bin of the top probability: its range, peak count, mean probability and hit rate."""
-    edges = np.linspace(0, 1, bins + 1)
-    idx = np.clip(np.digitize(prob, edges[1:-1]), 0, bins - 1)
-    out = []
-    for b in range(bins):
-        s = idx == b
-        if s.any():
-            out.append({"from": round(float(edges[b]), 2), "to": round(float(edges[b + 1]), 2), "peaks": int(s.sum()),
-                        "mean_probability": round(float(prob[s].mean()), 4), "hit_rate": round(float(correct[s].mean()), 4)})
-    return out
+    from matcher.identify.evaluation import probability_bins
+
+    return [{"from": round(lo, 2), "to": round(hi, 2), "peaks": n, "mean_probability": round(m, 4),
+             "hit_rate": round(h, 4)} for lo, hi, n, m, h in probability_bins(prob, correct, bins)]
 
 
 def _overconfidence(prob: np.ndarray, correct: np.ndarray, bins: int = 10) -> float:
     """The over-confident part of the ECE: Σ over bins of share × max(0, mean probability − hit rate)."""
-    edges = np.linspace(0, 1, bins + 1)
-    idx = np.clip(np.digitize(prob, edges[1:-1]), 0, bins - 1)
-    total = 0.0
-    for b in range(bins):
-        s = idx == b
-        if s.any():
-            total += s.mean() * max(0.0, prob[s].mean() - correct[s].mean())
-    return float(total)
+    from matcher.identify.evaluation import probability_bins
+
+    return float(sum(n / len(prob) * max(0.0, m - h) for _, _, n, m, h in probability_bins(prob, correct, bins)))
 
 
 def _tops(table, ids: np.ndarray) -> dict[str, np.ndarray]:
