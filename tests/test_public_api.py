@@ -257,7 +257,7 @@ def _readme_python_block() -> str:
 
 def test_readme_python_example_runs(tmp_path):
     code = _readme_python_block()
-    for name in ("ladder.csv", "run.csv"):
+    for name in ("ladder.csv", "run.csv", "ladder_polar.csv", "run_polar.csv"):
         (tmp_path / "examples").mkdir(exist_ok=True)
         (tmp_path / "examples" / name).write_text(files("matcher.examples").joinpath(name).read_text(encoding="utf-8"),
                                                    encoding="utf-8")
@@ -268,6 +268,7 @@ def test_readme_python_example_runs(tmp_path):
     assert proc.returncode == 0, proc.stderr
     assert (tmp_path / "shortlist.csv").is_file() and (tmp_path / "report.html").is_file()
     assert "limonene" in proc.stdout
+    assert "second_peak" in proc.stdout and "W1" in proc.stdout  # the two-column screen from Python
 
 
 def test_screen_with_output_streams_the_same_csv_as_the_table_written_afterwards(demo_lib, tmp_path, monkeypatch):
