@@ -331,6 +331,9 @@ def test_two_run_files_with_spectra_are_paired_and_confirmed(tmp_path):
     said = cli("screen", a, "--calibration", cals[0], "--class", "slightly-polar", "--second", b,
                "--second-calibration", cals[1], "--second-class", "polar", "-o", out, "--db", db)
     assert "peaks paired" in said
+    side = json.loads((tmp_path / "both.csv.meta.json").read_text(encoding="utf-8"))["runs"][0]
+    assert len(side["checksum"]["spectra_sha256"]) == 64 and len(side["second"]["checksum"]["spectra_sha256"]) == 64
+    assert side["second"]["checksum"]["spectra_sha256"] != side["checksum"]["spectra_sha256"]
     table = pd.read_csv(out, keep_default_na=False, na_values=[""])
     lead = table[table["rank"] == 1]
     named = {nm: lead[lead["name"] == nm] for nm in sample}

@@ -849,6 +849,7 @@ def _prepare_second(two: dict, prepared: dict, home: PreparedClass, prep: Prepar
         "index_scatter": float(prep_b.model.index_scatter),
         "run_model": prep_b.info,
         "checksum": getattr(table_b, "checksum", ""),
+        "spectra_checksum": got_b.spectra_checksum,
         "pairing": info,
         "pairs": {"peak": [str(ids_a[i]) for i in pairs], "second_peak": [str(ids_b[i]) for i in pairing.partner[pairs]],
                   "ri": prep.x[pairs].tolist(), "second_ri": prep_b.x[pairing.partner[pairs]].tolist(),

@@ -358,6 +358,8 @@ def second_document(second: dict[str, Any] | None) -> dict[str, Any] | None:
     doc["source"] = mask_secrets(str(second.get("source") or ""))
     if isinstance(doc.get("checksum"), str):
         doc["checksum"] = {"sha256": doc["checksum"]} if doc["checksum"] else None
+    if doc.get("checksum") and second.get("spectra_checksum"):  # the second run's spectra, by content
+        doc["checksum"]["spectra_sha256"] = str(second["spectra_checksum"])
     return doc
 
 
