@@ -836,6 +836,9 @@ def _prepare_second(two: dict, prepared: dict, home: PreparedClass, prep: Prepar
         prep.notices.append(f"{len(unpaired_b)} peak(s) of the second run paired with no peak of the first: {shown}"
                             + (" ..." if len(unpaired_b) > 20 else ""))
     prep.notices.extend(info.pop("notes", []))
+    if not len(home_b.entries):
+        prep.notices.append(f"the library holds no {home_b.phase_class} entries: the second column pairs the peaks "
+                            "but confirms nothing (every candidate is not-on-second-class)")
     prep.notices.extend(f"second run: {n}" for n in prep_b.notices)
     both = np.isfinite(second.library_ri[: len(home.compounds)])
     lib_a, _ = per_compound(home.entries, len(home.compounds))
