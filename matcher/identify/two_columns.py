@@ -71,8 +71,8 @@ import numpy as np
 
 #: u, the prior probability that a peak has no partner on the other column (an assumption, not fitted).
 UNPAIRED = 0.1
-#: σ of ln(area_B / area_A) − ln k used when the first pass has too few pairs to estimate it (assumption:
-#: split ratios and detector responses differ by compound by some tens of per cent).
+#: σ of ln(area_B / area_A) − ln k used when the first pass has too few pairs to estimate it, and the most an
+#: estimate may reach (assumption: split ratios and detector responses differ by compound by some tens of per cent).
 AREA_SCATTER = 0.5
 #: share of right pairs whose areas disagree anyway (co-elution on one column, integration): an assumption.
 AREA_OUTLIERS = 0.1
