@@ -195,7 +195,7 @@ def test_linked_blocks_factors_and_identity():
     ("##NPOINTS=4", ["##NPOINTS=5", "NPOINTS says 5"]),
     ("67 60", ["-67 60", "outside 1 to"]),
     ("68 100", ["68 -100", "negative"]),
-    ("##PEAK TABLE=(XY..XY)", ["##PEAK TABLE=(X++(Y..Y))", "(XY..XY)"]),
+    ("##PEAK TABLE=(XY..XY)", ["##PEAK TABLE=(X++(Y..Y))", "needs ##FIRSTX"]),
 ])
 def test_damaged_blocks_are_named(damage, words):
     text = LINKED.replace(damage, words[0], 1)
@@ -613,3 +613,81 @@ def test_migration_from_version_1(library_url, tmp_path):
     one.write_text("##TITLE=limonene\n##PEAK TABLE=(XY..XY)\n68,100 93,45\n##END=\n", encoding="utf-8")
     assert _cli("library", "import-spectra", one, "--db", library_url)[0] == 0
     assert len(load_snapshot(library_url).spectra) == 1
+
+
+# --------------------------------------------------------------------------- compressed (X++(Y..Y)) tables
+# The pseudo-digits are the standard's (McDonald & Wilks, Appl. Spectrosc. 42, 151, 1988; written here from
+# memory): SQZ @ A-I / a-i = 0, +1..+9 / -1..-9 as the first digit of a value; DIF % J-R / j-r the same for a
+# difference from the previous value; DUP S-Z, s = 1..9 occurrences of the token before. A line in difference
+# form repeats its last value at the start of the next line (the Y check).
+
+def _pseudo(v: int, table: str, negative: str) -> str:
+    digits = str(abs(v))
+    return (table if v >= 0 else negative)[int(digits[0])] + digits[1:]
+
+
+def encode_difdup(ys: list[int], per_line: int, x0: int = 1) -> list[str]:
+    """Our own encoder of the difference form with repeats and Y checks (the reader's counterpart)."""
+    lines, k, ended_in_dif = [], 0, False
+    while k < len(ys):
+        chunk = ys[k: k + per_line]
+        start = ys[k - 1] if ended_in_dif else None  # the Y check: after a difference, the last value again
+        seq = ([start] if start is not None else []) + chunk
+        toks = [_pseudo(seq[0], "@ABCDEFGHI", "@abcdefghi")]
+        diffs = [b - a for a, b in zip(seq[:-1], seq[1:])]
+        i = 0
+        while i < len(diffs):
+            j = i
+            while j + 1 < len(diffs) and diffs[j + 1] == diffs[i]:
+                j += 1
+            toks.append(_pseudo(diffs[i], "%JKLMNOPQR", "%jklmnopqr"))
+            if j > i:
+                toks.append(_pseudo(j - i + 1, " STUVWXYZs", " STUVWXYZs"))
+            i = j + 1
+        lines.append(f"{x0 + k} " + "".join(toks))
+        ended_in_dif = bool(diffs)
+        k += per_line
+    return lines
+
+
+def _profile_block(lines: list[str], n: int, first=40.0, last=None) -> str:
+    last = first + n - 1 if last is None else last
+    return ("##TITLE=profile\n##JCAMP-DX=5.01\n##DATA TYPE=MASS SPECTRUM\n"
+            f"##FIRSTX={first}\n##LASTX={last}\n##NPOINTS={n}\n##YFACTOR=0.5\n##XYDATA=(X++(Y..Y))\n"
+            + "\n".join(lines) + "\n##END=")
+
+
+def test_a_compressed_profile_worked_by_hand():
+    from matcher.io.jcamp import parse_jcamp
+
+    # line 1: A0 = 10, J = +1, J = +1, % = +0, T = the % twice in all -> 10 11 12 12 12 (ends in a difference);
+    # line 2: A2 = 12 is the Y check (dropped), E = 5, @ = 0, T = the 0 twice in all, C0 = 30 -> 5 0 0 30
+    text = _profile_block(["1 A0JJ%T", "6 A2E@TC0"], 9)
+    sp = parse_jcamp(text, "p.jdx")[0]
+    # zero-intensity points dropped; m/z 40..48 in steps of 1; YFACTOR 0.5
+    assert sp.mz.tolist() == [40.0, 41.0, 42.0, 43.0, 44.0, 45.0, 48.0]
+    assert sp.intensity.tolist() == [5.0, 5.5, 6.0, 6.0, 6.0, 2.5, 15.0]
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.integers(0, 20000), min_size=2, max_size=60), st.integers(1, 12))
+def test_compressed_tables_read_back_what_was_written(ys, per_line):
+    from matcher.io.jcamp import parse_jcamp
+
+    sp = parse_jcamp(_profile_block(encode_difdup(ys, per_line), len(ys), first=50.0, last=50.0 + 0.5 * (len(ys) - 1)),
+                     "p.jdx")[0]
+    want_mz = [50.0 + 0.5 * i for i, v in enumerate(ys) if v > 0]
+    want_y = [0.5 * v for v in ys if v > 0]
+    assert sp.mz.tolist() == pytest.approx(want_mz) and sp.intensity.tolist() == pytest.approx(want_y)
+
+
+def test_a_broken_y_check_and_missing_records_are_named():
+    from matcher.errors import InputError
+    from matcher.io.jcamp import parse_jcamp
+
+    with pytest.raises(InputError, match=r"line 10.*does not repeat the last value 11"):
+        parse_jcamp(_profile_block(["1 A0J", "3 A5J"], 3), "p.jdx")  # line 2 should start with A1 (11)
+    with pytest.raises(InputError, match="needs ##FIRSTX"):
+        parse_jcamp(_profile_block(["1 A0J"], 2).replace("##FIRSTX=40.0\n", ""), "p.jdx")
+    with pytest.raises(InputError, match="NPOINTS says 5 but the table holds 2"):
+        parse_jcamp(_profile_block(["1 A0J"], 5), "p.jdx")

@@ -17,14 +17,19 @@ What is read (each block holding data becomes one :class:`JcampSpectrum`):
   multiplied by ``##XFACTOR`` / ``##YFACTOR`` when given; ``##NPOINTS``,
   when given, must match the number of pairs; an empty table is read as an
   empty spectrum (a run's peak without one; the library import refuses it);
+* or from an evenly spaced ``##XYDATA=(X++(Y..Y))`` table (a profile spectrum)
+  in any of the standard's compression forms (plain numbers, SQZ, DIF with its
+  Y check, DUP; :func:`decode_asdf_line`), m/z running from ``##FIRSTX`` to
+  ``##LASTX`` over ``##NPOINTS`` values; points of zero intensity are left out;
 * ``##TITLE``, ``##NAMES`` (one name per line), ``##CAS REGISTRY NO``,
   ``##MOLFORM``, ``##ORIGIN``, ``##OWNER``, and every other record of the
   block in order (kept for a lossless export).
 
 Refused, naming the file, the block (its number and title) and the line: a
 record outside a block, a block without ``##END``, an ``##END`` without a
-block, a data block without a table, a table form other than ``(XY..XY)``
-(compressed ``(X++(Y..Y))`` tables and ``##NTUPLES`` are not read), a value
+block, a data block without a table, a table form other than ``(XY..XY)`` or
+``(X++(Y..Y))`` (``##NTUPLES`` are not read), a compressed line that does not
+decode or whose Y check fails, a value
 that is not a number, an odd count of values, m/z outside 1 to
 :data:`matcher.limits.MAX_MZ`, a negative or infinite intensity, a repeated
 m/z, an ``##NPOINTS`` that disagrees, more than :data:`MAX_BLOCKS` blocks.
@@ -190,7 +195,8 @@ def _table_checked(rec, file: str, block: int, title: str, xf: float, yf: float,
     lines = rec.lines()
     form = value.replace(" ", "").upper()
     if form != "(XY..XY)":
-        raise _fail(file, no, f"##{label}={value} is not read (only (XY..XY) tables of m/z,intensity pairs)", block, title)
+        raise _fail(file, no, f"##{label}={value} is not read (only (XY..XY) tables of m/z,intensity pairs and "
+                    "evenly spaced (X++(Y..Y)) tables)", block, title)
     vals, where = [], []
     for ln, s in lines:
         for tok in _SPLIT.split(s):
@@ -219,6 +225,102 @@ def _table_checked(rec, file: str, block: int, title: str, xf: float, yf: float,
     if len(dup):
         raise _fail(file, int(lines_of[dup[0] + 1]), f"m/z {mz[dup[0]]:g} is listed twice", block, title)
     return mz, y
+
+
+#: ASDF pseudo-digits (McDonald & Wilks 1988, the compression forms of JCAMP-DX): SQZ starts a value with its
+#: sign and first digit, DIF starts a difference from the previous value, DUP repeats the previous value or
+#: difference until it has occurred that many times.
+_SQZ = {"@": "0", **{c: str(k) for k, c in enumerate("ABCDEFGHI", 1)}, **{c: f"-{k}" for k, c in enumerate("abcdefghi", 1)}}
+_DIF = {"%": "0", **{c: str(k) for k, c in enumerate("JKLMNOPQR", 1)}, **{c: f"-{k}" for k, c in enumerate("jklmnopqr", 1)}}
+_DUP = {**{c: str(k) for k, c in enumerate("STUVWXYZ", 1)}, "s": "9"}
+_ASDF_TOKEN = re.compile(r"[@A-Ia-i%J-Rj-rS-Zs][0-9.]*|[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[Ee][+-]?[0-9]+)?|[^\s,;]")
+
+
+def decode_asdf_line(text: str) -> tuple[float, list[float], bool]:
+    """One line of an ASDF table: (its abscissa check value, its ordinates, whether it ended in a difference).
+
+    Plain numbers (AFFN/PAC), SQZ, DIF and DUP forms mix freely; a DUP repeats the token before it.
+
+    >>> decode_asdf_line("100 A0JJ%TE")
+    (100.0, [10.0, 11.0, 12.0, 12.0, 12.0, 5.0], False)
+    >>> decode_asdf_line("8192@a3 12 -7.5J")
+    (8192.0, [0.0, -13.0, 12.0, -7.5, -6.5], True)
+    """
+    tokens = _ASDF_TOKEN.findall(text)
+    if not tokens:
+        raise ValueError("an empty line")
+    values: list[float] = []
+    x = None
+    last_dif = None  # the last difference, while the line is in difference form
+    prev: tuple[str, float] | None = None  # ("abs" | "dif", amount) of the token a DUP repeats
+    for tok in tokens:
+        head = tok[0]
+        if head in _DUP:
+            if prev is None or x is None or not values:
+                raise ValueError(f"{tok!r} repeats nothing")
+            count = int(_DUP[head] + tok[1:])
+            for _ in range(count - 1):
+                values.append(values[-1] + prev[1] if prev[0] == "dif" else prev[1])
+            continue
+        if head in _DIF:
+            if x is None or not values:
+                raise ValueError(f"{tok!r} is a difference with no value before it")
+            d = float(_DIF[head] + tok[1:])
+            values.append(values[-1] + d)
+            prev, last_dif = ("dif", d), d
+            continue
+        if head in _SQZ:
+            v = float(_SQZ[head] + tok[1:])
+        else:
+            try:
+                v = float(tok)
+            except ValueError:
+                raise ValueError(f"{tok!r} is neither a number nor an ASDF character") from None
+        if x is None:
+            x = v
+            continue
+        values.append(v)
+        prev, last_dif = ("abs", v), None
+    if x is None:
+        raise ValueError("no abscissa at the start of the line")
+    return x, values, last_dif is not None
+
+
+def _evenly_spaced(rec, file: str, block: int, title: str, firstx: float, lastx: float, yf: float,
+                   npoints: int | None):
+    """An ``(X++(Y..Y))`` table: ordinates in any ASDF form, m/z spread evenly from ##FIRSTX to ##LASTX; a line
+    ending in a difference repeats its last ordinate at the start of the next (the Y check), which is checked
+    and dropped. Points of zero intensity are left out (the spectrum keeps its peaks)."""
+    label, key, value, no = rec[:4]
+    ys: list[float] = []
+    ended_in_dif = False
+    for ln, text in rec.lines():
+        try:
+            _, vals, dif = decode_asdf_line(text)
+        except ValueError as exc:
+            raise _fail(file, ln, f"##{label}: {exc}", block, title) from None
+        if ended_in_dif and vals:
+            if ys and abs(vals[0] - ys[-1]) > 1e-6 * max(1.0, abs(ys[-1])):
+                raise _fail(file, ln, f"##{label}: the line's first value {vals[0]:g} does not repeat the last "
+                            f"value {ys[-1]:g} of the line before (the Y check of the difference form)", block, title)
+            vals = vals[1:]
+        ys.extend(vals)
+        ended_in_dif = dif
+    if npoints is None:
+        raise _fail(file, no, "an (X++(Y..Y)) table needs ##NPOINTS", block, title)
+    if npoints != len(ys):
+        raise _fail(file, no, f"##NPOINTS says {npoints} but the table holds {len(ys)} values", block, title)
+    y = np.asarray(ys, dtype=np.float64) * yf
+    mz = firstx + np.arange(len(y)) * ((lastx - firstx) / (len(y) - 1) if len(y) > 1 else 0.0)
+    bad = np.flatnonzero(~(np.isfinite(y) & (y >= 0)))
+    if len(bad):
+        raise _fail(file, no, f"intensity {y[bad[0]]:g} at m/z {mz[bad[0]]:g} is negative or not finite", block, title)
+    keep = y > 0
+    mz, y = mz[keep], y[keep]
+    if not np.all(np.isfinite(mz) & (mz >= 1) & (mz <= MAX_MZ)):
+        raise _fail(file, no, f"m/z from ##FIRSTX={firstx:g} to ##LASTX={lastx:g} leaves 1 to {MAX_MZ}", block, title)
+    order = np.argsort(mz, kind="stable")
+    return mz[order], y[order]
 
 
 def parse_jcamp(text: str, file: str = "<text>") -> list[JcampSpectrum]:
@@ -285,7 +387,17 @@ def _finish(blk: dict, file: str) -> JcampSpectrum | None:
         if not v.is_integer() or v < 0:
             raise _fail(file, got["NPOINTS"][3], "##NPOINTS must be a whole number", number, title)
         npoints = int(v)
-    mz, y = _table(tables[0], file, number, title, factor("XFACTOR"), factor("YFACTOR"), npoints)
+    form = tables[0][2].replace(" ", "").upper()
+    if form == "(X++(Y..Y))":  # an evenly spaced, ASDF-compressed table (a profile spectrum)
+        def given(key):
+            if key not in got:
+                raise _fail(file, tables[0][3], f"an (X++(Y..Y)) table needs ##{key}", number, title)
+            return _number(got[key][2], file, got[key][3], number, title)
+
+        mz, y = _evenly_spaced(tables[0], file, number, title, given("FIRSTX"), given("LASTX"), factor("YFACTOR"),
+                               npoints)
+    else:
+        mz, y = _table(tables[0], file, number, title, factor("XFACTOR"), factor("YFACTOR"), npoints)
 
     def full(rec) -> str:
         return "\n".join([rec[2]] + [t for _, t in rec.lines()]).strip()
