@@ -68,7 +68,7 @@ MAX_BYTES = 512 * 1024 * 1024
 _TABLES = {"PEAKTABLE", "XYDATA"}
 #: records the writer produces itself (not kept among ``records``)
 _OWN = {"TITLE", "JCAMPDX", "DATATYPE", "DATACLASS", "NPOINTS", "XFACTOR", "YFACTOR", "END", "FIRSTX", "LASTX",
-        "MINX", "MAXX", "MINY", "MAXY", "XUNITS", "YUNITS"} | _TABLES
+        "MINX", "MAXX", "MINY", "MAXY", "XUNITS", "YUNITS", "DELTAX", "FIRSTY"} | _TABLES
 _SPLIT = re.compile(r"[\s,;]+")
 
 
