@@ -65,6 +65,15 @@ def ladder_time(index: np.ndarray) -> np.ndarray:
     return 2.10 + 2.05 * u - 0.028 * u**2
 
 
+def rows_by_name(rows, phase_class: str) -> dict[str, list]:
+    """The demo library's observations of one class, by compound name."""
+    out: dict[str, list] = {}
+    for r in rows:
+        if r.phase_class == phase_class:
+            out.setdefault(r.name, []).append(r)
+    return out
+
+
 def write_ladder(name: str, header: str, carbons: np.ndarray, times: np.ndarray) -> None:
     """An n-alkane ladder file of the demo: one line per alkane (time in minutes, carbon number, name)."""
     with open(os.path.join(HERE, name), "w", newline="", encoding="utf-8") as fh:
@@ -85,10 +94,7 @@ def main() -> None:
     carbons = np.arange(7, 23)
     write_ladder("ladder.csv", HEADER, carbons, ladder_time(100.0 * carbons))
 
-    byname: dict[str, list] = {}
-    for r in rows:
-        if r.phase_class == "slightly-polar":
-            byname.setdefault(r.name, []).append(r)
+    byname = rows_by_name(rows, "slightly-polar")
     peaks = []
     for name, percent in COMPOSITION:
         obs = byname[name]
@@ -120,10 +126,7 @@ def write_polar(rows, peaks) -> None:
     rng = np.random.default_rng(413)
     carbons = np.arange(8, 26)
     write_ladder("ladder_polar.csv", POLAR_HEADER, carbons, polar_ladder_time(100.0 * carbons))
-    polar: dict[str, list] = {}
-    for r in rows:
-        if r.phase_class == "polar":
-            polar.setdefault(r.name, []).append(r.ri)
+    polar = {name: [r.ri for r in obs] for name, obs in rows_by_name(rows, "polar").items()}
     second = []
     for ri, name, area in peaks:
         if name is None:
