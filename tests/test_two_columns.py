@@ -240,6 +240,9 @@ def test_two_column_settings_are_checked(library):
                             second_class="nonpolar")  # a class the library does not hold
     assert any("holds no nonpolar entries" in n for n in lonely.runs[0].notices)
     assert leading(lonely)["flags"].str.contains("not-on-second-class").all()
+    with pytest.raises(matcher.MatcherError, match="no 'ri' column; give --second-calibration CAL.json or --second-ladder"):
+        matcher.screen(first, phase_class="slightly-polar", library=library, second=second.drop(columns="ri"),
+                       second_class="polar")
     with pytest.raises(matcher.MatcherError, match="--second-calibration or --second-ladder, not both"):
         matcher.screen(first, phase_class="slightly-polar", library=library, second=second, second_class="polar",
                        second_calibration="c.json", second_ladder="l.csv")

@@ -704,12 +704,12 @@ def _classes(phase_class: Any, n_runs: int) -> list[str]:
     return classes * n_runs if len(classes) == 1 else classes
 
 
-def _load_run(run: RunInput, spectra_file, **reading):
+def _load_run(run: RunInput, spectra_file, *, options=("--calibration", "--ladder"), **reading):
     """One run read and converted to indices: (run, :class:`matcher.signal.screen_inputs.LoadedRun`)."""
     from matcher.signal.screen_inputs import load_run
 
     got = load_run(run.peaks, calibration=run.calibration, ladder=run.ladder, spectra=spectra_file,
-                   name=run.peaks_path, **reading)
+                   name=run.peaks_path, options=options, **reading)
     return run, got
 
 
@@ -955,7 +955,8 @@ def screen(
     two = None
     if second is not None:
         two = _plan_second(plan, second, second_class, second_calibration, second_ladder, second_spectra)
-        two["loaded"] = _load_run(two["run"], two["spectra"], **reading)
+        two["loaded"] = _load_run(two["run"], two["spectra"], options=("--second-calibration", "--second-ladder"),
+                                  **reading)
     anchor_rows = None
     if anchors:
         from matcher.io.anchors import read_anchors

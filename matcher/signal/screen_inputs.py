@@ -57,10 +57,11 @@ def calibrate_run(calibration: Any, ladder: Any, *, mode: str, dead_time: float 
 
 def load_run(peaks: Any, *, calibration: Any = None, ladder: Any = None, spectra: Any = None, name: str = "",
              mode: str = "programmed", dead_time: float | None = None, rt_unit: str | None = None,
-             header_map: dict | None = None, min_snr: float | None = None) -> LoadedRun:
+             header_map: dict | None = None, min_snr: float | None = None,
+             options: tuple[str, str] = ("--calibration", "--ladder")) -> LoadedRun:
     """Read one run and turn its times into indices (see module doc). ``name`` is the run as messages call it.
 
-    A table without ``ri`` needs a calibration or a ladder; spectra given twice (a ``spectrum`` column and a
+    A table without ``ri`` needs a calibration or a ladder (``options``: how the caller's user gives them); spectra given twice (a ``spectrum`` column and a
     spectra file) are refused."""
     from matcher.io.peak_tables import PeakTable
     from matcher.signal.run_peaks import read_peaks_or_run
@@ -74,7 +75,7 @@ def load_run(peaks: Any, *, calibration: Any = None, ladder: Any = None, spectra
     else:
         cal = calibrate_run(calibration, ladder, mode=mode, dead_time=dead_time, rt_unit=rt_unit, min_snr=min_snr)
         if cal is None:
-            raise MatcherError(f"{name}: the table has no 'ri' column; give --calibration CAL.json or --ladder LADDER.csv")
+            raise MatcherError(f"{name}: the table has no 'ri' column; give {options[0]} CAL.json or {options[1]} LADDER.csv")
         x, extrap = cal.convert(np.asarray(table.rt, dtype=float))
     spec = None
     if spectra is not None:
